@@ -1,0 +1,272 @@
+import { householderFold } from '../numeric/householder-fold.js';
+import { packedLength, packedRowStart } from '../numeric/packed.js';
+import type { RowBlock } from '../numeric/row-block.js';
+import { FitInputError } from './fit-input-error.js';
+import { FoldWorkspace, sharedWorkspace } from './fold-workspace.js';
+
+/** The columns an accumulator folds, by name, for shape checks and error messages. */
+export interface DesignShape {
+  /** Names of the design columns supplied in each block row (the intercept excluded). */
+  readonly terms: readonly string[];
+  /** Name of the response column. */
+  readonly response: string;
+  /** Name of the weight column; absent for an unweighted fit. */
+  readonly weight?: string | undefined;
+  /** Whether the model has an intercept (the accumulator supplies its column). */
+  readonly intercept: boolean;
+}
+
+/** Everything an accumulator holds, in plain form, for storage and transfer. */
+export interface AccumulatorState {
+  /** Order of the augmented factor: design columns (with intercept) + 1. */
+  readonly order: number;
+  /** Packed upper-triangular R of [X·√w | y·√w]. */
+  readonly factor: Float64Array;
+  /** Rows folded with a positive weight. */
+  readonly rows: number;
+  /** Rows seen with weight exactly zero (left out of the fit, counted). */
+  readonly zeroWeightRows: number;
+  /** Σ w over folded rows. */
+  readonly sumWeights: number;
+  /** Σ ln w over folded rows (the log-likelihood of a weighted fit needs it). */
+  readonly sumLogWeights: number;
+}
+
+/**
+ * The running least-squares state of one model: the R factor of the augmented weighted
+ * design `[X·√w | y·√w]`, with row count and weight sums. Memory is O(p²) whatever the
+ * number of rows.
+ *
+ * The factor alone determines every statistic that does not need residuals: with the
+ * intercept in column 0, the total sum of squares about the weighted mean is the sum of
+ * squares of the response column of R below row 0, so no separate moments are kept.
+ *
+ * @example
+ * const acc = new Accumulator({ terms: ['x'], response: 'y', intercept: true });
+ * acc.fold({ rows: 3, width: 2, values: Float64Array.of(1, 2, 2, 4.1, 3, 5.9) });
+ * const fit = solve(acc);
+ */
+export class Accumulator {
+  /** Column names and layout. */
+  readonly shape: DesignShape;
+  /** Order n of the factor: design columns including the intercept, plus the response. */
+  readonly order: number;
+  /** Segment label used in error messages (optional). */
+  readonly label: string | undefined;
+  private readonly r: Float64Array;
+  private readonly workspace: FoldWorkspace;
+  private nRows = 0;
+  private nZeroWeight = 0;
+  private sumW = 0;
+  private sumLogW = 0;
+
+  constructor(shape: DesignShape, options: { label?: string; workspace?: FoldWorkspace } = {}) {
+    this.shape = shape;
+    this.order = shape.terms.length + (shape.intercept ? 1 : 0) + 1;
+    this.label = options.label;
+    this.workspace = options.workspace ?? sharedWorkspace;
+    this.r = new Float64Array(packedLength(this.order));
+  }
+
+  /** Width a block row must have: terms, response, and the weight when weighted. */
+  get blockWidth(): number {
+    return this.shape.terms.length + 1 + (this.shape.weight === undefined ? 0 : 1);
+  }
+
+  /** Rows folded with a positive weight. */
+  get rows(): number {
+    return this.nRows;
+  }
+
+  /** Rows seen with weight zero. */
+  get zeroWeightRows(): number {
+    return this.nZeroWeight;
+  }
+
+  /** Σ w over folded rows. */
+  get sumWeights(): number {
+    return this.sumW;
+  }
+
+  /** Σ ln w over folded rows. */
+  get sumLogWeights(): number {
+    return this.sumLogW;
+  }
+
+  /** The packed factor (read-only view; do not modify). */
+  get factor(): Float64Array {
+    return this.r;
+  }
+
+  /**
+   * Folds rows `from … to-1` of a block. The rows are checked first (finite values, a
+   * finite non-negative weight), so a bad row leaves the accumulator unchanged.
+   *
+   * @throws FitInputError naming the column and segment of the first bad value.
+   */
+  fold(block: RowBlock, from = 0, to = block.rows): void {
+    const width = this.blockWidth;
+    if (block.width !== width) {
+      throw new FitInputError(
+        `block has ${block.width} values per row; this model needs ${width} (${this.columnNames().join(', ')})`,
+        this.errorContext(),
+      );
+    }
+    if (from < 0 || to > block.rows || from > to || block.values.length < block.rows * width) {
+      throw new FitInputError(`row range ${from}..${to} is outside the block of ${block.rows} rows`, this.errorContext());
+    }
+    this.check(block, from, to);
+    this.foldChecked(block.values, width, from, to);
+  }
+
+  /**
+   * Merges another accumulator of the same shape into this one: the factor of the stacked
+   * `[R_this; R_other]`. Merging is associative up to rounding, so partitions, threads and
+   * earlier runs combine in any order.
+   */
+  merge(other: Accumulator): void {
+    if (other.order !== this.order || other.shape.intercept !== this.shape.intercept) {
+      throw new FitInputError(
+        `cannot merge a factor of order ${other.order} into one of order ${this.order}: the models differ`,
+        this.errorContext(),
+      );
+    }
+    this.mergeFactor(other.r);
+    this.nRows += other.nRows;
+    this.nZeroWeight += other.nZeroWeight;
+    this.sumW += other.sumW;
+    this.sumLogW += other.sumLogW;
+  }
+
+  /** A copy of the state, for storage or transfer to another thread. */
+  state(): AccumulatorState {
+    return {
+      order: this.order,
+      factor: this.r.slice(),
+      rows: this.nRows,
+      zeroWeightRows: this.nZeroWeight,
+      sumWeights: this.sumW,
+      sumLogWeights: this.sumLogW,
+    };
+  }
+
+  /** Merges a stored state (for example a partial factor from another worker). */
+  mergeState(state: AccumulatorState): void {
+    if (state.order !== this.order || state.factor.length !== this.r.length) {
+      throw new FitInputError(
+        `stored factor has order ${state.order}; this model needs ${this.order}`,
+        this.errorContext(),
+      );
+    }
+    this.mergeFactor(state.factor);
+    this.nRows += state.rows;
+    this.nZeroWeight += state.zeroWeightRows;
+    this.sumW += state.sumWeights;
+    this.sumLogW += state.sumLogWeights;
+  }
+
+  /** A new accumulator with the same shape and a copy of this one's state. */
+  clone(): Accumulator {
+    const copy = new Accumulator(this.shape, { label: this.label, workspace: this.workspace });
+    copy.mergeState(this.state());
+    return copy;
+  }
+
+  /** Names of the block columns in order, for messages. */
+  columnNames(): string[] {
+    const names = [...this.shape.terms, this.shape.response];
+    if (this.shape.weight !== undefined) names.push(this.shape.weight);
+    return names;
+  }
+
+  private errorContext(column?: string): { column?: string; segment?: string } {
+    const ctx: { column?: string; segment?: string } = {};
+    if (column !== undefined) ctx.column = column;
+    if (this.label !== undefined) ctx.segment = this.label;
+    return ctx;
+  }
+
+  private where(): string {
+    return this.label === undefined ? '' : ` in segment ${this.label}`;
+  }
+
+  private check(block: RowBlock, from: number, to: number): void {
+    const width = block.width;
+    const v = block.values;
+    const wcol = this.shape.weight === undefined ? -1 : width - 1;
+    for (let row = from; row < to; row++) {
+      const base = row * width;
+      // x − x is NaN exactly when x is NaN or ±Infinity: one test per row on the fast path.
+      let probe = 0;
+      for (let j = 0; j < width; j++) {
+        const x = v[base + j]!;
+        probe += x - x;
+      }
+      const w = wcol < 0 ? 1 : v[base + wcol]!;
+      if (probe === 0 && w >= 0) continue;
+      const names = this.columnNames();
+      for (let j = 0; j < width; j++) {
+        const x = v[base + j]!;
+        if (!Number.isFinite(x)) {
+          const col = names[j]!;
+          const p = this.shape.terms.length;
+          const role = j < p ? 'term' : j === p ? 'response' : 'weight';
+          throw new FitInputError(
+            `${role} ${col} is ${String(x)} in row ${row} of the block${this.where()}; ` +
+              'filter such rows in the query, or let the spec skip non-finite rows',
+            this.errorContext(col),
+          );
+        }
+      }
+      const col = names[wcol]!;
+      throw new FitInputError(
+        `weight ${col} is negative (${w}) in row ${row} of the block${this.where()}; weights must be ≥ 0`,
+        this.errorContext(col),
+      );
+    }
+  }
+
+  private foldChecked(v: Float64Array, width: number, from: number, to: number): void {
+    const n = this.order;
+    const p = this.shape.terms.length;
+    const weighted = this.shape.weight !== undefined;
+    const icpt = this.shape.intercept ? 1 : 0;
+    const m = FoldWorkspace.rowsFor(n);
+    const buf = this.workspace.take(m * n);
+    const yCol = (n - 1) * m;
+    let fill = 0;
+    for (let row = from; row < to; row++) {
+      const base = row * width;
+      const w = weighted ? v[base + width - 1]! : 1;
+      // A weight of exactly zero means "not in this fit": counted, not folded.
+      if (w === 0) {
+        this.nZeroWeight++;
+        continue;
+      }
+      const sw = weighted ? Math.sqrt(w) : 1;
+      if (icpt === 1) buf[fill] = sw;
+      for (let j = 0; j < p; j++) buf[(j + icpt) * m + fill] = v[base + j]! * sw;
+      buf[yCol + fill] = v[base + p]! * sw;
+      this.nRows++;
+      this.sumW += w;
+      if (weighted) this.sumLogW += Math.log(w);
+      if (++fill === m) {
+        householderFold(n, this.r, buf, m, m);
+        fill = 0;
+      }
+    }
+    if (fill > 0) householderFold(n, this.r, buf, fill, m);
+  }
+
+  private mergeFactor(other: Float64Array): void {
+    const n = this.order;
+    const buf = this.workspace.take(n * n);
+    // R_other as n dense rows in column-major order (zeros below its diagonal).
+    buf.fill(0, 0, n * n);
+    for (let i = 0; i < n; i++) {
+      const rs = packedRowStart(n, i);
+      for (let j = i; j < n; j++) buf[j * n + i] = other[rs + j - i]!;
+    }
+    householderFold(n, this.r, buf, n, n);
+  }
+}

@@ -1,0 +1,248 @@
+import { tQuantile, tTwoSided, fUpper } from '../numeric/distributions.js';
+import { singularValues } from '../numeric/jacobi-svd.js';
+import { norm2 } from '../numeric/norm.js';
+import { orderedRankQr } from '../numeric/ordered-rank-qr.js';
+import { unpackUpper } from '../numeric/packed.js';
+import { invertUpper, solveUpper, upperTimesTranspose } from '../numeric/triangular.js';
+import type { Accumulator } from './accumulator.js';
+import { INTERCEPT_TERM } from './fit-solution.js';
+import type { CoefficientResult, FitSolution, FitStatus } from './fit-solution.js';
+
+/** Options of {@link solve}. */
+export interface SolveOptions {
+  /** Confidence level of the intervals, in (0, 1). Default 0.95. */
+  readonly confidence?: number;
+  /**
+   * Relative rank tolerance on the column-scaled factor. Default
+   * ε · max(rows, p) · √p, i.e. machine epsilon × size × a bound on the largest singular
+   * value of a matrix with unit-norm columns (the rule LAPACK's least-squares drivers use).
+   */
+  readonly rankTolerance?: number;
+}
+
+const LN_2PI = Math.log(2 * Math.PI);
+
+/**
+ * Solves the model held by an accumulator: rank decision on the column-scaled factor,
+ * estimates of the reduced model by back-substitution, covariance σ²·R⁻¹R⁻ᵀ, and the
+ * statistics that need only the factor.
+ *
+ * @example
+ * const fit = solve(acc, { confidence: 0.9 });
+ * fit.coefficients.find((c) => c.term === 'price')?.estimate;
+ */
+export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution {
+  const confidence = options.confidence ?? 0.95;
+  if (!(confidence > 0 && confidence < 1)) {
+    throw new RangeError(`confidence must be between 0 and 1 (exclusive), got ${confidence}`);
+  }
+  const intercept = acc.shape.intercept;
+  const names = intercept ? [INTERCEPT_TERM, ...acc.shape.terms] : [...acc.shape.terms];
+  const n = acc.order;
+  const pd = n - 1;
+  const rows = acc.rows;
+  const base = {
+    rows,
+    zeroWeightRows: acc.zeroWeightRows,
+    sumWeights: acc.sumWeights,
+    intercept,
+    confidence,
+  };
+
+  if (rows === 0 || rows < pd) {
+    const status: FitStatus = rows === 0 ? 'no_rows' : 'too_few_rows';
+    const note =
+      rows === 0
+        ? acc.zeroWeightRows > 0
+          ? `no rows to fit: all ${acc.zeroWeightRows} rows have weight 0`
+          : 'no rows to fit'
+        : `too few rows: ${rows} rows for ${pd} coefficients`;
+    return emptySolution(base, names, status, note, options.rankTolerance ?? Number.NaN);
+  }
+
+  const a = unpackUpper(n, acc.factor);
+
+  // Column scales and the share of each column's sum of squares left after centring,
+  // read off R before it is rotated again: with the intercept in column 0, the centred
+  // sum of squares of column j is the sum of squares of rows 1..j.
+  const scale = new Float64Array(pd);
+  const centredShare = new Float64Array(pd);
+  let nonZeroColumns = 0;
+  for (let j = 0; j < pd; j++) {
+    const d = norm2(a, j, j + 1, n);
+    scale[j] = d;
+    if (d > 0) nonZeroColumns++;
+    centredShare[j] = intercept && j > 0 ? (norm2(a, n + j, j, n) / d) ** 2 : 1;
+  }
+  const tss = intercept ? norm2(a, n + pd, n - 1, n) ** 2 : norm2(a, pd, n, n) ** 2;
+
+  // Scale to unit-norm columns so the rank decision and the condition number do not
+  // depend on the units of any column. A zero column stays zero and is aliased below.
+  for (let j = 0; j < pd; j++) {
+    const d = scale[j]!;
+    if (!(d > 0)) continue;
+    for (let i = 0; i <= j; i++) a[i * n + j]! /= d;
+  }
+  const tol =
+    options.rankTolerance ?? Number.EPSILON * Math.max(rows, pd) * Math.sqrt(Math.max(1, nonZeroColumns));
+  const qr = orderedRankQr(n, a, tol);
+  const k = qr.rank;
+  const dfResidual = rows - k;
+  const aliased = qr.aliased.map((j) => names[j]!);
+  const keptTerms = qr.kept.map((j) => names[j]!);
+  const notes: string[] = [];
+  if (aliased.length > 0) {
+    notes.push(`aliased (a linear combination of earlier terms, not estimated): ${aliased.join(', ')}`);
+  }
+
+  const betaScaled = qr.z.slice();
+  solveUpper(k, qr.r11, k, betaScaled);
+  const rss = qr.residualNorm ** 2;
+  const icpt = intercept ? 1 : 0;
+  let ess = 0;
+  for (let i = icpt; i < k; i++) ess += qr.z[i]! ** 2;
+
+  const sv = singularValues(k, k, qr.r11);
+  const condition = k > 0 ? sv[0]! / sv[k - 1]! : null;
+  const r2 = tss > 0 ? 1 - rss / tss : null;
+
+  const rInv = invertUpper(k, qr.r11, k);
+  const cScaled = upperTimesTranspose(k, rInv);
+
+  const status: FitStatus = dfResidual > 0 ? 'ok' : 'no_residual_df';
+  if (status === 'no_residual_df') {
+    notes.push(`no residual degrees of freedom (${rows} rows, ${k} coefficients): estimates only, no inference`);
+  }
+  if (tss > 0 === false) notes.push('the response does not vary: R² is undefined');
+
+  const inference = status === 'ok';
+  const sigma2 = inference ? rss / dfResidual : Number.NaN;
+  const sigma = inference ? Math.sqrt(sigma2) : null;
+  const q = inference ? tQuantile(1 - (1 - confidence) / 2, dfResidual) : Number.NaN;
+
+  const coefficients: CoefficientResult[] = [];
+  const keptPosition = new Map<number, number>();
+  qr.kept.forEach((j, pos) => keptPosition.set(j, pos));
+  for (let j = 0; j < pd; j++) {
+    const pos = keptPosition.get(j);
+    if (pos === undefined) {
+      coefficients.push(nullCoefficient(names[j]!, true));
+      continue;
+    }
+    const d = scale[j]!;
+    const estimate = betaScaled[pos]! / d;
+    const cjj = cScaled[pos * k + pos]!;
+    const vif = intercept && j === 0 ? null : k > icpt + 1 || !intercept ? cjj * centredShare[j]! : 1;
+    if (!inference) {
+      coefficients.push({ ...nullCoefficient(names[j]!, false), estimate, vif });
+      continue;
+    }
+    const stdError = Math.sqrt(sigma2 * cjj) / d;
+    const t = estimate / stdError;
+    coefficients.push({
+      term: names[j]!,
+      aliased: false,
+      estimate,
+      stdError,
+      t,
+      p: tTwoSided(t, dfResidual),
+      ciLow: estimate - q * stdError,
+      ciHigh: estimate + q * stdError,
+      vif,
+    });
+  }
+
+  let covariance: Float64Array | null = null;
+  if (inference) {
+    covariance = new Float64Array(k * k);
+    for (let i = 0; i < k; i++) {
+      for (let j = 0; j < k; j++) {
+        covariance[i * k + j] = (sigma2 * cScaled[i * k + j]!) / (scale[qr.kept[i]!]! * scale[qr.kept[j]!]!);
+      }
+    }
+  }
+
+  const fDf1 = k - icpt;
+  let f: number | null = null;
+  let fP: number | null = null;
+  if (inference && fDf1 > 0) {
+    f = ess / fDf1 / (rss / dfResidual);
+    fP = fUpper(f, fDf1, dfResidual);
+  }
+  let r2Adjusted: number | null = null;
+  if (inference && r2 !== null) {
+    r2Adjusted = 1 - ((1 - r2) * (rows - icpt)) / dfResidual;
+  }
+  let logLik: number | null = null;
+  let aic: number | null = null;
+  let bic: number | null = null;
+  if (inference) {
+    // Gaussian log-likelihood at the ML variance RSS/n; a weighted fit adds ½ Σ ln w.
+    logLik = (-rows / 2) * (LN_2PI + Math.log(rss / rows) + 1) + acc.sumLogWeights / 2;
+    // k coefficients plus the error variance.
+    aic = -2 * logLik + 2 * (k + 1);
+    bic = -2 * logLik + Math.log(rows) * (k + 1);
+  }
+
+  return {
+    ...base,
+    status,
+    notes,
+    rank: k,
+    dfResidual,
+    rss,
+    sigma,
+    r2,
+    r2Adjusted,
+    f,
+    fDf1: inference && fDf1 > 0 ? fDf1 : null,
+    fDf2: inference && fDf1 > 0 ? dfResidual : null,
+    fP,
+    logLik,
+    aic,
+    bic,
+    condition,
+    rankTolerance: tol,
+    aliased,
+    coefficients,
+    covariance,
+    keptTerms,
+  };
+}
+
+function nullCoefficient(term: string, aliased: boolean): CoefficientResult {
+  return { term, aliased, estimate: null, stdError: null, t: null, p: null, ciLow: null, ciHigh: null, vif: null };
+}
+
+function emptySolution(
+  base: Pick<FitSolution, 'rows' | 'zeroWeightRows' | 'sumWeights' | 'intercept' | 'confidence'>,
+  names: readonly string[],
+  status: FitStatus,
+  note: string,
+  rankTolerance: number,
+): FitSolution {
+  return {
+    ...base,
+    status,
+    notes: [note],
+    rank: 0,
+    dfResidual: 0,
+    rss: null,
+    sigma: null,
+    r2: null,
+    r2Adjusted: null,
+    f: null,
+    fDf1: null,
+    fDf2: null,
+    fP: null,
+    logLik: null,
+    aic: null,
+    bic: null,
+    condition: null,
+    rankTolerance,
+    aliased: [],
+    coefficients: names.map((t) => nullCoefficient(t, false)),
+    covariance: null,
+    keptTerms: [],
+  };
+}
