@@ -104,7 +104,8 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
 
   const sv = singularValues(k, k, qr.r11);
   const condition = k > 0 ? sv[0]! / sv[k - 1]! : null;
-  const r2 = tss > 0 ? 1 - rss / tss : null;
+  // An intercept-only model explains nothing by definition; say 0, not rounding noise.
+  const r2 = !(tss > 0) ? null : intercept && k === 1 ? 0 : 1 - rss / tss;
 
   const rInv = invertUpper(k, qr.r11, k);
   const cScaled = upperTimesTranspose(k, rInv);
@@ -132,7 +133,8 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
     const d = scale[j]!;
     const estimate = betaScaled[pos]! / d;
     const cjj = cScaled[pos * k + pos]!;
-    const vif = intercept && j === 0 ? null : k > icpt + 1 || !intercept ? cjj * centredShare[j]! : 1;
+    // VIF_j = [(XᵀWX)⁻¹]_jj · (centred or raw) sum of squares of column j.
+    const vif = intercept && j === 0 ? null : cjj * centredShare[j]!;
     if (!inference) {
       coefficients.push({ ...nullCoefficient(names[j]!, false), estimate, vif });
       continue;

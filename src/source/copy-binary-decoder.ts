@@ -1,0 +1,568 @@
+import { Buffer } from 'node:buffer';
+
+import type { RowBlock } from '../numeric/row-block.js';
+
+/**
+ * What the decoder does with a NaN or ±Infinity in a value column.
+ *
+ * - `'pass'`: keep the value in the block; a later stage reports it with its column and segment.
+ * - `'skip'`: drop the row and count it in {@link CopyBinaryDecoder.nonFiniteCounts} and
+ *   {@link CopyBinaryDecoder.rowsSkippedNonFinite}.
+ */
+export type NonFinitePolicy = 'pass' | 'skip';
+
+/**
+ * Options of a {@link CopyBinaryDecoder}.
+ *
+ * The stream being decoded must come from a query whose select list is the K key columns
+ * (cast to `text`) followed by the V value columns (cast to `float8`), in that order.
+ */
+export interface CopyBinaryDecoderOptions {
+  /** K: number of leading key (segment) columns, each `text`. May be 0. */
+  readonly keyColumns: number;
+  /** V: number of trailing value columns, each `float8`. */
+  readonly valueColumns: number;
+  /** Names of the V value columns, used in messages and {@link CopyDecodeError.column}. */
+  readonly valueNames: readonly string[];
+  /** Names of the K key columns, used in messages and {@link CopyDecodeError.column}. */
+  readonly keyNames: readonly string[];
+  /** Maximum number of rows per emitted block (a positive integer, e.g. 4096). */
+  readonly blockRows: number;
+  /** What to do with NaN and ±Infinity values. */
+  readonly nonFinite: NonFinitePolicy;
+}
+
+/**
+ * A block of decoded rows: the V value columns row-major in `values` (width V), and per row
+ * the id of its segment key in `keys` (an index into {@link CopyBinaryDecoder.keyTable}).
+ *
+ * Both arrays belong to the decoder and are overwritten after `onBlock` returns: use the block
+ * (or copy out of it) synchronously inside the callback.
+ */
+export interface DecodedBlock extends RowBlock {
+  /** Per row, the key id; at least `rows` long, only the first `rows` entries are meaningful. */
+  readonly keys: Int32Array;
+}
+
+/**
+ * A malformed, truncated or unsupported binary COPY stream, or a column of the wrong type.
+ *
+ * `column` names the offending column when the problem belongs to one.
+ */
+export class CopyDecodeError extends Error {
+  /** The column the error is about, when there is one. */
+  readonly column: string | undefined;
+
+  /**
+   * @param message - what went wrong and, where possible, how to fix it
+   * @param options - the column concerned and/or an underlying cause
+   */
+  constructor(message: string, options?: { column?: string; cause?: unknown }) {
+    super(message, options?.cause === undefined ? undefined : { cause: options.cause });
+    this.name = 'CopyDecodeError';
+    this.column = options?.column;
+  }
+}
+
+/** The 11-byte signature that opens every binary COPY stream: `PGCOPY\n\377\r\n\0`. */
+const SIGNATURE = Uint8Array.of(0x50, 0x47, 0x43, 0x4f, 0x50, 0x59, 0x0a, 0xff, 0x0d, 0x0a, 0x00);
+/** Flags word plus header-extension length word that follow the signature. */
+const HEADER_WORDS_BYTES = 8;
+/** Flags bit 16: every tuple carries an OID field ahead of the regular fields. */
+const FLAG_HAS_OIDS = 1 << 16;
+/** Flags bits 0–15 are "critical": the format says a reader must abort on any it does not know. */
+const CRITICAL_FLAGS_MASK = 0xffff;
+const FLOAT8_BYTES = 8;
+const INITIAL_CARRY_BYTES = 256;
+
+/** Where in the stream the decoder is. */
+const Phase = {
+  Signature: 0,
+  HeaderWords: 1,
+  HeaderExtension: 2,
+  Tuples: 3,
+  Done: 4,
+} as const;
+type Phase = (typeof Phase)[keyof typeof Phase];
+
+/**
+ * Decodes the output of `COPY (query) TO STDOUT (FORMAT binary)` into {@link DecodedBlock}s.
+ *
+ * A pure codec: bytes in via {@link write} (in chunks cut anywhere, even inside the signature,
+ * a length word or a field), blocks out through the callback; it never touches a socket.
+ * At most one partial tuple is carried between chunks; complete tuples are read in place
+ * from the chunk, with float8 values going straight into a reused block buffer.
+ *
+ * Rows with a NULL in any value column are skipped and counted ({@link nullCounts},
+ * {@link rowsSkippedNull}); with `nonFinite: 'skip'` so are rows with a NaN or ±Infinity
+ * ({@link nonFiniteCounts}, {@link rowsSkippedNonFinite}). A row with both a NULL and a
+ * non-finite value counts as a NULL skip only. Always
+ * `rowsRead = rowsEmitted + rowsSkippedNull + rowsSkippedNonFinite` after {@link end}.
+ *
+ * Emitted blocks reuse the decoder's buffers: a consumer must use a block before the
+ * `onBlock` callback returns. After any thrown error (from the stream or from `onBlock`) the
+ * decoder is spent and every further call rethrows that error; blocks emitted before the
+ * error must be treated as part of a failed stream.
+ *
+ * @example
+ * const decoder = new CopyBinaryDecoder({
+ *   keyColumns: 1, keyNames: ['region'], valueColumns: 2, valueNames: ['x', 'y'],
+ *   blockRows: 4096, nonFinite: 'pass',
+ * });
+ * for await (const chunk of copyStream) decoder.write(chunk, (b) => accumulate(b, decoder.keyTable));
+ * decoder.end((b) => accumulate(b, decoder.keyTable));
+ */
+export class CopyBinaryDecoder {
+  readonly #keyCount: number;
+  readonly #valueCount: number;
+  readonly #fieldCount: number;
+  readonly #keyNames: readonly string[];
+  readonly #valueNames: readonly string[];
+  readonly #blockRows: number;
+  readonly #skipNonFinite: boolean;
+
+  #phase: Phase = Phase.Signature;
+  #signatureSeen = 0;
+  #extensionLeft = 0;
+  #ended = false;
+  #failure: unknown = undefined;
+  #hasFailed = false;
+
+  // Carry: the bytes of the one item (header words or tuple) that straddles a chunk boundary.
+  #carry: Buffer = Buffer.alloc(INITIAL_CARRY_BYTES);
+  #carryView: DataView = new DataView(this.#carry.buffer, this.#carry.byteOffset, this.#carry.byteLength);
+  #carryLength = 0;
+
+  readonly #values: Float64Array;
+  readonly #keys: Int32Array;
+  #blockFill = 0;
+
+  readonly #keyIds = new Map<string, number>();
+  readonly #keyTable: (readonly (string | null)[])[] = [];
+  // Raw bytes of the previous emitted row's key fields, so runs of one segment skip the Map.
+  #lastKey: Buffer = Buffer.alloc(0);
+  #lastKeyLength = -1;
+  #lastKeyId = -1;
+  readonly #utf8 = new TextDecoder('utf-8', { fatal: true });
+
+  readonly #nullCounts: number[];
+  readonly #nonFiniteCounts: number[];
+  #rowsRead = 0;
+  #rowsEmitted = 0;
+  #rowsSkippedNull = 0;
+  #rowsSkippedNonFinite = 0;
+
+  /**
+   * @param options - column layout, block size and non-finite policy
+   * @throws RangeError when the options are inconsistent (negative counts, names of the wrong
+   *   length, a non-positive `blockRows`)
+   */
+  constructor(options: CopyBinaryDecoderOptions) {
+    const { keyColumns: k, valueColumns: v, keyNames, valueNames, blockRows, nonFinite } = options;
+    if (!Number.isInteger(k) || k < 0) throw new RangeError(`keyColumns must be a non-negative integer, got ${k}`);
+    if (!Number.isInteger(v) || v < 0) throw new RangeError(`valueColumns must be a non-negative integer, got ${v}`);
+    // The tuple field count travels as an int16.
+    if (k + v < 1 || k + v > 0x7fff) throw new RangeError(`keyColumns + valueColumns must be 1..32767, got ${k + v}`);
+    if (keyNames.length !== k) throw new RangeError(`keyNames has ${keyNames.length} names for ${k} key columns`);
+    if (valueNames.length !== v) throw new RangeError(`valueNames has ${valueNames.length} names for ${v} value columns`);
+    if (!Number.isInteger(blockRows) || blockRows < 1) throw new RangeError(`blockRows must be a positive integer, got ${blockRows}`);
+    if (nonFinite !== 'pass' && nonFinite !== 'skip') throw new RangeError(`nonFinite must be 'pass' or 'skip', got ${String(nonFinite)}`);
+    this.#keyCount = k;
+    this.#valueCount = v;
+    this.#fieldCount = k + v;
+    this.#keyNames = [...keyNames];
+    this.#valueNames = [...valueNames];
+    this.#blockRows = blockRows;
+    this.#skipNonFinite = nonFinite === 'skip';
+    this.#values = new Float64Array(blockRows * v);
+    this.#keys = new Int32Array(blockRows);
+    this.#nullCounts = new Array<number>(v).fill(0);
+    this.#nonFiniteCounts = new Array<number>(v).fill(0);
+    if (k === 0) this.#keyTable.push([]);
+  }
+
+  /**
+   * Key id → the K key values of that segment (`null` for a SQL NULL, which is a segment value
+   * of its own, distinct from any string). Ids are assigned in order of first emitted row and
+   * never change; a key whose rows were all skipped gets no id. With K = 0 the table is `[[]]`
+   * and every row has id 0.
+   */
+  get keyTable(): ReadonlyArray<ReadonlyArray<string | null>> {
+    return this.#keyTable;
+  }
+
+  /** Per value column: how many skipped rows had a NULL in that column. */
+  get nullCounts(): readonly number[] {
+    return this.#nullCounts;
+  }
+
+  /** Per value column: how many rows skipped for a non-finite value had one in that column. */
+  get nonFiniteCounts(): readonly number[] {
+    return this.#nonFiniteCounts;
+  }
+
+  /** Tuples read so far (the trailer not included). */
+  get rowsRead(): number {
+    return this.#rowsRead;
+  }
+
+  /** Rows delivered to `onBlock` so far. */
+  get rowsEmitted(): number {
+    return this.#rowsEmitted;
+  }
+
+  /** Rows skipped because a value column was NULL. */
+  get rowsSkippedNull(): number {
+    return this.#rowsSkippedNull;
+  }
+
+  /** Rows skipped because a value was NaN or ±Infinity (only with `nonFinite: 'skip'`). */
+  get rowsSkippedNonFinite(): number {
+    return this.#rowsSkippedNonFinite;
+  }
+
+  /**
+   * Decodes the next chunk of the stream, calling `onBlock` for each block that fills up.
+   *
+   * @param chunk - the next bytes of the stream, cut anywhere; not retained after return
+   * @param onBlock - receives full blocks; must use them before returning (buffers are reused)
+   * @throws CopyDecodeError on a malformed stream or a value column that is not float8
+   */
+  write(chunk: Uint8Array, onBlock: (block: DecodedBlock) => void): void {
+    this.#checkUsable('write');
+    try {
+      this.#decode(chunk, onBlock);
+    } catch (error) {
+      this.#fail(error);
+      throw error;
+    }
+  }
+
+  /**
+   * Declares the stream finished and emits the last, partial block (if any rows remain).
+   *
+   * @param onBlock - receives the last block; must use it before returning
+   * @throws CopyDecodeError when the stream stopped before the end-of-data trailer, inside the
+   *   header or inside a tuple
+   */
+  end(onBlock: (block: DecodedBlock) => void): void {
+    this.#checkUsable('end');
+    this.#ended = true;
+    try {
+      this.#finish();
+      if (this.#blockFill > 0) this.#emit(onBlock);
+    } catch (error) {
+      this.#fail(error);
+      throw error;
+    }
+  }
+
+  #checkUsable(call: string): void {
+    if (this.#hasFailed) throw this.#failure;
+    if (this.#ended) throw new Error(`CopyBinaryDecoder.${call}() called after end()`);
+  }
+
+  #fail(error: unknown): void {
+    this.#hasFailed = true;
+    this.#failure = error;
+  }
+
+  #finish(): void {
+    switch (this.#phase) {
+      case Phase.Signature:
+        throw new CopyDecodeError(
+          this.#signatureSeen === 0
+            ? 'COPY stream is empty: expected a binary COPY header (truncated stream)'
+            : `COPY stream truncated inside the signature (${this.#signatureSeen} of ${SIGNATURE.length} bytes)`,
+        );
+      case Phase.HeaderWords:
+        throw new CopyDecodeError(
+          `COPY stream truncated inside the header (${this.#carryLength} of ${HEADER_WORDS_BYTES} bytes of flags and extension length)`,
+        );
+      case Phase.HeaderExtension:
+        throw new CopyDecodeError(`COPY stream truncated inside the header extension (${this.#extensionLeft} bytes missing)`);
+      case Phase.Tuples:
+        if (this.#carryLength > 0) {
+          throw new CopyDecodeError(
+            `COPY stream truncated inside tuple ${this.#rowsRead + 1} (${this.#carryLength} bytes of it received)`,
+          );
+        }
+        throw new CopyDecodeError(
+          `COPY stream truncated: it ended after ${this.#rowsRead} tuples without the end-of-data trailer`,
+        );
+      case Phase.Done:
+        return;
+    }
+  }
+
+  #decode(chunk: Uint8Array, onBlock: (block: DecodedBlock) => void): void {
+    const end = chunk.byteLength;
+    if (end === 0) return;
+    const bytes = Buffer.from(chunk.buffer, chunk.byteOffset, end);
+    const view = new DataView(chunk.buffer, chunk.byteOffset, end);
+    let pos = 0;
+    while (pos < end) {
+      switch (this.#phase) {
+        case Phase.Signature: {
+          // Checked byte by byte so that a text-format or non-COPY stream fails at once.
+          while (pos < end && this.#signatureSeen < SIGNATURE.length) {
+            if (bytes[pos] !== SIGNATURE[this.#signatureSeen]) {
+              throw new CopyDecodeError(
+                `not a binary COPY stream: byte ${this.#signatureSeen} does not match the PGCOPY signature ` +
+                  '(was the COPY run WITH (FORMAT binary)?)',
+              );
+            }
+            pos++;
+            this.#signatureSeen++;
+          }
+          if (this.#signatureSeen === SIGNATURE.length) this.#phase = Phase.HeaderWords;
+          break;
+        }
+        case Phase.HeaderWords: {
+          pos = this.#appendToCarry(bytes, pos, end, HEADER_WORDS_BYTES - this.#carryLength);
+          if (this.#carryLength === HEADER_WORDS_BYTES) {
+            this.#readHeaderWords(this.#carryView);
+            this.#carryLength = 0;
+          }
+          break;
+        }
+        case Phase.HeaderExtension: {
+          // The extension's contents are for future format versions; skipping them is what the
+          // format asks of readers that do not understand them.
+          const skip = Math.min(this.#extensionLeft, end - pos);
+          pos += skip;
+          this.#extensionLeft -= skip;
+          if (this.#extensionLeft === 0) this.#phase = Phase.Tuples;
+          break;
+        }
+        case Phase.Tuples: {
+          if (this.#carryLength > 0) {
+            pos = this.#completeCarriedTuple(bytes, pos, end);
+            if (this.#carryLength === 0) break;
+            this.#consumeTuple(this.#carryView, this.#carry, 0, onBlock);
+            this.#carryLength = 0;
+            break;
+          }
+          while (pos < end && this.#phase === Phase.Tuples) {
+            const tupleEnd = this.#scanTuple(view, pos, end);
+            if (tupleEnd > end) {
+              // Only the straddling tail (a prefix of one tuple) is copied.
+              pos = this.#appendToCarry(bytes, pos, end, end - pos);
+              break;
+            }
+            this.#consumeTuple(view, bytes, pos, onBlock);
+            pos = tupleEnd;
+          }
+          break;
+        }
+        case Phase.Done:
+          throw new CopyDecodeError(`COPY stream has ${end - pos} unexpected bytes after the end-of-data trailer`);
+      }
+    }
+  }
+
+  #readHeaderWords(view: DataView): void {
+    const flags = view.getUint32(0);
+    if ((flags & FLAG_HAS_OIDS) !== 0) {
+      throw new CopyDecodeError(
+        'binary COPY stream includes OIDs (header flag bit 16), which is not supported: run the COPY without OIDS',
+      );
+    }
+    if ((flags & CRITICAL_FLAGS_MASK) !== 0) {
+      throw new CopyDecodeError(
+        `binary COPY stream sets unknown critical header flags 0x${(flags & CRITICAL_FLAGS_MASK).toString(16)} ` +
+          '(a newer, incompatible format version?)',
+      );
+    }
+    // Bits 17–31 are declared backwards-compatible: ignoring them is what the format asks.
+    const extensionLength = view.getInt32(4);
+    if (extensionLength < 0) {
+      throw new CopyDecodeError(`binary COPY header extension length is negative (${extensionLength})`);
+    }
+    this.#extensionLeft = extensionLength;
+    this.#phase = extensionLength === 0 ? Phase.Tuples : Phase.HeaderExtension;
+  }
+
+  /** Copies up to `count` bytes from `bytes[pos..end)` onto the carry; returns the new position. */
+  #appendToCarry(bytes: Buffer, pos: number, end: number, count: number): number {
+    const take = Math.min(count, end - pos);
+    const needed = this.#carryLength + take;
+    if (needed > this.#carry.byteLength) {
+      const grown = Buffer.alloc(Math.max(needed, this.#carry.byteLength * 2));
+      this.#carry.copy(grown, 0, 0, this.#carryLength);
+      this.#carry = grown;
+      this.#carryView = new DataView(grown.buffer, grown.byteOffset, grown.byteLength);
+    }
+    bytes.copy(this.#carry, this.#carryLength, pos, pos + take);
+    this.#carryLength = needed;
+    return pos + take;
+  }
+
+  /**
+   * Moves bytes from the chunk onto the carried partial tuple, one structural piece at a time
+   * (field count, length word, field body), never past the tuple's end. Returns the new chunk
+   * position; the tuple is complete when the carry scans as complete, else the chunk is used up.
+   */
+  #completeCarriedTuple(bytes: Buffer, pos: number, end: number): number {
+    for (;;) {
+      const tupleEnd = this.#scanTuple(this.#carryView, 0, this.#carryLength);
+      if (tupleEnd <= this.#carryLength) return pos;
+      if (pos === end) return pos;
+      pos = this.#appendToCarry(bytes, pos, end, tupleEnd - this.#carryLength);
+    }
+  }
+
+  /**
+   * Walks the tuple (or trailer) starting at `pos`, validating field count and lengths as far as
+   * the bytes go. Returns the offset just past it when it is complete (≤ `end`), otherwise the
+   * offset up to which bytes are needed to make progress (> `end`).
+   */
+  #scanTuple(view: DataView, pos: number, end: number): number {
+    if (pos + 2 > end) return pos + 2;
+    const fields = view.getInt16(pos);
+    // Field count −1 is the end-of-data trailer.
+    if (fields === -1) return pos + 2;
+    if (fields !== this.#fieldCount) {
+      throw new CopyDecodeError(
+        `tuple ${this.#rowsRead + 1} has ${fields} fields, expected K+V = ${this.#fieldCount} ` +
+          `(${this.#keyCount} key + ${this.#valueCount} value columns); the query's select list does not match`,
+      );
+    }
+    let p = pos + 2;
+    for (let f = 0; f < fields; f++) {
+      if (p + 4 > end) return p + 4;
+      const length = view.getInt32(p);
+      p += 4;
+      // Length −1 is a NULL with no body.
+      if (length === -1) continue;
+      if (length < 0) {
+        throw new CopyDecodeError(
+          `tuple ${this.#rowsRead + 1}, column "${this.#columnName(f)}": invalid field length ${length}`,
+          { column: this.#columnName(f) },
+        );
+      }
+      if (f >= this.#keyCount && length !== FLOAT8_BYTES) {
+        const name = this.#columnName(f);
+        throw new CopyDecodeError(
+          `value column "${name}" is not float8: its field is ${length} bytes, a float8 is ${FLOAT8_BYTES}; ` +
+            `cast it to float8 in the query (e.g. (${name})::float8)`,
+          { column: name },
+        );
+      }
+      p += length;
+      if (p > end) return p;
+    }
+    return p;
+  }
+
+  #columnName(field: number): string {
+    return field < this.#keyCount
+      ? (this.#keyNames[field] ?? `key ${field + 1}`)
+      : (this.#valueNames[field - this.#keyCount] ?? `value ${field - this.#keyCount + 1}`);
+  }
+
+  /** Decodes one complete, already validated tuple (or the trailer) at `pos`. */
+  #consumeTuple(view: DataView, bytes: Buffer, pos: number, onBlock: (block: DecodedBlock) => void): void {
+    if (view.getInt16(pos) === -1) {
+      this.#phase = Phase.Done;
+      return;
+    }
+    this.#rowsRead++;
+    let p = pos + 2;
+    const keyStart = p;
+    for (let f = 0; f < this.#keyCount; f++) {
+      const length = view.getInt32(p);
+      p += 4 + (length > 0 ? length : 0);
+    }
+    const keyEnd = p;
+
+    // Values land directly in the block slot; a skipped row simply does not advance the fill.
+    const v = this.#valueCount;
+    const values = this.#values;
+    const base = this.#blockFill * v;
+    let hasNull = false;
+    let hasNonFinite = false;
+    for (let j = 0; j < v; j++) {
+      const length = view.getInt32(p);
+      p += 4;
+      if (length === -1) {
+        hasNull = true;
+        this.#nullCounts[j]!++;
+        continue;
+      }
+      const x = view.getFloat64(p);
+      p += FLOAT8_BYTES;
+      values[base + j] = x;
+      if (!Number.isFinite(x)) hasNonFinite = true;
+    }
+    if (hasNull) {
+      this.#rowsSkippedNull++;
+      return;
+    }
+    if (hasNonFinite && this.#skipNonFinite) {
+      for (let j = 0; j < v; j++) if (!Number.isFinite(values[base + j]!)) this.#nonFiniteCounts[j]!++;
+      this.#rowsSkippedNonFinite++;
+      return;
+    }
+
+    this.#keys[this.#blockFill] = this.#keyCount === 0 ? 0 : this.#keyId(view, bytes, keyStart, keyEnd);
+    this.#blockFill++;
+    if (this.#blockFill === this.#blockRows) this.#emit(onBlock);
+  }
+
+  /**
+   * The id of the key whose raw fields (length words and bodies) are `bytes[start..end)`.
+   * The raw bytes identify a key exactly: the length words keep ('a','bc') apart from
+   * ('ab','c') and NULL (length −1) apart from any string.
+   */
+  #keyId(view: DataView, bytes: Buffer, start: number, end: number): number {
+    const length = end - start;
+    if (length === this.#lastKeyLength && this.#lastKey.compare(bytes, start, end, 0, length) === 0) {
+      return this.#lastKeyId;
+    }
+    const raw = bytes.toString('latin1', start, end);
+    let id = this.#keyIds.get(raw);
+    if (id === undefined) {
+      id = this.#keyTable.length;
+      this.#keyTable.push(this.#decodeKey(view, bytes, start));
+      this.#keyIds.set(raw, id);
+    }
+    if (this.#lastKey.byteLength < length) this.#lastKey = Buffer.alloc(Math.max(length, 2 * this.#lastKey.byteLength));
+    bytes.copy(this.#lastKey, 0, start, end);
+    this.#lastKeyLength = length;
+    this.#lastKeyId = id;
+    return id;
+  }
+
+  #decodeKey(view: DataView, bytes: Buffer, start: number): (string | null)[] {
+    const key: (string | null)[] = [];
+    let p = start;
+    for (let f = 0; f < this.#keyCount; f++) {
+      const length = view.getInt32(p);
+      p += 4;
+      if (length === -1) {
+        key.push(null);
+        continue;
+      }
+      try {
+        key.push(this.#utf8.decode(bytes.subarray(p, p + length)));
+      } catch (cause) {
+        // Binary COPY sends text in the session's client_encoding, not necessarily UTF-8.
+        const name = this.#columnName(f);
+        throw new CopyDecodeError(
+          `key column "${name}" in tuple ${this.#rowsRead} is not valid UTF-8; set client_encoding to UTF8 for the COPY session`,
+          { column: name, cause },
+        );
+      }
+      p += length;
+    }
+    return key;
+  }
+
+  #emit(onBlock: (block: DecodedBlock) => void): void {
+    const rows = this.#blockFill;
+    this.#blockFill = 0;
+    this.#rowsEmitted += rows;
+    onBlock({ rows, width: this.#valueCount, values: this.#values, keys: this.#keys });
+  }
+}

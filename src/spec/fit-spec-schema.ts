@@ -1,0 +1,148 @@
+import * as z from 'zod';
+
+const NAME_PATTERN = /^[A-Za-z][A-Za-z0-9_.-]{0,62}$/;
+const IDENTIFIER_PATTERN = /^[A-Za-z_][A-Za-z0-9_]{0,62}$/;
+const NOT_BLANK_PATTERN = /\S/;
+
+const IDENTIFIER_RULE = 'a letter or "_", then letters, digits or "_", at most 63 characters';
+
+function identifier(what: string, description: string) {
+  const error = `must be ${what} (${IDENTIFIER_RULE})`;
+  return z.string({ error }).regex(IDENTIFIER_PATTERN, { error }).meta({ description });
+}
+
+function sqlText(what: string, description: string) {
+  const error = `must be ${what} (a non-empty string)`;
+  return z.string({ error }).regex(NOT_BLANK_PATTERN, { error }).meta({ description });
+}
+
+const termSchema = z.union(
+  [
+    sqlText('a SQL expression', 'SQL expression; the term is named after it (whitespace collapsed).'),
+    z
+      .strictObject({
+        name: sqlText('a term name', 'Name the coefficient is reported under.'),
+        sql: sqlText('a SQL expression', 'SQL expression evaluated per row.'),
+      })
+      .meta({ description: 'A term with an explicit name.' }),
+  ],
+  { error: 'must be a SQL expression or a mapping with "name" and "sql"' },
+);
+
+const categoricalSchema = z.union(
+  [
+    identifier('a column name', 'Categorical column, with the default reference level and level cap.'),
+    z
+      .strictObject({
+        column: identifier('a column name', 'Categorical column of the source rows.'),
+        reference: z
+          .union([z.string(), z.number()], { error: 'must be a level value (a string or a number)' })
+          .optional()
+          .meta({ description: 'Reference level (left out of the indicator columns). Default: chosen by the fit.' }),
+        max_levels: z
+          .int({ error: 'must be an integer from 2 to 10000' })
+          .min(2, { error: 'must be an integer from 2 to 10000' })
+          .max(10000, { error: 'must be an integer from 2 to 10000' })
+          .default(50)
+          .meta({ description: 'Most distinct levels accepted before the fit fails.' }),
+      })
+      .meta({ description: 'A categorical column with options.' }),
+  ],
+  { error: 'must be a column name or a mapping with "column" (and optionally "reference", "max_levels")' },
+);
+
+const interactionSchema = z
+  .tuple(
+    [
+      sqlText('a term name or categorical column', 'Term name or categorical column.'),
+      sqlText('a term name or categorical column', 'Term name or categorical column.'),
+    ],
+    { error: 'must be a pair [a, b] of term names or categorical columns' },
+  )
+  .meta({ description: 'Pair of term names or categorical columns whose product enters the model.' });
+
+/**
+ * zod schema of a fit spec document as written in YAML (snake_case keys, strict objects,
+ * defaults filled in). It checks each value on its own; the checks that span keys
+ * (duplicate names, interaction references, the source's form, a model with no
+ * columns) are made by `parseFitSpec`, which also turns the result into a `FitSpec`.
+ *
+ * Messages set here read as "must be …"; the parser prefixes the key path and location.
+ *
+ * @example
+ * const result = fitSpecSchema.safeParse({ name: 'f', source: 'grid.readings', response: 'load_kw' });
+ * if (result.success) result.data.method; // 'qr'
+ */
+export const fitSpecSchema = z
+  .strictObject({
+    name: z
+      .string({ error: 'must be a name: a letter, then up to 62 letters, digits, "_", "." or "-"' })
+      .regex(NAME_PATTERN, { error: 'must be a name: a letter, then up to 62 letters, digits, "_", "." or "-"' })
+      .meta({ description: 'Identifier of the fit.' }),
+    source: sqlText(
+      'a SQL query or a table name',
+      'SQL query (anything with whitespace, or starting with SELECT, WITH, VALUES or TABLE), without a trailing ";", ' +
+        'or a table name, optionally schema-qualified (schema.table).',
+    ),
+    response: sqlText('a SQL expression', 'SQL expression for the response variable.'),
+    terms: z
+      .array(termSchema, { error: 'must be a list of terms' })
+      .default([])
+      .meta({ description: 'Regressors: SQL expressions, or {name, sql} mappings.' }),
+    categorical: z
+      .array(categoricalSchema, { error: 'must be a list of categorical columns' })
+      .default([])
+      .meta({ description: 'Categorical columns, expanded into indicator columns.' }),
+    interactions: z
+      .array(interactionSchema, { error: 'must be a list of pairs [a, b]' })
+      .default([])
+      .meta({ description: 'Products of two terms and/or categorical columns.' }),
+    segment_by: z
+      .union(
+        [
+          identifier('a column name', 'One segment column.'),
+          z.array(identifier('a column name', 'Segment column.')).meta({ description: 'Segment columns.' }),
+        ],
+        { error: 'must be a column name or a list of column names' },
+      )
+      .default([])
+      .meta({ description: 'Columns splitting the rows into segments, one model per segment.' }),
+    weight: sqlText('a SQL expression', 'SQL expression for the row weight.').optional(),
+    intercept: z
+      .boolean({ error: 'must be true or false' })
+      .default(true)
+      .meta({ description: 'Whether the model has an intercept column.' }),
+    confidence: z
+      .number({ error: 'must be a number between 0 and 1 (exclusive)' })
+      .gt(0, { error: 'must be a number between 0 and 1 (exclusive)' })
+      .lt(1, { error: 'must be a number between 0 and 1 (exclusive)' })
+      .default(0.95)
+      .meta({ description: 'Confidence level for intervals.' }),
+    method: z
+      .enum(['qr', 'normal'])
+      .default('qr')
+      .meta({ description: 'Solver: qr (Householder QR) or normal (normal equations).' }),
+    schema: identifier('a schema name', 'Schema that receives the result tables.').default('rowfold'),
+    read: z
+      .enum(['copy', 'rows'])
+      .default('copy')
+      .meta({ description: 'How rows are read: copy (COPY protocol) or rows (row-stream fallback).' }),
+    non_finite: z
+      .enum(['error', 'skip'])
+      .default('error')
+      .meta({ description: 'Rows with NaN or ±Infinity: error fails the fit, skip drops and counts them.' }),
+    partition_key: identifier(
+      'a column name',
+      'Column hashed to split the source into partitions that are read in parallel.',
+    ).optional(),
+  })
+  .meta({
+    title: 'rowfold fit spec',
+    description: 'One linear regression per segment over the rows of a SQL query or table.',
+  });
+
+/** A fit spec document as accepted by {@link fitSpecSchema} (before defaults). */
+export type FitSpecDocumentInput = z.input<typeof fitSpecSchema>;
+
+/** A fit spec document after {@link fitSpecSchema}: snake_case keys, defaults filled in. */
+export type FitSpecDocument = z.output<typeof fitSpecSchema>;
