@@ -132,6 +132,7 @@ export class CopyBinaryDecoder {
   #carry: Buffer = Buffer.alloc(INITIAL_CARRY_BYTES);
   #carryView: DataView = new DataView(this.#carry.buffer, this.#carry.byteOffset, this.#carry.byteLength);
   #carryLength = 0;
+  #carryComplete = false;
 
   readonly #values: Float64Array;
   readonly #keys: Int32Array;
@@ -282,6 +283,12 @@ export class CopyBinaryDecoder {
       case Phase.HeaderExtension:
         throw new CopyDecodeError(`COPY stream truncated inside the header extension (${this.#extensionLeft} bytes missing)`);
       case Phase.Tuples:
+        if (this.#carryLength === 1) {
+          // One byte of an int16 cannot tell a tuple's field count from the trailer's −1.
+          throw new CopyDecodeError(
+            `COPY stream truncated inside the field count of tuple ${this.#rowsRead + 1} (or the end-of-data trailer)`,
+          );
+        }
         if (this.#carryLength > 0) {
           throw new CopyDecodeError(
             `COPY stream truncated inside tuple ${this.#rowsRead + 1} (${this.#carryLength} bytes of it received)`,
@@ -338,7 +345,7 @@ export class CopyBinaryDecoder {
         case Phase.Tuples: {
           if (this.#carryLength > 0) {
             pos = this.#completeCarriedTuple(bytes, pos, end);
-            if (this.#carryLength === 0) break;
+            if (!this.#carryComplete) break;
             this.#consumeTuple(this.#carryView, this.#carry, 0, onBlock);
             this.#carryLength = 0;
             break;
@@ -356,7 +363,7 @@ export class CopyBinaryDecoder {
           break;
         }
         case Phase.Done:
-          throw new CopyDecodeError(`COPY stream has ${end - pos} unexpected bytes after the end-of-data trailer`);
+          throw new CopyDecodeError('COPY stream has data after the end-of-data trailer');
       }
     }
   }
@@ -401,13 +408,13 @@ export class CopyBinaryDecoder {
   /**
    * Moves bytes from the chunk onto the carried partial tuple, one structural piece at a time
    * (field count, length word, field body), never past the tuple's end. Returns the new chunk
-   * position; the tuple is complete when the carry scans as complete, else the chunk is used up.
+   * position and sets {@link #carryComplete}; when the tuple is still incomplete the chunk is used up.
    */
   #completeCarriedTuple(bytes: Buffer, pos: number, end: number): number {
     for (;;) {
       const tupleEnd = this.#scanTuple(this.#carryView, 0, this.#carryLength);
-      if (tupleEnd <= this.#carryLength) return pos;
-      if (pos === end) return pos;
+      this.#carryComplete = tupleEnd <= this.#carryLength;
+      if (this.#carryComplete || pos === end) return pos;
       pos = this.#appendToCarry(bytes, pos, end, tupleEnd - this.#carryLength);
     }
   }
