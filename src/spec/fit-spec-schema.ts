@@ -121,7 +121,7 @@ export const fitSpecSchema = z
     method: z
       .enum(['qr', 'normal'])
       .default('qr')
-      .meta({ description: 'Solver: qr (Householder QR) or normal (normal equations).' }),
+      .meta({ description: 'Solver: qr (QR factorisation) or normal (normal equations).' }),
     schema: identifier('a schema name', 'Schema that receives the result tables.').default('rowfold'),
     read: z
       .enum(['copy', 'rows'])

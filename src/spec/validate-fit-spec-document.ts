@@ -10,7 +10,7 @@ type Path = readonly (string | number)[];
  * {@link fitSpecSchema} and turns zod's issues into located-by-path spec problems:
  * one problem per unknown key (pointing at the key, with a "did you mean" suggestion
  * when a known key is close), the matching branch's problems for a value that fits
- * one alternative of a union in shape, "missing required key" for absent keys, and
+ * one alternative of a union in shape, "required key is missing" for absent keys, and
  * the offending value appended to every other message (`…, got "svd"`).
  *
  * @example
@@ -82,7 +82,7 @@ function toProblems(issue: z.core.$ZodIssue, base: Path, data: unknown): SpecPro
   const value = valueAt(data, path);
   const last = path[path.length - 1];
   if (value === undefined && typeof last === 'string' && isMapping(valueAt(data, path.slice(0, -1)))) {
-    return [{ path, message: `missing required key "${last}"` }];
+    return [{ path, message: 'required key is missing' }];
   }
   let message = `${issue.message}, got ${describeValue(value)}`;
   if (issue.code === 'invalid_value' && typeof value === 'string') {
