@@ -1,0 +1,16 @@
+import { Kysely, PostgresDialect } from 'kysely';
+import type pg from 'pg';
+import type { StoreDatabase } from './store-database.js';
+
+/**
+ * A kysely instance over a node-postgres pool, typed with the result schema.
+ *
+ * `db.destroy()` ends the pool: destroy the instance instead of ending the pool yourself.
+ *
+ * @example
+ * const db = createStoreDb(new pg.Pool({ connectionString: url }));
+ * try { await migrate(db); } finally { await db.destroy(); }
+ */
+export function createStoreDb(pool: pg.Pool): Kysely<StoreDatabase> {
+  return new Kysely<StoreDatabase>({ dialect: new PostgresDialect({ pool }) });
+}

@@ -1,0 +1,45 @@
+import type { Kysely } from 'kysely';
+import { checkSchemaName } from './schema-name.js';
+import type { StoreDatabase } from './store-database.js';
+
+/** What is known about a run when it starts. */
+export interface RunStart {
+  readonly fitName: string;
+  /** Hash of the normalised fit spec. */
+  readonly specHash: string;
+  /** The fit spec as used by the run. */
+  readonly specText: string;
+  /** The generated SQL query that yields the design rows. */
+  readonly designQuery: string;
+  /** Version of rowfold. */
+  readonly toolVersion: string;
+}
+
+/**
+ * Records the start of a run (status `running`) and returns its id. The row is committed on
+ * its own, before any work, so a run that crashes stays visible as running and one that fails
+ * can be marked failed.
+ *
+ * @example
+ * const runId = await startRun(db, 'rowfold', { fitName: 'feeder_load', specHash, specText, designQuery, toolVersion });
+ */
+export async function startRun(db: Kysely<StoreDatabase>, schema: string, run: RunStart): Promise<number> {
+  checkSchemaName(schema);
+  if (db.isTransaction) {
+    throw new TypeError('startRun needs a Kysely instance, not a transaction: the running row must commit on its own');
+  }
+  const row = await db
+    .withSchema(schema)
+    .insertInto('runs')
+    .values({
+      fit_name: run.fitName,
+      spec_hash: run.specHash,
+      spec_text: run.specText,
+      design_query: run.designQuery,
+      tool_version: run.toolVersion,
+      status: 'running',
+    })
+    .returning('run_id')
+    .executeTakeFirstOrThrow();
+  return Number(row.run_id);
+}
