@@ -1,34 +1,49 @@
 import yargs from 'yargs';
-import { hideBin } from 'yargs/helpers';
+import type { Argv } from 'yargs';
 import { FitInputError } from '../fit/fit-input-error.js';
+import { PlanError } from '../plan/plan-error.js';
+import { SpecFileError } from '../run/run-fit.js';
+import { SpecError } from '../spec/spec-error.js';
+import { maskSecrets } from '../store/mask-secrets.js';
 import { CliError, ExitCode } from './exit-codes.js';
+import { fitCommand } from './fit-command.js';
 import { fitCsvCommand } from './fit-csv-command.js';
+
+const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand];
 
 /**
  * Entry point of the `rowfold` command. Each command lives in its own module; this file
- * only wires them and maps errors to exit codes.
+ * only wires them and maps errors to exit codes and messages (with any password masked).
  */
 export async function main(argv: string[]): Promise<number> {
-  const cli = fitCsvCommand(
-    yargs(argv)
-      .scriptName('rowfold')
-      .strict()
-      .demandCommand(1, 'name a command')
-      .help()
-      .version(false)
-      .fail((msg, err) => {
-        // Throwing stops yargs before any handler runs; the catch below prints it.
-        throw err ?? new CliError(`${msg}\n(see rowfold --help)`, ExitCode.usage);
-      }),
-  );
+  const base = yargs(argv)
+    .scriptName('rowfold')
+    .strict()
+    .demandCommand(1, 'name a command')
+    .help()
+    .version(false)
+    .fail((msg, err) => {
+      // Throwing stops yargs before any handler runs; the catch below prints it.
+      throw err ?? new CliError(`${msg}\n(see rowfold --help)`, ExitCode.usage);
+    });
+  const cli = COMMANDS.reduce((y, add) => add(y), base);
   try {
     await cli.parseAsync();
     return ExitCode.ok;
   } catch (e) {
-    const code = e instanceof CliError ? e.exitCode : ExitCode.failed;
-    const kind = e instanceof FitInputError ? 'bad data' : 'error';
-    process.stderr.write(`rowfold: ${kind}: ${e instanceof Error ? e.message : String(e)}\n`);
+    const { code, text } = describeFailure(e);
+    process.stderr.write(`rowfold: ${maskSecrets(text)}\n`);
     return code;
   }
 }
 
+function describeFailure(e: unknown): { code: number; text: string } {
+  const message = e instanceof Error ? e.message : String(e);
+  if (e instanceof CliError) return { code: e.exitCode, text: message };
+  if (e instanceof SpecFileError) return { code: ExitCode.usage, text: message };
+  if (e instanceof SpecError) return { code: ExitCode.usage, text: `bad spec: ${message}` };
+  if (e instanceof PlanError) return { code: ExitCode.usage, text: `spec does not fit the source: ${message}` };
+  if (e instanceof FitInputError) return { code: ExitCode.failed, text: `bad data: ${message}` };
+  const sqlstate = (e as { code?: unknown }).code;
+  return { code: ExitCode.failed, text: typeof sqlstate === 'string' ? `error: ${message} (SQLSTATE ${sqlstate})` : `error: ${message}` };
+}

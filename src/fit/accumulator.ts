@@ -1,3 +1,4 @@
+import { choleskyPacked, gramUpdate } from '../numeric/gram-update.js';
 import { householderFold } from '../numeric/householder-fold.js';
 import { packedLength, packedRowStart } from '../numeric/packed.js';
 import type { RowBlock } from '../numeric/row-block.js';
@@ -16,12 +17,21 @@ export interface DesignShape {
   readonly intercept: boolean;
 }
 
+/**
+ * How rows are folded: `qr` keeps the R factor (default, accurate on ill-conditioned
+ * data); `normal` accumulates the Gram matrix [X y]ᵀW[X y] and takes its Cholesky factor
+ * when read — cheaper per row, but it squares the condition number.
+ */
+export type FoldMethod = 'qr' | 'normal';
+
 /** Everything an accumulator holds, in plain form, for storage and transfer. */
 export interface AccumulatorState {
   /** Order of the augmented factor: design columns (with intercept) + 1. */
   readonly order: number;
-  /** Packed upper-triangular R of [X·√w | y·√w]. */
+  /** Packed upper-triangular R of [X·√w | y·√w] (for `normal`, the packed Gram matrix). */
   readonly factor: Float64Array;
+  /** How the factor was accumulated. */
+  readonly method: FoldMethod;
   /** Rows folded with a positive weight. */
   readonly rows: number;
   /** Rows seen with weight exactly zero (left out of the fit, counted). */
@@ -53,15 +63,19 @@ export class Accumulator {
   readonly order: number;
   /** Segment label used in error messages (optional). */
   readonly label: string | undefined;
+  readonly method: FoldMethod;
+  /** R for `qr`; the Gram matrix for `normal`. */
   private readonly r: Float64Array;
+  private cholesky: Float64Array | undefined;
   private readonly workspace: FoldWorkspace;
   private nRows = 0;
   private nZeroWeight = 0;
   private sumW = 0;
   private sumLogW = 0;
 
-  constructor(shape: DesignShape, options: { label?: string; workspace?: FoldWorkspace } = {}) {
+  constructor(shape: DesignShape, options: { label?: string | undefined; workspace?: FoldWorkspace; method?: FoldMethod } = {}) {
     this.shape = shape;
+    this.method = options.method ?? 'qr';
     this.order = shape.terms.length + (shape.intercept ? 1 : 0) + 1;
     this.label = options.label;
     this.workspace = options.workspace ?? sharedWorkspace;
@@ -93,9 +107,11 @@ export class Accumulator {
     return this.sumLogW;
   }
 
-  /** The packed factor (read-only view; do not modify). */
+  /** The packed R factor (read-only view; do not modify). */
   get factor(): Float64Array {
-    return this.r;
+    if (this.method === 'qr') return this.r;
+    this.cholesky ??= choleskyPacked(this.order, this.r);
+    return this.cholesky;
   }
 
   /**
@@ -125,7 +141,7 @@ export class Accumulator {
    * earlier runs combine in any order.
    */
   merge(other: Accumulator): void {
-    if (other.order !== this.order || other.shape.intercept !== this.shape.intercept) {
+    if (other.order !== this.order || other.shape.intercept !== this.shape.intercept || other.method !== this.method) {
       throw new FitInputError(
         `cannot merge a factor of order ${other.order} into one of order ${this.order}: the models differ`,
         this.errorContext(),
@@ -143,6 +159,7 @@ export class Accumulator {
     return {
       order: this.order,
       factor: this.r.slice(),
+      method: this.method,
       rows: this.nRows,
       zeroWeightRows: this.nZeroWeight,
       sumWeights: this.sumW,
@@ -152,7 +169,7 @@ export class Accumulator {
 
   /** Merges a stored state (for example a partial factor from another worker). */
   mergeState(state: AccumulatorState): void {
-    if (state.order !== this.order || state.factor.length !== this.r.length) {
+    if (state.order !== this.order || state.factor.length !== this.r.length || state.method !== this.method) {
       throw new FitInputError(
         `stored factor has order ${state.order}; this model needs ${this.order}`,
         this.errorContext(),
@@ -167,7 +184,7 @@ export class Accumulator {
 
   /** A new accumulator with the same shape and a copy of this one's state. */
   clone(): Accumulator {
-    const copy = new Accumulator(this.shape, { label: this.label, workspace: this.workspace });
+    const copy = new Accumulator(this.shape, { label: this.label, workspace: this.workspace, method: this.method });
     copy.mergeState(this.state());
     return copy;
   }
@@ -234,6 +251,8 @@ export class Accumulator {
     const m = FoldWorkspace.rowsFor(n);
     const buf = this.workspace.take(m * n);
     const yCol = (n - 1) * m;
+    const kernel = this.method === 'qr' ? householderFold : gramUpdate;
+    this.cholesky = undefined;
     let fill = 0;
     for (let row = from; row < to; row++) {
       const base = row * width;
@@ -251,15 +270,21 @@ export class Accumulator {
       this.sumW += w;
       if (weighted) this.sumLogW += Math.log(w);
       if (++fill === m) {
-        householderFold(n, this.r, buf, m, m);
+        kernel(n, this.r, buf, m, m);
         fill = 0;
       }
     }
-    if (fill > 0) householderFold(n, this.r, buf, fill, m);
+    if (fill > 0) kernel(n, this.r, buf, fill, m);
   }
 
   private mergeFactor(other: Float64Array): void {
     const n = this.order;
+    this.cholesky = undefined;
+    if (this.method === 'normal') {
+      // Gram matrices add.
+      for (let i = 0; i < other.length; i++) this.r[i] = this.r[i]! + other[i]!;
+      return;
+    }
     const buf = this.workspace.take(n * n);
     // R_other as n dense rows in column-major order (zeros below its diagonal).
     buf.fill(0, 0, n * n);

@@ -1,0 +1,124 @@
+import type { RowBlock } from '../numeric/row-block.js';
+import { Accumulator } from './accumulator.js';
+import type { DesignShape, FoldMethod } from './accumulator.js';
+
+/** One segment's accumulator with its key. */
+export interface SegmentState {
+  /** Values of the segment columns (empty without segmentation). */
+  readonly key: readonly (string | null)[];
+  /** Stable text form of the key: the JSON array of its values. */
+  readonly keyText: string;
+  readonly acc: Accumulator;
+}
+
+/** A block whose rows carry a segment key id (as a decoded COPY block does). */
+export interface KeyedBlock extends RowBlock {
+  readonly keys: Int32Array;
+}
+
+/**
+ * One accumulator per segment, fed with keyed blocks. Each reader (partition) feeds its
+ * own instance, because key ids belong to the reader's key table; instances merge by
+ * key text at the end.
+ */
+export class SegmentedFit {
+  readonly shape: DesignShape;
+  /** Names of the segment columns, for labels in error messages. */
+  readonly keyNames: readonly string[];
+  readonly method: FoldMethod;
+  private readonly segments = new Map<string, SegmentState>();
+  /** Key id → segment, for the key table of the reader feeding this instance. */
+  private byId: (SegmentState | undefined)[] = [];
+  private order = new Int32Array(0);
+  private reordered = new Float64Array(0);
+
+  constructor(shape: DesignShape, keyNames: readonly string[] = [], method: FoldMethod = 'qr') {
+    this.shape = shape;
+    this.keyNames = keyNames;
+    this.method = method;
+  }
+
+  /** Number of segments seen so far. */
+  get size(): number {
+    return this.segments.size;
+  }
+
+  /** Segments in order of their key text. */
+  states(): SegmentState[] {
+    return [...this.segments.values()].sort((a, b) => (a.keyText < b.keyText ? -1 : a.keyText > b.keyText ? 1 : 0));
+  }
+
+  /**
+   * Folds a block: rows are grouped by segment (contiguous runs are folded in place; a
+   * block that interleaves many segments is first sorted by key with a counting sort).
+   */
+  consume(block: KeyedBlock, keyTable: ReadonlyArray<ReadonlyArray<string | null>>): void {
+    const n = block.rows;
+    if (n === 0) return;
+    const keys = block.keys;
+    let runs = 1;
+    for (let i = 1; i < n; i++) if (keys[i] !== keys[i - 1]) runs++;
+    if (runs * 8 <= n) {
+      let start = 0;
+      for (let i = 1; i <= n; i++) {
+        if (i === n || keys[i] !== keys[start]) {
+          this.segment(keys[start]!, keyTable).acc.fold(block, start, i);
+          start = i;
+        }
+      }
+      return;
+    }
+    // Counting sort of the rows by key id into a reused buffer.
+    const ids = keyTable.length;
+    const counts = new Int32Array(ids + 1);
+    for (let i = 0; i < n; i++) counts[keys[i]! + 1]!++;
+    for (let k = 0; k < ids; k++) counts[k + 1]! += counts[k]!;
+    const width = block.width;
+    if (this.order.length < n) this.order = new Int32Array(n);
+    if (this.reordered.length < n * width) this.reordered = new Float64Array(n * width);
+    const starts = counts.slice(0, ids);
+    for (let i = 0; i < n; i++) {
+      const pos = starts[keys[i]!]!++;
+      this.reordered.set(block.values.subarray(i * width, (i + 1) * width), pos * width);
+    }
+    const sorted: RowBlock = { rows: n, width, values: this.reordered };
+    for (let k = 0; k < ids; k++) {
+      const from = counts[k]!;
+      const to = counts[k + 1]!;
+      if (to > from) this.segment(k, keyTable).acc.fold(sorted, from, to);
+    }
+  }
+
+  /** Merges another instance (another partition) into this one, segment by segment. */
+  merge(other: SegmentedFit): void {
+    for (const s of other.segments.values()) {
+      const mine = this.segments.get(s.keyText);
+      if (mine) mine.acc.merge(s.acc);
+      else this.segments.set(s.keyText, s);
+    }
+  }
+
+  /** Makes sure a segment exists (for example one known from earlier state). */
+  ensure(key: readonly (string | null)[]): SegmentState {
+    const keyText = JSON.stringify(key);
+    let s = this.segments.get(keyText);
+    if (!s) {
+      const label =
+        this.keyNames.length === 0 ? undefined : this.keyNames.map((n, i) => `${n}=${key[i] ?? 'NULL'}`).join(', ');
+      s = { key, keyText, acc: new Accumulator(this.shape, { label, method: this.method }) };
+      this.segments.set(keyText, s);
+    }
+    return s;
+  }
+
+  private segment(id: number, keyTable: ReadonlyArray<ReadonlyArray<string | null>>): SegmentState {
+    let s = this.byId[id];
+    if (s === undefined) {
+      const key = keyTable[id];
+      if (key === undefined) throw new RangeError(`key id ${id} is not in the key table`);
+      s = this.ensure(key);
+      this.byId[id] = s;
+    }
+    return s;
+  }
+}

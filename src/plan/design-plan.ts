@@ -1,0 +1,102 @@
+import type { FitSpec } from '../spec/fit-spec.js';
+import type { FloatCast } from './check-expression-types.js';
+import type { CategoricalLevels } from './resolve-levels.js';
+import { SOURCE_ALIAS, sourceRelation } from './source-relation.js';
+import { SqlTemplate, quoteIdent } from './sql-template.js';
+
+/** One float8 column of the design query. */
+interface DesignColumn {
+  readonly name: string;
+  /** Spec name the column derives from (term, categorical column, response, weight). */
+  readonly origin: string;
+  readonly sql: SqlTemplate;
+}
+
+/** Everything the reader and the fit need to know about the design query. */
+export interface DesignPlan {
+  /** Design column names, intercept excluded, in order. */
+  readonly columns: readonly string[];
+  /** Value columns of the query: design columns, then response, then weight. */
+  readonly valueNames: readonly string[];
+  /** Per value column, the spec name it derives from (for skip counts by column). */
+  readonly origins: readonly string[];
+  /** Segment columns (the query's leading text columns). */
+  readonly keyNames: readonly string[];
+  readonly levels: readonly CategoricalLevels[];
+  /** One design query per partition (a single one without partitions). */
+  readonly queries: readonly SqlTemplate[];
+}
+
+/**
+ * Builds the design query: segment columns as text, then every design column as float8
+ * (terms as written, one 0/1 indicator per non-reference level, products for
+ * interactions), the response and the weight, from the source, once per partition
+ * predicate. Without an intercept the first categorical keeps all its levels, so the
+ * model still spans a constant.
+ */
+export function buildDesignPlan(
+  spec: FitSpec,
+  casts: ReadonlyMap<string, FloatCast>,
+  levels: readonly CategoricalLevels[],
+  partitions: readonly SqlTemplate[] | null,
+): DesignPlan {
+  const termCols: DesignColumn[] = spec.terms.map((t, i) => ({
+    name: t.name,
+    origin: t.name,
+    sql: new SqlTemplate([`(${t.sql})${casts.get(`terms[${i}]`) ?? '::float8'}`]),
+  }));
+  const catCols = new Map<string, DesignColumn[]>();
+  levels.forEach((l, i) => {
+    const col = `${SOURCE_ALIAS}.${quoteIdent(l.column)}`;
+    const keepAll = !spec.intercept && i === 0;
+    catCols.set(
+      l.column,
+      l.levels
+        .filter((v) => keepAll || v !== l.reference)
+        .map((v) => ({
+          name: `${l.column}=${v}`,
+          origin: l.column,
+          sql: new SqlTemplate([`(${col}::text = `, { value: v }, ')::int::float8']),
+        })),
+    );
+  });
+  const columnsOf = (f: { kind: 'term' | 'categorical'; name: string }): DesignColumn[] =>
+    f.kind === 'term' ? termCols.filter((c) => c.name === f.name) : (catCols.get(f.name) ?? []);
+  const interactionCols: DesignColumn[] = [];
+  for (const [a, b] of spec.interactions) {
+    for (const ca of columnsOf(a)) {
+      for (const cb of columnsOf(b)) {
+        interactionCols.push({
+          name: `${ca.name}*${cb.name}`,
+          origin: `${ca.origin}*${cb.origin}`,
+          sql: SqlTemplate.join(['(', ca.sql, ' * ', cb.sql, ')']),
+        });
+      }
+    }
+  }
+  const design = [...termCols, ...[...catCols.values()].flat(), ...interactionCols];
+  const values: DesignColumn[] = [
+    ...design,
+    { name: spec.response, origin: spec.response, sql: new SqlTemplate([`(${spec.response})${casts.get('response') ?? '::float8'}`]) },
+  ];
+  if (spec.weight !== null) {
+    values.push({ name: spec.weight, origin: spec.weight, sql: new SqlTemplate([`(${spec.weight})${casts.get('weight') ?? '::float8'}`]) });
+  }
+
+  const select: (SqlTemplate | string)[] = ['SELECT '];
+  const items: SqlTemplate[] = [
+    ...spec.segmentBy.map((c, i) => new SqlTemplate([`${SOURCE_ALIAS}.${quoteIdent(c)}::text AS ${quoteIdent(`k${i}`)}`])),
+    ...values.map((v, i) => SqlTemplate.join([v.sql, ` AS ${quoteIdent(`v${i}`)}`])),
+  ];
+  select.push(SqlTemplate.join(items, ',\n       '), '\n  FROM ', sourceRelation(spec));
+  const base = SqlTemplate.join(select);
+  const queries = (partitions ?? [null]).map((p) => (p === null ? base : SqlTemplate.join([base, '\n WHERE ', p])));
+  return {
+    columns: design.map((c) => c.name),
+    valueNames: values.map((v) => v.name),
+    origins: values.map((v) => v.origin),
+    keyNames: [...spec.segmentBy],
+    levels,
+    queries,
+  };
+}

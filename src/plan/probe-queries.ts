@@ -1,0 +1,66 @@
+import type { FitSpec } from '../spec/fit-spec.js';
+import { sourceRelation } from './source-relation.js';
+import { SqlTemplate, quoteIdent } from './sql-template.js';
+
+/** One expression of the spec whose SQL type the planner must know, with its spec key. */
+export interface ProbedExpression {
+  /** Spec key, e.g. `terms[1]`, `response`, `categorical[0]`. */
+  readonly key: string;
+  /** Human name: the term name, column or expression. */
+  readonly name: string;
+  /** What the fit needs of it. */
+  readonly role: 'term' | 'response' | 'weight' | 'segment' | 'categorical' | 'partition';
+  /** SQL as it goes into the select list. */
+  readonly sql: string;
+}
+
+/** Every expression of the spec the design query will evaluate, in a stable order. */
+export function probedExpressions(spec: FitSpec): ProbedExpression[] {
+  const out: ProbedExpression[] = [];
+  spec.terms.forEach((t, i) => out.push({ key: `terms[${i}]`, name: t.name, role: 'term', sql: t.sql }));
+  out.push({ key: 'response', name: spec.response, role: 'response', sql: spec.response });
+  if (spec.weight !== null) out.push({ key: 'weight', name: spec.weight, role: 'weight', sql: spec.weight });
+  spec.segmentBy.forEach((c, i) =>
+    out.push({ key: `segment_by[${i}]`, name: c, role: 'segment', sql: quoteIdent(c) }),
+  );
+  spec.categorical.forEach((c, i) =>
+    out.push({ key: `categorical[${i}]`, name: c.column, role: 'categorical', sql: quoteIdent(c.column) }),
+  );
+  if (spec.partitionKey !== null) {
+    out.push({ key: 'partition_key', name: spec.partitionKey, role: 'partition', sql: quoteIdent(spec.partitionKey) });
+  }
+  return out;
+}
+
+/**
+ * A query that evaluates the given expressions over the source without reading a row
+ * (`LIMIT 0`), so the server reports their types, or the error that one of them raises.
+ */
+export function probeQuery(spec: FitSpec, expressions: readonly ProbedExpression[]): SqlTemplate {
+  const list = expressions.map((e, i) => `(${e.sql}) AS ${quoteIdent(`e${i}`)}`).join(',\n       ');
+  return SqlTemplate.join([`SELECT ${list.length > 0 ? list : '1'}\n  FROM `, sourceRelation(spec), '\n LIMIT 0']);
+}
+
+/**
+ * The distinct non-NULL values of a categorical column in the column's own order (so
+ * hours sort 0, 1, 2 … 10, not as text), each with its text form; one more than the cap
+ * so the planner can tell when the cap is exceeded.
+ */
+export function levelQuery(spec: FitSpec, column: string, cap: number): SqlTemplate {
+  const c = `${quoteIdent('rowfold_src')}.${quoteIdent(column)}`;
+  return SqlTemplate.join([
+    `SELECT DISTINCT ${c}, ${c}::text\n  FROM `,
+    sourceRelation(spec),
+    `\n WHERE ${c} IS NOT NULL\n ORDER BY 1\n LIMIT `,
+    { value: cap + 1 },
+  ]);
+}
+
+/** The number of heap pages of a table source, for splitting it by ctid ranges. */
+export function tablePagesQuery(qualifiedName: string): SqlTemplate {
+  return new SqlTemplate([
+    "SELECT (pg_relation_size(",
+    { value: qualifiedName },
+    "::regclass) / current_setting('block_size')::bigint)::float8",
+  ]);
+}

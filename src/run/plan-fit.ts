@@ -1,0 +1,66 @@
+import type pg from 'pg';
+import { checkExpressionTypes } from '../plan/check-expression-types.js';
+import { buildDesignPlan } from '../plan/design-plan.js';
+import type { DesignPlan } from '../plan/design-plan.js';
+import { partitionPredicates } from '../plan/partition-predicates.js';
+import { PlanError } from '../plan/plan-error.js';
+import { levelQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
+import { resolveLevels } from '../plan/resolve-levels.js';
+import type { CategoricalLevels } from '../plan/resolve-levels.js';
+import { sourceTableName } from '../plan/source-relation.js';
+import { describeQuery, queryAll } from '../source/query-helpers.js';
+import type { FitSpec } from '../spec/fit-spec.js';
+
+/**
+ * Plans a fit against the live source: checks the type of every expression (finding the
+ * culprit when the server rejects one), discovers categorical levels, and cuts the
+ * source into `parallel` partitions.
+ */
+export async function planFit(client: pg.ClientBase, spec: FitSpec, parallel: number): Promise<DesignPlan> {
+  const expressions = probedExpressions(spec);
+  let types: string[];
+  try {
+    types = (await describeQuery(client, probeQuery(spec, expressions))).map((f) => f.typeName);
+  } catch (e) {
+    throw await locateProbeFailure(client, spec, expressions, e);
+  }
+  const casts = checkExpressionTypes(expressions, types);
+  const levels: CategoricalLevels[] = [];
+  for (const [i, cat] of spec.categorical.entries()) {
+    const rows = await queryAll(client, levelQuery(spec, cat.column, cat.maxLevels));
+    levels.push(resolveLevels(cat, i, rows));
+  }
+  let pages: number | null = null;
+  const table = sourceTableName(spec);
+  if (parallel > 1 && spec.partitionKey === null && table !== null) {
+    const rows = await queryAll(client, tablePagesQuery(table));
+    pages = Number(rows[0]?.[0] ?? 0);
+  }
+  return buildDesignPlan(spec, casts, levels, partitionPredicates(spec, parallel, pages));
+}
+
+/**
+ * The probe of all expressions failed: probe the source alone, then each expression, to
+ * name the spec key at fault in the error.
+ */
+async function locateProbeFailure(
+  client: pg.ClientBase,
+  spec: FitSpec,
+  expressions: ReturnType<typeof probedExpressions>,
+  error: unknown,
+): Promise<Error> {
+  const reason = (e: unknown) => (e instanceof Error ? e.message : String(e));
+  try {
+    await describeQuery(client, probeQuery(spec, []));
+  } catch (e) {
+    return new PlanError('source', `the source does not run: ${reason(e)}`, { cause: e });
+  }
+  for (const expr of expressions) {
+    try {
+      await describeQuery(client, probeQuery(spec, [expr]));
+    } catch (e) {
+      return new PlanError(expr.key, `${expr.role} ${expr.name} does not evaluate over the source: ${reason(e)}`, { cause: e });
+    }
+  }
+  return error instanceof Error ? error : new Error(String(error));
+}

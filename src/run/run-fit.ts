@@ -1,0 +1,225 @@
+import pg from 'pg';
+import { normalEquationsProblem } from '../fit/check-normal-equations.js';
+import type { FitSolution } from '../fit/fit-solution.js';
+import { SegmentedFit } from '../fit/segmented-fit.js';
+import { solve } from '../fit/solve.js';
+import type { DesignPlan } from '../plan/design-plan.js';
+import { resolveConnection } from '../source/connection-target.js';
+import { readDesign } from '../source/read-design.js';
+import type { DesignReadCounts } from '../source/read-design.js';
+import { loadFitSpec } from '../spec/load-fit-spec.js';
+import type { FitSpec } from '../spec/fit-spec.js';
+import { SpecError } from '../spec/spec-error.js';
+import { createStoreDb, failRun, migrate, publishRun, startRun } from '../store/index.js';
+import type { ModelRecord } from '../store/index.js';
+import { planFit } from './plan-fit.js';
+import { toolVersion } from './tool-version.js';
+
+/** The spec file could not be read (missing, unreadable): a usage error, not a failed fit. */
+export class SpecFileError extends Error {
+  override readonly name = 'SpecFileError';
+}
+
+/** What `rowfold fit` was asked to do. */
+export interface RunFitRequest {
+  readonly specPath: string;
+  /** `--db URL`; otherwise DATABASE_URL, then the PG* variables. */
+  readonly db?: string | undefined;
+  readonly env?: NodeJS.ProcessEnv;
+  readonly parallel?: number;
+  /** Overrides the spec's `read`. */
+  readonly read?: 'copy' | 'rows' | undefined;
+  readonly dryRun?: boolean;
+  /** Called now and then while rows stream. */
+  readonly onProgress?: (p: { rowsRead: number; segments: number; seconds: number }) => void;
+}
+
+/** One published model. */
+export interface FittedModel {
+  readonly segment: Record<string, string | null> | null;
+  readonly segmentKey: string;
+  readonly solution: FitSolution;
+}
+
+/** The outcome of a run (or of a dry run: the plan only). */
+export interface RunFitResult {
+  readonly spec: FitSpec;
+  readonly plan: DesignPlan;
+  readonly connection: string;
+  readonly runId: number | null;
+  readonly rowsRead: number;
+  readonly rowsUsed: number;
+  readonly rowsSkipped: Record<string, number>;
+  readonly seconds: number;
+  readonly models: readonly FittedModel[];
+}
+
+const TOOL_VERSION = toolVersion();
+
+/**
+ * The flow of one fit: spec → plan → read (N partitions over N connections) → fold →
+ * solve → publish in one transaction. A failure after the run has started leaves only
+ * its `runs` row, marked failed with the error.
+ */
+export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
+  const spec = await loadFitSpec(req.specPath).catch((e: unknown) => {
+    if (e instanceof SpecError) throw e;
+    throw new SpecFileError(`cannot read the spec ${req.specPath}: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
+  });
+  const parallel = req.parallel ?? 1;
+  const target = resolveConnection({ db: req.db, env: req.env ?? process.env });
+  const pool = new pg.Pool({ ...target.config, max: parallel + 1 });
+  // An idle client whose backend goes away emits 'error' on the pool; the next query on
+  // it fails and says why, so there is nothing to do here but not crash.
+  pool.on('error', () => undefined);
+  // kysely owns the pool from here: destroying it ends the pool.
+  const db = createStoreDb(pool);
+  try {
+    const planClient = await pool.connect();
+    let plan: DesignPlan;
+    try {
+      plan = await planFit(planClient, spec, parallel);
+      planClient.release();
+    } catch (e) {
+      planClient.release(e instanceof Error ? e : true);
+      throw e;
+    }
+    const base = { spec, plan, connection: target.display };
+    if (req.dryRun) {
+      return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
+    }
+    await migrate(db, spec.schema);
+    const runId = await startRun(db, spec.schema, {
+      fitName: spec.name,
+      specHash: spec.hash,
+      specText: spec.text,
+      designQuery: plan.queries.map((q) => q.toBound().text).join('\n-- next partition --\n'),
+      toolVersion: TOOL_VERSION,
+    });
+    try {
+      const out = await readAndSolve(pool, spec, plan, req);
+      await publishRun(db, spec.schema, runId, {
+        rowsRead: out.rowsRead,
+        rowsUsed: out.rowsUsed,
+        rowsSkipped: out.rowsSkipped,
+        seconds: out.seconds,
+        models: out.models.map(
+          (m): ModelRecord => ({ segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution }),
+        ),
+      });
+      return { ...base, runId, ...out };
+    } catch (e) {
+      await failRun(db, spec.schema, runId, e).catch(() => undefined);
+      throw e;
+    }
+  } finally {
+    await db.destroy();
+  }
+}
+
+async function readAndSolve(
+  pool: pg.Pool,
+  spec: FitSpec,
+  plan: DesignPlan,
+  req: RunFitRequest,
+): Promise<Omit<RunFitResult, 'spec' | 'plan' | 'connection' | 'runId'>> {
+  const started = performance.now();
+  const shape = {
+    terms: plan.columns,
+    response: spec.response,
+    weight: spec.weight ?? undefined,
+    intercept: spec.intercept,
+  };
+  const fits = plan.queries.map(() => new SegmentedFit(shape, plan.keyNames, spec.method));
+  let rowsSoFar = 0;
+  let lastReport = started;
+  const counts = await Promise.all(
+    plan.queries.map(async (query, i) => {
+      const client = await pool.connect();
+      // A checked-out client reports a lost connection as an 'error' event as well as
+      // through the stream that broke; the stream's rejection is the one we act on.
+      const ignore = () => undefined;
+      client.on('error', ignore);
+      try {
+        const c = await readDesign(
+          client,
+          {
+            query,
+            keyNames: plan.keyNames,
+            valueNames: plan.valueNames,
+            mode: req.read ?? spec.read,
+            nonFinite: spec.nonFinite === 'skip' ? 'skip' : 'pass',
+          },
+          (block, keyTable) => {
+            fits[i]!.consume(block, keyTable);
+            rowsSoFar += block.rows;
+            const now = performance.now();
+            if (req.onProgress && now - lastReport > 250) {
+              lastReport = now;
+              req.onProgress({ rowsRead: rowsSoFar, segments: fits.reduce((s, f) => s + f.size, 0), seconds: (now - started) / 1000 });
+            }
+          },
+        );
+        client.off('error', ignore);
+        client.release();
+        return c;
+      } catch (e) {
+        // A client whose stream broke is discarded, not returned to the pool.
+        client.off('error', ignore);
+        client.release(e instanceof Error ? e : true);
+        throw e;
+      }
+    }),
+  );
+  const rowsRead = counts.reduce((s, c) => s + c.rowsRead, 0);
+  if (rowsRead === 0) throw new Error('the source returned no rows; there is nothing to fit');
+  const all = fits[0]!;
+  for (const f of fits.slice(1)) all.merge(f);
+  if (plan.keyNames.length === 0) all.ensure([]);
+
+  const models: FittedModel[] = [];
+  let rowsUsed = 0;
+  let zeroWeight = 0;
+  for (const s of all.states()) {
+    const solution = solve(s.acc, { confidence: spec.confidence });
+    if (spec.method === 'normal') {
+      const problem = normalEquationsProblem(solution);
+      if (problem !== null) throw new Error(`${s.acc.label === undefined ? '' : `segment ${s.acc.label}: `}${problem}`);
+    }
+    rowsUsed += solution.rows;
+    zeroWeight += solution.zeroWeightRows;
+    const segment =
+      plan.keyNames.length === 0 ? null : Object.fromEntries(plan.keyNames.map((n, i) => [n, s.key[i] ?? null]));
+    models.push({ segment, segmentKey: plan.keyNames.length === 0 ? '' : s.keyText, solution });
+  }
+  return {
+    rowsRead,
+    rowsUsed,
+    rowsSkipped: skippedByReason(plan, counts, zeroWeight),
+    seconds: (performance.now() - started) / 1000,
+    models,
+  };
+}
+
+/**
+ * Skip counts by reason and spec name. A NULL category makes every indicator of that
+ * column NULL at once, so counts of columns with the same origin are combined by their
+ * maximum rather than their sum.
+ */
+function skippedByReason(plan: DesignPlan, counts: readonly DesignReadCounts[], zeroWeight: number): Record<string, number> {
+  const out: Record<string, number> = {};
+  const add = (reason: string, byColumn: (c: DesignReadCounts) => Record<string, number>) => {
+    for (const c of counts) {
+      const perOrigin = new Map<string, number>();
+      plan.valueNames.forEach((name, j) => {
+        const origin = plan.origins[j]!;
+        perOrigin.set(origin, Math.max(perOrigin.get(origin) ?? 0, byColumn(c)[name] ?? 0));
+      });
+      for (const [origin, n] of perOrigin) if (n > 0) out[`${reason}:${origin}`] = (out[`${reason}:${origin}`] ?? 0) + n;
+    }
+  };
+  add('null', (c) => c.nullCounts);
+  add('non_finite', (c) => c.nonFiniteCounts);
+  if (zeroWeight > 0) out.zero_weight = zeroWeight;
+  return out;
+}
