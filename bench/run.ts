@@ -1,5 +1,7 @@
 import { writeFileSync } from 'node:fs';
 import os from 'node:os';
+import { benchEndToEnd } from './e2e-bench.js';
+import type { EndToEndFigure } from './e2e-bench.js';
 import { benchKernels } from './kernel-bench.js';
 import type { KernelFigure } from './kernel-bench.js';
 
@@ -20,7 +22,22 @@ for (const p of [20, 50, 200]) {
 }
 const fold200 = kernels.find((k) => k.kernel === 'fold' && k.p === 200)!;
 console.log(`fold at p = 200: ${fold200.gflops.toFixed(2)} GFLOP/s (target ≥ 2.9: ratio ${(fold200.gflops / 2.9).toFixed(2)})`);
+const e2e: EndToEndFigure[] = [];
+console.log('\nend to end from PostgreSQL (medians of 3; floor: psql COPY of the same design query to /dev/null)');
+for (const parallel of [1, 2]) {
+  try {
+    const e = await benchEndToEnd(1_000_000, 50, parallel);
+    e2e.push(e);
+    console.log(
+      `${e.workload} · ${e.rows.toLocaleString('en-US')} rows × ${e.terms} terms · ${parallel} connection(s): ` +
+        `fit ${e.fitSeconds.toFixed(2)} s, COPY floor ${e.copyFloorSeconds.toFixed(2)} s, ratio ${e.ratio.toFixed(2)}, peak RSS ${e.peakRssMb.toFixed(0)} MB`,
+    );
+  } catch (err) {
+    console.log(`end-to-end case skipped: ${err instanceof Error ? err.message : String(err)}`);
+    break;
+  }
+}
 writeFileSync(
   new URL('../../bench/results.json', import.meta.url),
-  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels }, null, 2) + '\n',
+  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, e2e }, null, 2) + '\n',
 );

@@ -1,0 +1,96 @@
+import { spawnSync } from 'node:child_process';
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import pg from 'pg';
+import { runFit } from '../src/run/run-fit.js';
+
+/** Figures of one end-to-end workload. */
+export interface EndToEndFigure {
+  readonly workload: string;
+  readonly rows: number;
+  readonly terms: number;
+  readonly parallel: number;
+  /** psql running the same design query as COPY … TO STDOUT (FORMAT binary) into /dev/null. */
+  readonly copyFloorSeconds: number;
+  readonly fitSeconds: number;
+  readonly ratio: number;
+  readonly peakRssMb: number;
+}
+
+const HOST = process.env['PGHOST'] ?? '127.0.0.1';
+const USER = process.env['PGUSER'] ?? 'postgres';
+const DB = 'rowfold_bench';
+
+function url(db: string): string {
+  return `postgres://${encodeURIComponent(USER)}@${HOST}:${process.env['PGPORT'] ?? 5432}/${db}`;
+}
+
+async function ensureTable(rows: number, terms: number): Promise<string> {
+  const admin = new pg.Client({ connectionString: url('postgres') });
+  await admin.connect();
+  const exists = await admin.query('select 1 from pg_database where datname = $1', [DB]);
+  if (exists.rowCount === 0) await admin.query(`create database ${DB}`);
+  await admin.end();
+  const table = `t${rows}x${terms}`;
+  const c = new pg.Client({ connectionString: url(DB) });
+  await c.connect();
+  try {
+    const have = await c.query('select 1 from pg_class where relname = $1', [table]);
+    if (have.rowCount === 0) {
+      console.log(`creating ${table} (${rows.toLocaleString('en-US')} rows × ${terms} terms) …`);
+      const cols = Array.from({ length: terms }, (_, j) => `random() as x${j + 1}`).join(', ');
+      await c.query(`create table ${table} as select ${cols}, random() as y from generate_series(1, ${rows})`);
+      await c.query(`vacuum analyze ${table}`);
+    }
+  } finally {
+    await c.end();
+  }
+  return table;
+}
+
+function median(xs: number[]): number {
+  const s = [...xs].sort((a, b) => a - b);
+  return s[Math.floor(s.length / 2)]!;
+}
+
+/**
+ * Fit time of `rows × terms` from PostgreSQL against the floor measured in the same run:
+ * psql streaming the very design query as binary COPY into /dev/null.
+ */
+export async function benchEndToEnd(rows: number, terms: number, parallel: number, repeats = 3): Promise<EndToEndFigure> {
+  const table = await ensureTable(rows, terms);
+  const dir = mkdtempSync(join(tmpdir(), 'rowfold-bench-'));
+  const spec = join(dir, 'bench.yaml');
+  writeFileSync(
+    spec,
+    `name: bench_${table}\nsource: ${table}\nresponse: y\nterms: [${Array.from({ length: terms }, (_, j) => `x${j + 1}`).join(', ')}]\n`,
+  );
+  const dry = await runFit({ specPath: spec, db: url(DB), dryRun: true });
+  const query = dry.plan.queries[0]!.toBound().text;
+  const floor: number[] = [];
+  const fit: number[] = [];
+  for (let r = 0; r < repeats; r++) {
+    const t0 = performance.now();
+    const p = spawnSync('psql', ['-X', '-q', '-d', url(DB), '-c', `COPY (${query}) TO STDOUT (FORMAT binary)`], {
+      stdio: ['ignore', 'ignore', 'inherit'],
+    });
+    if (p.status !== 0) throw new Error('psql COPY failed');
+    floor.push((performance.now() - t0) / 1000);
+    const t1 = performance.now();
+    await runFit({ specPath: spec, db: url(DB), parallel });
+    fit.push((performance.now() - t1) / 1000);
+  }
+  const f = median(floor);
+  const s = median(fit);
+  return {
+    workload: `${table} QR`,
+    rows,
+    terms,
+    parallel,
+    copyFloorSeconds: f,
+    fitSeconds: s,
+    ratio: s / f,
+    peakRssMb: process.resourceUsage().maxRSS / 1024,
+  };
+}
