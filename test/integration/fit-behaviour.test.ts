@@ -76,6 +76,37 @@ describe('rowfold fit behaviour', () => {
     });
   });
 
+  it('a query source split by a hash of partition_key equals one connection (1e-10)', async () => {
+    const base = { source: 'select * from obs where grp <> $$tiny$$', response: 'y', terms: ['x', 'z'], segment_by: 'grp', partition_key: 'x' };
+    const one = await runCli(['fit', writeSpec({ name: 'hash1', ...base }), '--db', tdb.url, '--json']);
+    const three = await runCli(['fit', writeSpec({ name: 'hash3', ...base }), '--db', tdb.url, '--json', '--parallel', '3']);
+    expect(one.code, one.stderr).toBe(0);
+    expect(three.code, three.stderr).toBe(0);
+    const a = (JSON.parse(one.stdout) as Doc).models;
+    const b = (JSON.parse(three.stdout) as Doc).models;
+    expect(b.map((m) => m.rows)).toEqual(a.map((m) => m.rows));
+    a.forEach((m, i) =>
+      m.coefficients.forEach((c, j) => {
+        const d = b[i]!.coefficients[j]!;
+        expect(Math.abs(d.estimate! - c.estimate!) / Math.abs(c.estimate!)).toBeLessThan(1e-10);
+      }),
+    );
+  });
+
+  it('rows with NULL in a used column are left out and counted by column', async () => {
+    await admin.query(`create table obs_nulls as select * from obs`);
+    await admin.query(`update obs_nulls set z = null where x in (10, 20, 30)`);
+    await admin.query(`update obs_nulls set grp = null where x in (40, 41)`);
+    await admin.query(`update obs_nulls set y = null where x = 50`);
+    const spec = writeSpec({ name: 'nulls', source: 'obs_nulls', response: 'y', terms: ['x', 'z'], categorical: ['grp'] });
+    const res = await runCli(['fit', spec, '--db', tdb.url, '--json']);
+    expect(res.code, res.stderr).toBe(0);
+    const doc = JSON.parse(res.stdout) as { run: { rows_read: number; rows_used: number; rows_skipped: Record<string, number> } };
+    expect(doc.run).toMatchObject({ rows_read: 300, rows_used: 294, rows_skipped: { 'null:z': 3, 'null:grp': 2, 'null:y': 1 } });
+    const stored = await admin.query(`select rows_skipped from rowfold.runs where fit_name = 'nulls'`);
+    expect(stored.rows[0].rows_skipped).toEqual({ 'null:z': 3, 'null:grp': 2, 'null:y': 1 });
+  });
+
   it('a boolean term is taken as 0/1 and the text summary lists every model', async () => {
     const spec = writeSpec({ name: 'flagged', source: 'obs', response: 'y', terms: ['x', 'flag'] });
     const res = await runCli(['fit', spec, '--db', tdb.url]);
