@@ -1,0 +1,199 @@
+import pg from 'pg';
+import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
+
+import { SqlTemplate } from '../../src/plan/sql-template.js';
+import { DesignReadError } from '../../src/source/design-read-error.js';
+import { readDesign } from '../../src/source/read-design.js';
+import type { BlockSink, DesignReadRequest } from '../../src/source/read-design.js';
+import { withClient } from '../../src/source/with-client.js';
+import { createTestDatabase, PoolTracker } from '../support/pg-database.js';
+import type { TestDatabase } from '../support/pg-database.js';
+
+// How a read that stops early fails, and that the pool survives it: query errors keep their
+// SQLSTATE, a terminated backend rejects with 57P01, a throwing sink and an abort stop the
+// stream, and every broken client is discarded rather than returned to the pool.
+
+const MODES = ['copy', 'rows'] as const;
+
+/**
+ * ~100k rows/s (a 5 ms sleep every 500 rows), far more rows than a test waits for. The series
+ * is in the select list, where it streams; in FROM it would be materialized first.
+ */
+const SLOW = new SqlTemplate([
+  'SELECT (i % 5)::text AS k, i::float8 AS x FROM (SELECT generate_series(1, 10000000) AS i) g ' +
+    "WHERE i % 500 <> 0 OR pg_sleep(0.005)::text = ''",
+]);
+/** A million rows as fast as the server makes them. */
+const FAST = new SqlTemplate(['SELECT (i % 5)::text AS k, i::float8 AS x FROM generate_series(1, 1000000) i']);
+
+function request(query: SqlTemplate, mode: 'copy' | 'rows', extra: Partial<DesignReadRequest> = {}): DesignReadRequest {
+  return { query, keyNames: ['k'], valueNames: ['x'], mode, nonFinite: 'pass', blockRows: 256, ...extra };
+}
+
+/** The settled outcome of a promise: its rejection reason, or undefined when it resolved. */
+function failureOf(promise: Promise<unknown>): Promise<unknown> {
+  return promise.then(
+    () => undefined,
+    (error: unknown) => error,
+  );
+}
+
+/** A sink that signals its first block, and that promise. */
+function firstBlockSignal(): { sink: BlockSink; started: Promise<void> } {
+  let resolve!: () => void;
+  const started = new Promise<void>((r) => (resolve = r));
+  return { sink: () => resolve(), started };
+}
+
+async function backendGone(pool: pg.Pool, pid: number): Promise<boolean> {
+  for (let i = 0; i < 50; i++) {
+    const { rowCount } = await pool.query('SELECT 1 FROM pg_stat_activity WHERE pid = $1', [pid]);
+    if (rowCount === 0) return true;
+    await new Promise((r) => setTimeout(r, 100));
+  }
+  return false;
+}
+
+let tdb: TestDatabase;
+const pools = new PoolTracker();
+
+beforeAll(async () => {
+  tdb = await createTestDatabase('source_fail');
+});
+afterEach(() => pools.closeAll());
+afterAll(() => tdb?.drop());
+
+describe.each(MODES)('%s mode', (mode) => {
+  it('an unknown column rejects with SQLSTATE 42703 kept, the pg error as cause', async () => {
+    const pool = pools.open(tdb.url, 1);
+    const query = new SqlTemplate(['SELECT nope::text AS k, 1::float8 AS x']);
+    const error = await failureOf(withClient(pool, (c) => readDesign(c, request(query, mode), () => {})));
+    expect(error).toBeInstanceOf(DesignReadError);
+    const e = error as DesignReadError;
+    expect(e.code).toBe('42703');
+    expect(e.mode).toBe(mode);
+    expect(e.message).toContain('column "nope" does not exist');
+    expect(e.cause).toBeInstanceOf(pg.DatabaseError);
+    expect((e.cause as pg.DatabaseError).code).toBe('42703');
+    expect((await pool.query('SELECT 1 AS one')).rows).toEqual([{ one: 1 }]);
+  });
+
+  it('an error after rows have streamed (division by zero at row 5000) rejects with 22012', async () => {
+    const pool = pools.open(tdb.url, 1);
+    const query = new SqlTemplate(['SELECT i::text AS k, (1.0 / (5000 - i))::float8 AS x FROM generate_series(1, 10000) i']);
+    let rows = 0;
+    const error = await failureOf(withClient(pool, (c) => readDesign(c, request(query, mode), (b) => void (rows += b.rows))));
+    expect((error as DesignReadError).code).toBe('22012');
+    // Copy mode streams the rows before the failing one; a cursor batch fails as a whole.
+    if (mode === 'copy') expect(rows).toBeGreaterThan(0);
+    expect(rows).toBeLessThan(5000);
+  });
+
+  it('pg_terminate_backend mid-stream rejects with 57P01 and the pool stays usable', async () => {
+    const pool = pools.open(tdb.url, 2);
+    const admin = pools.open(tdb.url, 1);
+    const { sink, started } = firstBlockSignal();
+    let pid = 0;
+    const outcome = failureOf(
+      withClient(pool, async (client) => {
+        pid = (await client.query<{ pid: number }>('SELECT pg_backend_pid() AS pid')).rows[0]!.pid;
+        return readDesign(client, request(SLOW, mode), sink);
+      }),
+    );
+    await Promise.race([started, outcome]);
+    await admin.query('SELECT pg_terminate_backend($1)', [pid]);
+    const error = await outcome;
+    expect(error).toBeInstanceOf(DesignReadError);
+    const e = error as DesignReadError;
+    expect(e.code).toBe('57P01');
+    expect(e.message).toContain('terminating connection due to administrator command');
+    expect(e.rowsRead).toBeGreaterThan(0);
+    // withClient released the client with the error: the pool discarded it.
+    expect(pool.totalCount).toBe(0);
+    expect((await pool.query('SELECT 1 AS one')).rows).toEqual([{ one: 1 }]);
+  });
+
+  it('a sink that throws stops the read with its own error; the stream and backend are freed', async () => {
+    const pool = pools.open(tdb.url, 1);
+    const admin = pools.open(tdb.url, 1);
+    const stop = new Error('sink says stop');
+    let blocks = 0;
+    let pid = 0;
+    const error = await failureOf(
+      withClient(pool, async (client) => {
+        pid = (await client.query<{ pid: number }>('SELECT pg_backend_pid() AS pid')).rows[0]!.pid;
+        return readDesign(client, request(FAST, mode), () => {
+          if (++blocks === 3) throw stop;
+        });
+      }),
+    );
+    expect(error).toBe(stop);
+    expect(blocks).toBe(3);
+    expect(pool.totalCount).toBe(0);
+    // The discarded connection's backend goes away instead of streaming on.
+    expect(await backendGone(admin, pid)).toBe(true);
+    expect((await pool.query('SELECT 1 AS one')).rows).toEqual([{ one: 1 }]);
+  });
+
+  it('an abort signal mid-stream rejects with ABORT_ERR, the reason as cause', async () => {
+    const pool = pools.open(tdb.url, 1);
+    const controller = new AbortController();
+    const { sink, started } = firstBlockSignal();
+    const outcome = failureOf(withClient(pool, (c) => readDesign(c, request(SLOW, mode, { signal: controller.signal }), sink)));
+    await Promise.race([started, outcome]);
+    const reason = new Error('user pressed ctrl-c');
+    controller.abort(reason);
+    const error = await outcome;
+    expect(error).toBeInstanceOf(DesignReadError);
+    expect((error as DesignReadError).code).toBe('ABORT_ERR');
+    expect((error as DesignReadError).cause).toBe(reason);
+    expect((await pool.query('SELECT 1 AS one')).rows).toEqual([{ one: 1 }]);
+  });
+
+  it('an already aborted signal rejects before anything is sent', async () => {
+    const pool = pools.open(tdb.url, 1);
+    const error = await failureOf(
+      withClient(pool, (c) => readDesign(c, request(FAST, mode, { signal: AbortSignal.abort() }), () => {})),
+    );
+    expect((error as DesignReadError).code).toBe('ABORT_ERR');
+    expect((error as DesignReadError).rowsRead).toBe(0);
+  });
+
+  it('a value column that is not float8 is reported by name', async () => {
+    const pool = pools.open(tdb.url, 1);
+    const query = new SqlTemplate(['SELECT i::text AS k, i::int4 AS x FROM generate_series(1, 3) i']);
+    const error = await failureOf(withClient(pool, (c) => readDesign(c, request(query, mode), () => {})));
+    expect((error as Error).name).toBe('CopyDecodeError');
+    expect((error as Error).message).toMatch(/value column "x" is not float8/);
+  });
+});
+
+describe('client state after an early stop', () => {
+  it('rows mode closes its cursor: the same client can query again', async () => {
+    const client = new pg.Client({ connectionString: tdb.url });
+    await client.connect();
+    try {
+      const error = await failureOf(
+        readDesign(client, request(FAST, 'rows'), () => {
+          throw new Error('stop');
+        }),
+      );
+      expect((error as Error).message).toBe('stop');
+      expect((await client.query('SELECT 1 AS one')).rows).toEqual([{ one: 1 }]);
+    } finally {
+      await client.end();
+    }
+  });
+
+  it('a plain client after a completed copy read is at rest and reusable', async () => {
+    const client = new pg.Client({ connectionString: tdb.url });
+    await client.connect();
+    try {
+      const counts = await readDesign(client, request(new SqlTemplate(['SELECT 1::text, 2::float8']), 'copy'), () => {});
+      expect(counts.rowsEmitted).toBe(1);
+      expect((await client.query('SELECT 1 AS one')).rows).toEqual([{ one: 1 }]);
+    } finally {
+      await client.end();
+    }
+  });
+});
