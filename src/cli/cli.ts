@@ -4,7 +4,7 @@ import { FitInputError } from '../fit/fit-input-error.js';
 import { PlanError } from '../plan/plan-error.js';
 import { SpecFileError } from '../run/run-fit.js';
 import { SpecError } from '../spec/spec-error.js';
-import { maskSecrets } from '../store/mask-secrets.js';
+import { maskSecrets } from '../source/mask-secrets.js';
 import { CliError, ExitCode } from './exit-codes.js';
 import { fitCommand } from './fit-command.js';
 import { fitCsvCommand } from './fit-csv-command.js';

@@ -6,6 +6,7 @@ import { solve } from '../fit/solve.js';
 import type { DesignPlan } from '../plan/design-plan.js';
 import { resolveConnection } from '../source/connection-target.js';
 import { readDesign } from '../source/read-design.js';
+import { withClient } from '../source/with-client.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
@@ -75,15 +76,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
   // kysely owns the pool from here: destroying it ends the pool.
   const db = createStoreDb(pool);
   try {
-    const planClient = await pool.connect();
-    let plan: DesignPlan;
-    try {
-      plan = await planFit(planClient, spec, parallel);
-      planClient.release();
-    } catch (e) {
-      planClient.release(e instanceof Error ? e : true);
-      throw e;
-    }
+    const plan = await withClient(pool, (client) => planFit(client, spec, parallel));
     const base = { spec, plan, connection: target.display };
     if (req.dryRun) {
       return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
@@ -134,14 +127,10 @@ async function readAndSolve(
   let rowsSoFar = 0;
   let lastReport = started;
   const counts = await Promise.all(
-    plan.queries.map(async (query, i) => {
-      const client = await pool.connect();
-      // A checked-out client reports a lost connection as an 'error' event as well as
-      // through the stream that broke; the stream's rejection is the one we act on.
-      const ignore = () => undefined;
-      client.on('error', ignore);
-      try {
-        const c = await readDesign(
+    plan.queries.map((query, i) =>
+      // withClient discards a client whose stream broke instead of pooling it again.
+      withClient(pool, (client) =>
+        readDesign(
           client,
           {
             query,
@@ -159,17 +148,9 @@ async function readAndSolve(
               req.onProgress({ rowsRead: rowsSoFar, segments: fits.reduce((s, f) => s + f.size, 0), seconds: (now - started) / 1000 });
             }
           },
-        );
-        client.off('error', ignore);
-        client.release();
-        return c;
-      } catch (e) {
-        // A client whose stream broke is discarded, not returned to the pool.
-        client.off('error', ignore);
-        client.release(e instanceof Error ? e : true);
-        throw e;
-      }
-    }),
+        ),
+      ),
+    ),
   );
   const rowsRead = counts.reduce((s, c) => s + c.rowsRead, 0);
   if (rowsRead === 0) throw new Error('the source returned no rows; there is nothing to fit');

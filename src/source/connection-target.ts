@@ -1,3 +1,4 @@
+import { userInfo } from 'node:os';
 import type pg from 'pg';
 
 import { ConnectionConfigError } from './connection-config-error.js';
@@ -140,7 +141,20 @@ function fromPgVariables(env: NodeJS.ProcessEnv): ConnectionTarget {
 }
 
 function fromDefaults(env: NodeJS.ProcessEnv): ConnectionTarget {
-  return { config: { ...SESSION_DEFAULTS }, display: displayOf({}, env), from: 'defaults' };
+  // libpq takes the operating-system user when no name is given; pg reads only $USER,
+  // which is empty in some service and container environments.
+  const user = nonEmpty(env['USER']) ?? nonEmpty(env['USERNAME']) ?? osUser();
+  const config: pg.PoolConfig = { ...SESSION_DEFAULTS };
+  if (user !== undefined) config.user = user;
+  return { config, display: displayOf({ user }, env), from: 'defaults' };
+}
+
+function osUser(): string | undefined {
+  try {
+    return nonEmpty(userInfo().username);
+  } catch {
+    return undefined;
+  }
 }
 
 /** `user@host:port/database`, filling gaps the way pg does (PG* variables, then defaults). */

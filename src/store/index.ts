@@ -4,7 +4,6 @@ export { describeError } from './describe-error.js';
 export { failRun } from './fail-run.js';
 export { loadMigrations } from './load-migrations.js';
 export type { Migration } from './load-migrations.js';
-export { maskSecrets } from './mask-secrets.js';
 export { migrate } from './migrate.js';
 export type { MigrateOptions, MigrateResult } from './migrate.js';
 export { MigrationError } from './migration-error.js';

@@ -3,7 +3,7 @@ import { afterAll, afterEach, beforeAll, beforeEach, describe, expect, it } from
 import { createStoreDb } from '../../src/store/create-store-db.js';
 import { describeError } from '../../src/store/describe-error.js';
 import { failRun } from '../../src/store/fail-run.js';
-import { maskSecrets } from '../../src/store/mask-secrets.js';
+import { maskSecrets } from '../../src/source/mask-secrets.js';
 import { migrate } from '../../src/store/migrate.js';
 import { publishRun } from '../../src/store/publish-run.js';
 import { startRun } from '../../src/store/start-run.js';

@@ -1,3 +1,4 @@
+import { userInfo } from 'node:os';
 import { describe, expect, it } from 'vitest';
 
 import { ConnectionConfigError } from '../../src/source/connection-config-error.js';
@@ -58,7 +59,14 @@ describe('resolveConnection precedence', () => {
     const t = resolveConnection({ env: { USER: 'osuser', PGHOST: '', HOME: '/home/osuser' } });
     expect(t.from).toBe('defaults');
     expect(t.display).toBe('osuser@localhost:5432/osuser');
-    expect(t.config).toEqual({ fallback_application_name: 'rowfold' });
+    expect(t.config).toEqual({ fallback_application_name: 'rowfold', user: 'osuser' });
+  });
+
+  it('with $USER unset, the operating-system user (as libpq takes it)', () => {
+    const t = resolveConnection({ env: {} });
+    expect(t.from).toBe('defaults');
+    expect(t.config.user).toBe(userInfo().username);
+    expect(t.display).toBe(`${userInfo().username}@localhost:5432/${userInfo().username}`);
   });
 
   it('a URL without user or database takes them from the environment, then the defaults', () => {
