@@ -1,3 +1,4 @@
+import { norm2 } from './norm.js';
 import { packedRowStart } from './packed.js';
 
 /**
@@ -22,26 +23,10 @@ export function householderFold(n: number, r: Float64Array, b: Float64Array, m: 
   for (let j = 0; j < n; j++) {
     const rj = packedRowStart(n, j);
     const cj = j * ld;
-    // Overflow-safe 2-norm of the block column (scaled sum of squares, as in LAPACK's dnrm2).
-    let scale = 0;
-    let ssq = 1;
-    for (let i = 0; i < m; i++) {
-      const v = b[cj + i]!;
-      if (v !== 0) {
-        const a = v < 0 ? -v : v;
-        if (scale < a) {
-          const q = scale / a;
-          ssq = 1 + ssq * q * q;
-          scale = a;
-        } else {
-          const q = a / scale;
-          ssq += q * q;
-        }
-      }
-    }
+    // Overflow-safe 2-norm of the block column (scaled sum of squares, as LAPACK's dnrm2).
+    const sigma = norm2(b, cj, m);
     // A column that is already zero needs no reflection (the identity is exact).
-    if (scale === 0) continue;
-    const sigma = scale * Math.sqrt(ssq);
+    if (sigma === 0) continue;
     const alpha = r[rj]!;
     const norm = Math.hypot(alpha, sigma);
     // Sign chosen opposite to alpha so alpha − beta never cancels.
