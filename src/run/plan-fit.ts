@@ -1,4 +1,3 @@
-import type pg from 'pg';
 import { checkExpressionTypes } from '../plan/check-expression-types.js';
 import { buildDesignPlan } from '../plan/design-plan.js';
 import type { DesignPlan } from '../plan/design-plan.js';
@@ -8,6 +7,7 @@ import { levelQuery, probeQuery, probedExpressions, tablePagesQuery } from '../p
 import { resolveLevels } from '../plan/resolve-levels.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
 import { sourceTableName } from '../plan/source-relation.js';
+import type { DbSession } from '../source/database.js';
 import { describeQuery, queryAll } from '../source/query-helpers.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 
@@ -16,7 +16,7 @@ import type { FitSpec } from '../spec/fit-spec.js';
  * culprit when the server rejects one), discovers categorical levels, and cuts the
  * source into `parallel` partitions.
  */
-export async function planFit(client: pg.ClientBase, spec: FitSpec, parallel: number): Promise<DesignPlan> {
+export async function planFit(client: DbSession, spec: FitSpec, parallel: number): Promise<DesignPlan> {
   const expressions = probedExpressions(spec);
   let types: string[];
   try {
@@ -44,7 +44,7 @@ export async function planFit(client: pg.ClientBase, spec: FitSpec, parallel: nu
  * name the spec key at fault in the error.
  */
 async function locateProbeFailure(
-  client: pg.ClientBase,
+  client: DbSession,
   spec: FitSpec,
   expressions: ReturnType<typeof probedExpressions>,
   error: unknown,

@@ -1,12 +1,10 @@
-import pg from 'pg';
 import { normalEquationsProblem } from '../fit/check-normal-equations.js';
 import type { FitSolution } from '../fit/fit-solution.js';
 import { SegmentedFit } from '../fit/segmented-fit.js';
 import { solve } from '../fit/solve.js';
 import type { DesignPlan } from '../plan/design-plan.js';
-import { resolveConnection } from '../source/connection-target.js';
-import { readDesign } from '../source/read-design.js';
-import { withClient } from '../source/with-client.js';
+import type { Database } from '../source/database.js';
+import { openDatabase } from '../source/open-database.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
@@ -68,16 +66,14 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     throw new SpecFileError(`cannot read the spec ${req.specPath}: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
   });
   const parallel = req.parallel ?? 1;
-  const target = resolveConnection({ db: req.db, env: req.env ?? process.env });
-  const pool = new pg.Pool({ ...target.config, max: parallel + 1 });
-  // An idle client whose backend goes away emits 'error' on the pool; the next query on
-  // it fails and says why, so there is nothing to do here but not crash.
-  pool.on('error', () => undefined);
-  // kysely owns the pool from here: destroying it ends the pool.
-  const db = createStoreDb(pool);
+  const database = await openDatabase({ db: req.db, env: req.env ?? process.env, sessions: parallel + 1 });
+  const db = createStoreDb(database.dialect());
   try {
-    const plan = await withClient(pool, (client) => planFit(client, spec, parallel));
-    const base = { spec, plan, connection: target.display };
+    if (parallel > database.maxSessions) {
+      throw new SpecFileError(`--parallel ${parallel}: the ${database.kind} database serves ${database.maxSessions} reader(s) at once`);
+    }
+    const plan = await database.withSession((session) => planFit(session, spec, parallel));
+    const base = { spec, plan, connection: database.display };
     if (req.dryRun) {
       return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
     }
@@ -90,7 +86,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       toolVersion: TOOL_VERSION,
     });
     try {
-      const out = await readAndSolve(pool, spec, plan, req);
+      const out = await readAndSolve(database, spec, plan, req);
       await publishRun(db, spec.schema, runId, {
         rowsRead: out.rowsRead,
         rowsUsed: out.rowsUsed,
@@ -107,11 +103,12 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     }
   } finally {
     await db.destroy();
+    await database.close();
   }
 }
 
 async function readAndSolve(
-  pool: pg.Pool,
+  database: Database,
   spec: FitSpec,
   plan: DesignPlan,
   req: RunFitRequest,
@@ -128,10 +125,9 @@ async function readAndSolve(
   let lastReport = started;
   const counts = await Promise.all(
     plan.queries.map((query, i) =>
-      // withClient discards a client whose stream broke instead of pooling it again.
-      withClient(pool, (client) =>
-        readDesign(
-          client,
+      // A session whose stream broke is discarded, not used again.
+      database.withSession((session) =>
+        session.readDesign(
           {
             query,
             keyNames: plan.keyNames,

@@ -1,4 +1,4 @@
-import type pg from 'pg';
+import type { DbSession } from './database.js';
 
 import type { SqlTemplate } from '../plan/sql-template.js';
 
@@ -18,22 +18,21 @@ export interface QueryColumn {
  * own errors, with their SQLSTATE `code`.
  *
  * @example
- * const cols = await describeQuery(client, new SqlTemplate(['SELECT price, ln(qty) AS lq FROM sales']));
+ * const cols = await describeQuery(session, new SqlTemplate(['SELECT price, ln(qty) AS lq FROM sales']));
  * // → [{ name: 'price', dataTypeID: 1700, typeName: 'numeric' }, { name: 'lq', dataTypeID: 701, typeName: 'float8' }]
  */
-export async function describeQuery(client: pg.ClientBase, query: SqlTemplate): Promise<QueryColumn[]> {
+export async function describeQuery(session: DbSession, query: SqlTemplate): Promise<QueryColumn[]> {
   const { text, values } = query.toBound();
   // The newline keeps a trailing `--` comment in the user's SQL from hiding the `)`.
-  const result = await client.query({ text: `SELECT * FROM (${text}\n) q LIMIT 0`, values });
+  const result = await session.query(`SELECT * FROM (${text}\n) q LIMIT 0`, values);
   const oids = [...new Set(result.fields.map((f) => f.dataTypeID))];
   const names = new Map<number, string>();
   if (oids.length > 0) {
-    const types = await client.query<[string, string]>({
-      text: 'SELECT oid::text, typname::text FROM pg_catalog.pg_type WHERE oid = ANY($1::oid[])',
-      values: [oids],
-      rowMode: 'array',
-    });
-    for (const [oid, name] of types.rows) names.set(Number(oid), name);
+    const types = await session.query(
+      'SELECT oid::text, typname::text FROM pg_catalog.pg_type WHERE oid = ANY($1::int8[]::oid[])',
+      [oids.map(String)],
+    );
+    for (const [oid, name] of types.rows) names.set(Number(oid), String(name));
   }
   return result.fields.map((f) => ({ name: f.name, dataTypeID: f.dataTypeID, typeName: names.get(f.dataTypeID) ?? `oid ${f.dataTypeID}` }));
 }
@@ -43,8 +42,7 @@ export async function describeQuery(client: pg.ClientBase, query: SqlTemplate): 
  * queries such as level discovery, never for the design rows themselves. Database errors
  * reject as pg's own errors, with their SQLSTATE `code`.
  */
-export async function queryAll(client: pg.ClientBase, query: SqlTemplate): Promise<unknown[][]> {
+export async function queryAll(session: DbSession, query: SqlTemplate): Promise<unknown[][]> {
   const { text, values } = query.toBound();
-  const result = await client.query<unknown[]>({ text, values, rowMode: 'array' });
-  return result.rows;
+  return (await session.query(text, values)).rows;
 }

@@ -1,9 +1,11 @@
 import { Kysely, PostgresDialect } from 'kysely';
+import type { Dialect } from 'kysely';
 import type pg from 'pg';
 import type { StoreDatabase } from './store-database.js';
 
 /**
- * A kysely instance over a node-postgres pool, typed with the result schema.
+ * A kysely instance over a node-postgres pool (or any kysely dialect, such as the
+ * embedded database's), typed with the result schema.
  *
  * `db.destroy()` ends the pool: destroy the instance instead of ending the pool yourself.
  *
@@ -11,6 +13,7 @@ import type { StoreDatabase } from './store-database.js';
  * const db = createStoreDb(new pg.Pool({ connectionString: url }));
  * try { await migrate(db); } finally { await db.destroy(); }
  */
-export function createStoreDb(pool: pg.Pool): Kysely<StoreDatabase> {
-  return new Kysely<StoreDatabase>({ dialect: new PostgresDialect({ pool }) });
+export function createStoreDb(source: pg.Pool | Dialect): Kysely<StoreDatabase> {
+  const dialect = 'createDriver' in source ? source : new PostgresDialect({ pool: source });
+  return new Kysely<StoreDatabase>({ dialect });
 }

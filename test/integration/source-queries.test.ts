@@ -4,6 +4,7 @@ import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { SqlTemplate } from '../../src/plan/sql-template.js';
 import { resolveConnection } from '../../src/source/connection-target.js';
 import { describeQuery, queryAll } from '../../src/source/query-helpers.js';
+import { pgSession } from '../../src/source/server-database.js';
 import { withClient } from '../../src/source/with-client.js';
 import { createTestDatabase, PoolTracker, withAdminClient } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
@@ -33,7 +34,7 @@ describe('describeQuery', () => {
       "::text AS bound, '$1' AS lit FROM sales WHERE region = ",
       { value: 'north' },
     ]);
-    const columns = await withClient(pool, (c) => describeQuery(c, query));
+    const columns = await withClient(pool, (c) => describeQuery(pgSession(c), query));
     expect(columns.map((c) => [c.name, c.typeName])).toEqual([
       ['lp', 'float8'],
       ['qty', 'int4'],
@@ -49,13 +50,13 @@ describe('describeQuery', () => {
 
   it('works on a query that ends in a line comment', async () => {
     const pool = pools.open(tdb.url, 1);
-    const columns = await withClient(pool, (c) => describeQuery(c, new SqlTemplate(['SELECT qty FROM sales -- the source'])));
+    const columns = await withClient(pool, (c) => describeQuery(pgSession(c), new SqlTemplate(['SELECT qty FROM sales -- the source'])));
     expect(columns).toEqual([{ name: 'qty', dataTypeID: 23, typeName: 'int4' }]);
   });
 
   it('rejects with the database error and its SQLSTATE', async () => {
     const pool = pools.open(tdb.url, 1);
-    const error = await withClient(pool, (c) => describeQuery(c, new SqlTemplate(['SELECT nope FROM sales']))).catch((e: unknown) => e);
+    const error = await withClient(pool, (c) => describeQuery(pgSession(c), new SqlTemplate(['SELECT nope FROM sales']))).catch((e: unknown) => e);
     expect(error).toBeInstanceOf(pg.DatabaseError);
     expect((error as pg.DatabaseError).code).toBe('42703');
   });
@@ -66,7 +67,7 @@ describe('queryAll', () => {
     const pool = pools.open(tdb.url, 1);
     const tricky = "it's a \\ $1 value";
     const rows = await withClient(pool, (c) =>
-      queryAll(c, SqlTemplate.join(['SELECT DISTINCT region, ', { value: tricky }, '::text FROM sales WHERE qty >= ', { value: 2 }, ' ORDER BY 1'])),
+      queryAll(pgSession(c), SqlTemplate.join(['SELECT DISTINCT region, ', { value: tricky }, '::text FROM sales WHERE qty >= ', { value: 2 }, ' ORDER BY 1'])),
     );
     expect(rows).toEqual([['north', tricky]]);
   });
