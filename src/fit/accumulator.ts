@@ -1,5 +1,7 @@
 import { choleskyPacked, gramUpdate } from '../numeric/gram-update.js';
+import { dd, ddMul, ddSqrt } from '../numeric/double-double.js';
 import { householderFold } from '../numeric/householder-fold.js';
+import { householderFoldDD } from '../numeric/householder-fold-dd.js';
 import { packedLength, packedRowStart } from '../numeric/packed.js';
 import type { RowBlock } from '../numeric/row-block.js';
 import { FitInputError } from './fit-input-error.js';
@@ -24,6 +26,13 @@ export interface DesignShape {
  */
 export type FoldMethod = 'qr' | 'normal';
 
+/**
+ * Arithmetic of the factor: `double`, or `double-double` (about 32 digits, for designs
+ * whose condition is too close to 1/ε for double precision to give certified digits;
+ * QR only).
+ */
+export type FoldPrecision = 'double' | 'double-double';
+
 /** Everything an accumulator holds, in plain form, for storage and transfer. */
 export interface AccumulatorState {
   /** Order of the augmented factor: design columns (with intercept) + 1. */
@@ -32,6 +41,8 @@ export interface AccumulatorState {
   readonly factor: Float64Array;
   /** How the factor was accumulated. */
   readonly method: FoldMethod;
+  /** Low parts of the factor when it is double-double. */
+  readonly factorLow?: Float64Array | undefined;
   /** Rows folded with a positive weight. */
   readonly rows: number;
   /** Rows seen with weight exactly zero (left out of the fit, counted). */
@@ -64,8 +75,13 @@ export class Accumulator {
   /** Segment label used in error messages (optional). */
   readonly label: string | undefined;
   readonly method: FoldMethod;
+  readonly precision: FoldPrecision;
+  /** Whether block values come as (hi, lo) pairs. */
+  readonly pairs: boolean;
   /** R for `qr`; the Gram matrix for `normal`. */
   private readonly r: Float64Array;
+  /** Low parts of R when the precision is double-double. */
+  private readonly rLow: Float64Array | undefined;
   private cholesky: Float64Array | undefined;
   private readonly workspace: FoldWorkspace;
   private nRows = 0;
@@ -73,18 +89,45 @@ export class Accumulator {
   private sumW = 0;
   private sumLogW = 0;
 
-  constructor(shape: DesignShape, options: { label?: string | undefined; workspace?: FoldWorkspace; method?: FoldMethod } = {}) {
+  constructor(
+    shape: DesignShape,
+    options: {
+      label?: string | undefined;
+      workspace?: FoldWorkspace;
+      method?: FoldMethod;
+      precision?: FoldPrecision;
+      /**
+       * Each value arrives as two doubles, high and low part (hi + lo), so data held in
+       * more than double precision (numeric columns) reach a double-double fold intact.
+       */
+      pairs?: boolean;
+    } = {},
+  ) {
     this.shape = shape;
     this.method = options.method ?? 'qr';
+    this.precision = options.precision ?? 'double';
+    if (this.precision === 'double-double' && this.method !== 'qr') {
+      throw new RangeError('double-double precision is available for the qr method only');
+    }
+    this.pairs = options.pairs ?? false;
+    if (this.pairs && this.precision !== 'double-double') {
+      throw new RangeError('values in high/low pairs need double-double precision');
+    }
     this.order = shape.terms.length + (shape.intercept ? 1 : 0) + 1;
     this.label = options.label;
     this.workspace = options.workspace ?? sharedWorkspace;
     this.r = new Float64Array(packedLength(this.order));
+    this.rLow = this.precision === 'double-double' ? new Float64Array(this.r.length) : undefined;
   }
 
-  /** Width a block row must have: terms, response, and the weight when weighted. */
+  /** Low parts of the double-double factor (undefined in double precision). */
+  get factorLow(): Float64Array | undefined {
+    return this.rLow;
+  }
+
+  /** Width a block row must have: terms, response, and the weight when weighted (twice that in pairs). */
   get blockWidth(): number {
-    return this.shape.terms.length + 1 + (this.shape.weight === undefined ? 0 : 1);
+    return (this.shape.terms.length + 1 + (this.shape.weight === undefined ? 0 : 1)) * (this.pairs ? 2 : 1);
   }
 
   /** Rows folded with a positive weight. */
@@ -141,13 +184,18 @@ export class Accumulator {
    * earlier runs combine in any order.
    */
   merge(other: Accumulator): void {
-    if (other.order !== this.order || other.shape.intercept !== this.shape.intercept || other.method !== this.method) {
+    if (
+      other.order !== this.order ||
+      other.shape.intercept !== this.shape.intercept ||
+      other.method !== this.method ||
+      other.precision !== this.precision
+    ) {
       throw new FitInputError(
         `cannot merge a factor of order ${other.order} into one of order ${this.order}: the models differ`,
         this.errorContext(),
       );
     }
-    this.mergeFactor(other.r);
+    this.mergeFactor(other.r, other.rLow);
     this.nRows += other.nRows;
     this.nZeroWeight += other.nZeroWeight;
     this.sumW += other.sumW;
@@ -160,6 +208,7 @@ export class Accumulator {
       order: this.order,
       factor: this.r.slice(),
       method: this.method,
+      factorLow: this.rLow?.slice(),
       rows: this.nRows,
       zeroWeightRows: this.nZeroWeight,
       sumWeights: this.sumW,
@@ -175,7 +224,10 @@ export class Accumulator {
         this.errorContext(),
       );
     }
-    this.mergeFactor(state.factor);
+    if ((state.factorLow === undefined) !== (this.rLow === undefined)) {
+      throw new FitInputError('cannot merge factors of different precision', this.errorContext());
+    }
+    this.mergeFactor(state.factor, state.factorLow);
     this.nRows += state.rows;
     this.nZeroWeight += state.zeroWeightRows;
     this.sumW += state.sumWeights;
@@ -184,7 +236,13 @@ export class Accumulator {
 
   /** A new accumulator with the same shape and a copy of this one's state. */
   clone(): Accumulator {
-    const copy = new Accumulator(this.shape, { label: this.label, workspace: this.workspace, method: this.method });
+    const copy = new Accumulator(this.shape, {
+      label: this.label,
+      workspace: this.workspace,
+      method: this.method,
+      precision: this.precision,
+      pairs: this.pairs,
+    });
     copy.mergeState(this.state());
     return copy;
   }
@@ -210,7 +268,8 @@ export class Accumulator {
   private check(block: RowBlock, from: number, to: number): void {
     const width = block.width;
     const v = block.values;
-    const wcol = this.shape.weight === undefined ? -1 : width - 1;
+    const stride = this.pairs ? 2 : 1;
+    const wcol = this.shape.weight === undefined ? -1 : width - stride;
     for (let row = from; row < to; row++) {
       const base = row * width;
       // x − x is NaN exactly when x is NaN or ±Infinity: one test per row on the fast path.
@@ -225,9 +284,10 @@ export class Accumulator {
       for (let j = 0; j < width; j++) {
         const x = v[base + j]!;
         if (!Number.isFinite(x)) {
-          const col = names[j]!;
+          const c = Math.floor(j / stride);
+          const col = names[c]!;
           const p = this.shape.terms.length;
-          const role = j < p ? 'term' : j === p ? 'response' : 'weight';
+          const role = c < p ? 'term' : c === p ? 'response' : 'weight';
           throw new FitInputError(
             `${role} ${col} is ${String(x)} in row ${row} of the block${this.where()}; ` +
               'filter such rows in the query, or let the spec skip non-finite rows',
@@ -235,7 +295,7 @@ export class Accumulator {
           );
         }
       }
-      const col = names[wcol]!;
+      const col = names[wcol / stride]!;
       throw new FitInputError(
         `weight ${col} is negative (${w}) in row ${row} of the block${this.where()}; weights must be ≥ 0`,
         this.errorContext(col),
@@ -244,6 +304,10 @@ export class Accumulator {
   }
 
   private foldChecked(v: Float64Array, width: number, from: number, to: number): void {
+    if (this.rLow !== undefined) {
+      this.foldCheckedDD(v, width, from, to, this.rLow);
+      return;
+    }
     const n = this.order;
     const p = this.shape.terms.length;
     const weighted = this.shape.weight !== undefined;
@@ -277,9 +341,71 @@ export class Accumulator {
     if (fill > 0) kernel(n, this.r, buf, fill, m);
   }
 
-  private mergeFactor(other: Float64Array): void {
+  private foldCheckedDD(v: Float64Array, width: number, from: number, to: number, rLow: Float64Array): void {
+    const n = this.order;
+    const p = this.shape.terms.length;
+    const weighted = this.shape.weight !== undefined;
+    const icpt = this.shape.intercept ? 1 : 0;
+    const m = FoldWorkspace.rowsFor(n);
+    const both = this.workspace.take(2 * m * n);
+    const bh = both.subarray(0, m * n);
+    const bl = both.subarray(m * n, 2 * m * n);
+    const yCol = (n - 1) * m;
+    const sw = dd();
+    const t = dd();
+    let fill = 0;
+    const stride = this.pairs ? 2 : 1;
+    const put = (at: number, off: number) => {
+      // x·√w in double-double (exact when unweighted and x is a double).
+      ddMul(v[off]!, stride === 2 ? v[off + 1]! : 0, sw.hi, sw.lo, t);
+      bh[at] = t.hi;
+      bl[at] = t.lo;
+    };
+    for (let row = from; row < to; row++) {
+      const base = row * width;
+      const wOff = base + width - stride;
+      const w = weighted ? v[wOff]! + (stride === 2 ? v[wOff + 1]! : 0) : 1;
+      if (w === 0) {
+        this.nZeroWeight++;
+        continue;
+      }
+      ddSqrt(weighted ? v[wOff]! : 1, weighted && stride === 2 ? v[wOff + 1]! : 0, sw);
+      if (icpt === 1) {
+        bh[fill] = sw.hi;
+        bl[fill] = sw.lo;
+      }
+      for (let j = 0; j < p; j++) put((j + icpt) * m + fill, base + j * stride);
+      put(yCol + fill, base + p * stride);
+      this.nRows++;
+      this.sumW += w;
+      if (weighted) this.sumLogW += Math.log(w);
+      if (++fill === m) {
+        householderFoldDD(n, this.r, rLow, bh, bl, m, m);
+        fill = 0;
+      }
+    }
+    if (fill > 0) householderFoldDD(n, this.r, rLow, bh, bl, fill, m);
+  }
+
+  private mergeFactor(other: Float64Array, otherLow?: Float64Array): void {
     const n = this.order;
     this.cholesky = undefined;
+    if (this.rLow !== undefined && otherLow !== undefined) {
+      const both = this.workspace.take(2 * n * n);
+      const bh = both.subarray(0, n * n);
+      const bl = both.subarray(n * n, 2 * n * n);
+      bh.fill(0);
+      bl.fill(0);
+      for (let i = 0; i < n; i++) {
+        const rs = packedRowStart(n, i);
+        for (let j = i; j < n; j++) {
+          bh[j * n + i] = other[rs + j - i]!;
+          bl[j * n + i] = otherLow[rs + j - i]!;
+        }
+      }
+      householderFoldDD(n, this.r, this.rLow, bh, bl, n, n);
+      return;
+    }
     if (this.method === 'normal') {
       // Gram matrices add.
       for (let i = 0; i < other.length; i++) this.r[i] = this.r[i]! + other[i]!;

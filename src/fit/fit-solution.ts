@@ -57,6 +57,16 @@ export interface FitSolution {
   readonly condition: number | null;
   /** Relative tolerance (on unit-norm columns) used for the rank decision. */
   readonly rankTolerance: number;
+  /**
+   * Arithmetic of the published numbers: `fast` (double precision throughout) or
+   * `extended` (a double-double factor and refined solves).
+   */
+  readonly accuracy: 'fast' | 'extended';
+  /**
+   * Estimated correct significant digits of the least accurate estimate or standard
+   * error, from the condition of the scaled factor and the size of the residual.
+   */
+  readonly estimatedDigits: number | null;
   readonly aliased: readonly string[];
   readonly coefficients: readonly CoefficientResult[];
   /** Covariance of the kept estimates, `rank × rank` row-major, in `keptTerms` order. */

@@ -190,6 +190,8 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
     ...base,
     status,
     notes,
+    accuracy: 'fast',
+    estimatedDigits: estimateDigits(betaScaled, qr.residualNorm, qr.r11, rInv, cScaled),
     rank: k,
     dfResidual,
     rss,
@@ -210,6 +212,49 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
     covariance,
     keptTerms,
   };
+}
+
+/**
+ * Correct digits to expect from double precision, from first-order least-squares
+ * perturbation theory in componentwise form (Higham, "Accuracy and Stability of Numerical
+ * Algorithms", 2nd ed., §20.1; Skeel's condition for the consistent part): a relative
+ * backward error ε in each entry of the column-scaled design moves coefficient j by about
+ * ε·((|R⁻¹|·|R|·|β|)_j + ‖r‖·(|R⁻¹R⁻ᵀ|·1)_j), and its standard error by about
+ * ε·(|R⁻¹|·|R|·1)_j relative. The least accurate of these sets the estimate.
+ */
+function estimateDigits(
+  betaScaled: Float64Array,
+  residualNorm: number,
+  r11: Float64Array,
+  rInv: Float64Array,
+  cScaled: Float64Array,
+): number | null {
+  const k = betaScaled.length;
+  if (k === 0) return null;
+  const eps = Number.EPSILON;
+  // M = |R⁻¹|·|R| (both upper triangular).
+  const m = new Float64Array(k * k);
+  for (let i = 0; i < k; i++) {
+    for (let l = i; l < k; l++) {
+      const a = Math.abs(rInv[i * k + l]!);
+      for (let j = l; j < k; j++) m[i * k + j]! += a * Math.abs(r11[l * k + j]!);
+    }
+  }
+  let worst = eps;
+  for (let j = 0; j < k; j++) {
+    let consistent = 0;
+    let ones = 0;
+    let residual = 0;
+    for (let l = 0; l < k; l++) {
+      consistent += m[j * k + l]! * Math.abs(betaScaled[l]!);
+      ones += m[j * k + l]!;
+      residual += Math.abs(cScaled[j * k + l]!);
+    }
+    const betaRel = (eps * (consistent + residualNorm * residual)) / Math.abs(betaScaled[j]!);
+    worst = Math.max(worst, eps * ones, betaRel);
+  }
+  if (!Number.isFinite(worst)) return 0;
+  return Math.max(0, Math.min(15, -Math.log10(worst)));
 }
 
 function nullCoefficient(term: string, aliased: boolean): CoefficientResult {
@@ -242,6 +287,8 @@ function emptySolution(
     bic: null,
     condition: null,
     rankTolerance,
+    accuracy: 'fast',
+    estimatedDigits: null,
     aliased: [],
     coefficients: names.map((t) => nullCoefficient(t, false)),
     covariance: null,

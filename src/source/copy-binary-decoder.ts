@@ -1,6 +1,8 @@
 import { Buffer } from 'node:buffer';
 
+import { dd } from '../numeric/double-double.js';
 import type { RowBlock } from '../numeric/row-block.js';
+import { decodeNumericDD } from './numeric-binary.js';
 
 /**
  * What the decoder does with a NaN or ±Infinity in a value column.
@@ -30,6 +32,12 @@ export interface CopyBinaryDecoderOptions {
   readonly blockRows: number;
   /** What to do with NaN and ±Infinity values. */
   readonly nonFinite: NonFinitePolicy;
+  /**
+   * Per value column, its wire type: `float8` (default) or `numeric`. With any `numeric`
+   * column, every value is emitted as a (high, low) pair of doubles — the block is 2·V
+   * wide — so decimal data reach a double-double fold with about 32 digits.
+   */
+  readonly valueTypes?: readonly ('float8' | 'numeric')[];
 }
 
 /**
@@ -135,6 +143,11 @@ export class CopyBinaryDecoder {
   #carryComplete = false;
 
   readonly #values: Float64Array;
+  /** Per value column: true when it arrives as numeric (pairs mode). */
+  readonly #numeric: readonly boolean[];
+  /** Values per column in the block: 2 in pairs mode, else 1. */
+  readonly #stride: number;
+  readonly #pair = dd();
   readonly #keys: Int32Array;
   #blockFill = 0;
 
@@ -175,7 +188,11 @@ export class CopyBinaryDecoder {
     this.#valueNames = [...valueNames];
     this.#blockRows = blockRows;
     this.#skipNonFinite = nonFinite === 'skip';
-    this.#values = new Float64Array(blockRows * v);
+    const types = options.valueTypes ?? [];
+    if (types.length !== 0 && types.length !== v) throw new RangeError(`valueTypes has ${types.length} types for ${v} value columns`);
+    this.#numeric = Array.from({ length: v }, (_, j) => types[j] === 'numeric');
+    this.#stride = this.#numeric.some(Boolean) ? 2 : 1;
+    this.#values = new Float64Array(blockRows * v * this.#stride);
     this.#keys = new Int32Array(blockRows);
     this.#nullCounts = new Array<number>(v).fill(0);
     this.#nonFiniteCounts = new Array<number>(v).fill(0);
@@ -448,7 +465,7 @@ export class CopyBinaryDecoder {
           { column: this.#columnName(f) },
         );
       }
-      if (f >= this.#keyCount && length !== FLOAT8_BYTES) {
+      if (f >= this.#keyCount && length !== FLOAT8_BYTES && !this.#numeric[f - this.#keyCount]) {
         const name = this.#columnName(f);
         throw new CopyDecodeError(
           `value column "${name}" is not float8: its field is ${length} bytes, a float8 is ${FLOAT8_BYTES}; ` +
@@ -486,7 +503,8 @@ export class CopyBinaryDecoder {
     // Values land directly in the block slot; a skipped row simply does not advance the fill.
     const v = this.#valueCount;
     const values = this.#values;
-    const base = this.#blockFill * v;
+    const stride = this.#stride;
+    const base = this.#blockFill * v * stride;
     let hasNull = false;
     let hasNonFinite = false;
     for (let j = 0; j < v; j++) {
@@ -497,9 +515,17 @@ export class CopyBinaryDecoder {
         this.#nullCounts[j]!++;
         continue;
       }
-      const x = view.getFloat64(p);
-      p += FLOAT8_BYTES;
-      values[base + j] = x;
+      let x: number;
+      if (this.#numeric[j]) {
+        decodeNumericDD(view, p, length, this.#pair);
+        x = this.#pair.hi;
+        values[base + 2 * j + 1] = this.#pair.lo;
+      } else {
+        x = view.getFloat64(p);
+        if (stride === 2) values[base + 2 * j + 1] = 0;
+      }
+      p += length;
+      values[base + j * stride] = x;
       if (!Number.isFinite(x)) hasNonFinite = true;
     }
     if (hasNull) {
@@ -507,7 +533,7 @@ export class CopyBinaryDecoder {
       return;
     }
     if (hasNonFinite && this.#skipNonFinite) {
-      for (let j = 0; j < v; j++) if (!Number.isFinite(values[base + j]!)) this.#nonFiniteCounts[j]!++;
+      for (let j = 0; j < v; j++) if (!Number.isFinite(values[base + j * stride]!)) this.#nonFiniteCounts[j]!++;
       this.#rowsSkippedNonFinite++;
       return;
     }
@@ -570,6 +596,6 @@ export class CopyBinaryDecoder {
     const rows = this.#blockFill;
     this.#blockFill = 0;
     this.#rowsEmitted += rows;
-    onBlock({ rows, width: this.#valueCount, values: this.#values, keys: this.#keys });
+    onBlock({ rows, width: this.#valueCount * this.#stride, values: this.#values, keys: this.#keys });
   }
 }
