@@ -1,5 +1,7 @@
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
+import { parseDecimalDD } from '../../src/numeric/decimal-dd.js';
+import { dd, ddMul } from '../../src/numeric/double-double.js';
 
 /** Folder of the vendored NIST StRD linear-regression files (see its README.md). */
 export const NIST_DIR = fileURLToPath(new URL('../fixtures/nist-strd/', import.meta.url));
@@ -20,6 +22,11 @@ export interface NistSet {
   readonly terms: readonly string[];
   /** Rows as `[terms…, y]`. */
   readonly rows: readonly number[][];
+  /**
+   * Rows as `[t0 hi, t0 lo, …, y hi, y lo]`: the decimal data and their powers in
+   * double-double, so no digit of the published data is lost on the way in.
+   */
+  readonly pairRows: readonly number[][];
   readonly certified: NistCertified;
 }
 
@@ -51,8 +58,27 @@ export function loadNistSet(name: string): NistSet {
   const columns = meta.columns.map((c) => c.name);
   const terms = meta.model.terms.filter((t) => t !== '1');
   const rows: number[][] = [];
+  const pairRows: number[][] = [];
   for (let i = first - 1; i < last; i++) {
-    const fields = lines[i]!.trim().split(/\s+/).map(Number);
+    const texts = lines[i]!.trim().split(/\s+/);
+    const exact = new Map(columns.map((c, j) => [c, parseDecimalDD(texts[j]!)]));
+    const pairs: number[] = [];
+    for (const t of terms) {
+      const power = /^(\w+)\^(\d+)$/.exec(t);
+      const base = exact.get(power ? power[1]! : t)!;
+      let h = base.hi;
+      let l = base.lo;
+      const out = dd();
+      for (let k = 1; k < (power ? Number(power[2]) : 1); k++) {
+        ddMul(h, l, base.hi, base.lo, out);
+        h = out.hi;
+        l = out.lo;
+      }
+      pairs.push(h, l);
+    }
+    pairs.push(exact.get('y')!.hi, exact.get('y')!.lo);
+    pairRows.push(pairs);
+    const fields = texts.map(Number);
     const byName = new Map(columns.map((c, j) => [c, fields[j]!]));
     const row = terms.map((t) => {
       const power = /^(\w+)\^(\d+)$/.exec(t);
@@ -63,5 +89,5 @@ export function loadNistSet(name: string): NistSet {
     row.push(byName.get('y')!);
     rows.push(row);
   }
-  return { name, intercept: meta.model.intercept, terms, rows, certified: meta.certified };
+  return { name, intercept: meta.model.intercept, terms, rows, pairRows, certified: meta.certified };
 }
