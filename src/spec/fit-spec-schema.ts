@@ -122,6 +122,13 @@ export const fitSpecSchema = z
       .enum(['qr', 'normal'])
       .default('qr')
       .meta({ description: 'Solver: qr (QR factorisation) or normal (normal equations).' }),
+    accuracy: z
+      .enum(['auto', 'fast', 'extended'])
+      .default('auto')
+      .meta({
+        description:
+          'auto: fold in double precision and, for models whose estimated correct digits fall below 14, take one more pass in double-double; fast: never an extra pass; extended: always double-double.',
+      }),
     schema: identifier('a schema name', 'Schema that receives the result tables.').default('rowfold'),
     read: z
       .enum(['copy', 'rows'])

@@ -91,6 +91,12 @@ export interface FitSpec {
   readonly confidence: number;
   /** Solver: `qr` (default) or `normal` (normal equations). */
   readonly method: 'qr' | 'normal';
+  /**
+   * `auto` (default): double precision, plus one double-double pass for models whose
+   * estimated correct digits fall below 14; `fast`: never an extra pass; `extended`:
+   * always double-double. Applies to `method: qr`.
+   */
+  readonly accuracy: 'auto' | 'fast' | 'extended';
   /** Schema that receives the result tables (default `rowfold`). */
   readonly schema: string;
   /** How rows are read: `copy` (default) or `rows` (row-stream fallback). */

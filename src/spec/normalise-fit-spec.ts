@@ -152,6 +152,7 @@ export function normaliseFitSpec(
       intercept: doc.intercept,
       confidence: doc.confidence,
       method: doc.method,
+      accuracy: doc.accuracy,
       schema: doc.schema,
       read: doc.read,
       nonFinite: doc.non_finite,

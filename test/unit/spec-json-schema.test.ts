@@ -34,6 +34,7 @@ describe('schema/fit-spec.schema.json', () => {
       'intercept',
       'confidence',
       'method',
+      'accuracy',
       'schema',
       'read',
       'non_finite',

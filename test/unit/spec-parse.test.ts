@@ -26,6 +26,7 @@ describe('parseFitSpec: defaults', () => {
       intercept: true,
       confidence: 0.95,
       method: 'qr',
+      accuracy: 'auto',
       schema: 'rowfold',
       read: 'copy',
       nonFinite: 'error',
