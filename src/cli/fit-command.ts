@@ -1,5 +1,7 @@
 import type { Argv } from 'yargs';
+import { INTERCEPT_TERM } from '../fit/fit-solution.js';
 import { solutionToJson } from '../report/solution-json.js';
+import { formatSegmentsTable } from '../report/segments-table.js';
 import { formatSolution } from '../report/terminal-summary.js';
 import { formatCount } from '../report/format-number.js';
 import { runFit } from '../run/run-fit.js';
@@ -18,6 +20,10 @@ export function fitCommand(y: Argv): Argv {
         .option('db', { type: 'string', describe: 'PostgreSQL URL (default: DATABASE_URL, then the PG* variables)' })
         .option('parallel', { type: 'number', default: 1, describe: 'read N disjoint partitions over N connections' })
         .option('read', { choices: ['copy', 'rows'] as const, describe: 'override the spec: binary COPY or row stream' })
+        .option('accuracy', {
+          choices: ['auto', 'fast', 'extended'] as const,
+          describe: 'override the spec: auto adds a double-double pass where double precision cannot give 14 digits',
+        })
         .option('json', { type: 'boolean', default: false, describe: 'print exactly one JSON document on stdout' })
         .option('dry-run', { type: 'boolean', default: false, describe: 'print the design query and levels; fit nothing' }),
     async (args) => {
@@ -33,6 +39,7 @@ export function fitCommand(y: Argv): Argv {
           db: args.db,
           parallel,
           read: args.read,
+          accuracy: args.accuracy,
           dryRun: args.dryRun,
           onProgress: args.json ? undefined : progress.update,
         });
@@ -57,9 +64,12 @@ function runJson(r: RunFitResult): unknown {
       segments: r.models.length,
       seconds: r.seconds,
     },
-    models: r.models.map((m) => ({ segment: m.segment, ...solutionToJson(m.solution) })),
+    models: r.models.map((m) => ({ segment: m.segment, ...solutionToJson(m.solution), passes: m.passes })),
   };
 }
+
+/** Up to this many models the text output shows each in full; above, a line per model. */
+const FULL_MODELS_UP_TO = 5;
 
 function runText(r: RunFitResult): string {
   const out: string[] = [];
@@ -69,13 +79,23 @@ function runText(r: RunFitResult): string {
       (skipped.length ? ` (skipped: ${skipped.join(', ')})` : '') +
       ` · ${r.models.length} model${r.models.length === 1 ? '' : 's'} · ${r.seconds.toFixed(2)} s`,
   );
-  const shown = r.models.slice(0, 20);
-  for (const m of shown) {
-    const title = m.segment === null ? r.spec.name : Object.entries(m.segment).map(([k, v]) => `${k}=${v ?? 'NULL'}`).join(', ');
-    out.push('', formatSolution(title, m.solution));
-  }
-  if (r.models.length > shown.length) {
-    out.push('', `… and ${r.models.length - shown.length} more models: query ${r.spec.schema}.latest_models, or use --json`);
+  const title = (m: RunFitResult['models'][number]) =>
+    m.segment === null ? r.spec.name : Object.entries(m.segment).map(([k, v]) => `${k}=${v ?? 'NULL'}`).join(', ');
+  if (r.models.length <= FULL_MODELS_UP_TO) {
+    for (const m of r.models) out.push('', formatSolution(title(m), m.solution));
+  } else {
+    // Many segments: one line each for the first few terms, then the first model in full.
+    const first = r.models[0]!;
+    const allTerms = first.solution.coefficients.map((c) => c.term).filter((t) => t !== INTERCEPT_TERM);
+    const terms = allTerms.slice(0, 3);
+    const keys = r.plan.keyNames;
+    const label = (m: RunFitResult['models'][number]) => (keys.length === 1 ? (m.segment?.[keys[0]!] ?? 'NULL') : title(m));
+    out.push('', formatSegmentsTable(r.models.map((m) => ({ label: label(m), solution: m.solution })), {
+      segmentHeading: keys.length === 1 ? keys[0]! : 'segment',
+      terms,
+    }));
+    if (allTerms.length > terms.length) out.push(`(${terms.length} of ${allTerms.length} terms shown; all in ${r.spec.schema}.latest_coefficients, or use --json)`);
+    out.push('', formatSolution(title(first), first.solution));
   }
   out.push('', `published to schema ${r.spec.schema} (views latest_models, latest_coefficients)`);
   return out.join('\n') + '\n';

@@ -1,6 +1,16 @@
 import type { RowBlock } from '../numeric/row-block.js';
 import { Accumulator } from './accumulator.js';
-import type { DesignShape, FoldMethod } from './accumulator.js';
+import type { DesignShape, FoldMethod, FoldPrecision } from './accumulator.js';
+
+/** How the accumulators of a SegmentedFit fold, and which segments it keeps. */
+export interface SegmentedFitOptions {
+  readonly method?: FoldMethod;
+  readonly precision?: FoldPrecision;
+  /** Block values come as (hi, lo) pairs (double-double only). */
+  readonly pairs?: boolean;
+  /** Fold only these segments (by key text); rows of others are passed over. */
+  readonly only?: ReadonlySet<string>;
+}
 
 /** One segment's accumulator with its key. */
 export interface SegmentState {
@@ -25,17 +35,18 @@ export class SegmentedFit {
   readonly shape: DesignShape;
   /** Names of the segment columns, for labels in error messages. */
   readonly keyNames: readonly string[];
-  readonly method: FoldMethod;
+  readonly options: SegmentedFitOptions;
   private readonly segments = new Map<string, SegmentState>();
   /** Key id → segment, for the key table of the reader feeding this instance. */
-  private byId: (SegmentState | undefined)[] = [];
+  /** Key id → segment, or null for a segment this instance passes over. */
+  private byId: (SegmentState | null | undefined)[] = [];
   private order = new Int32Array(0);
   private reordered = new Float64Array(0);
 
-  constructor(shape: DesignShape, keyNames: readonly string[] = [], method: FoldMethod = 'qr') {
+  constructor(shape: DesignShape, keyNames: readonly string[] = [], options: SegmentedFitOptions = {}) {
     this.shape = shape;
     this.keyNames = keyNames;
-    this.method = method;
+    this.options = options;
   }
 
   /** Number of segments seen so far. */
@@ -62,7 +73,7 @@ export class SegmentedFit {
       let start = 0;
       for (let i = 1; i <= n; i++) {
         if (i === n || keys[i] !== keys[start]) {
-          this.segment(keys[start]!, keyTable).acc.fold(block, start, i);
+          this.segment(keys[start]!, keyTable)?.acc.fold(block, start, i);
           start = i;
         }
       }
@@ -85,7 +96,7 @@ export class SegmentedFit {
     for (let k = 0; k < ids; k++) {
       const from = counts[k]!;
       const to = counts[k + 1]!;
-      if (to > from) this.segment(k, keyTable).acc.fold(sorted, from, to);
+      if (to > from) this.segment(k, keyTable)?.acc.fold(sorted, from, to);
     }
   }
 
@@ -105,18 +116,20 @@ export class SegmentedFit {
     if (!s) {
       const label =
         this.keyNames.length === 0 ? undefined : this.keyNames.map((n, i) => `${n}=${key[i] ?? 'NULL'}`).join(', ');
-      s = { key, keyText, acc: new Accumulator(this.shape, { label, method: this.method }) };
+      const { method, precision, pairs } = this.options;
+      s = { key, keyText, acc: new Accumulator(this.shape, { label, method, precision, pairs }) };
       this.segments.set(keyText, s);
     }
     return s;
   }
 
-  private segment(id: number, keyTable: ReadonlyArray<ReadonlyArray<string | null>>): SegmentState {
+  private segment(id: number, keyTable: ReadonlyArray<ReadonlyArray<string | null>>): SegmentState | null {
     let s = this.byId[id];
     if (s === undefined) {
       const key = keyTable[id];
       if (key === undefined) throw new RangeError(`key id ${id} is not in the key table`);
-      s = this.ensure(key);
+      const only = this.options.only;
+      s = only !== undefined && !only.has(JSON.stringify(key)) ? null : this.ensure(key);
       this.byId[id] = s;
     }
     return s;

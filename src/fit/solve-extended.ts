@@ -104,7 +104,7 @@ export function solveExtended(acc: Accumulator, options: SolveOptions = {}): Fit
 
   if (df <= 0) {
     const coefficients = base.coefficients.map((c, j) => ({ ...c, estimate: betaH[j]! }));
-    return { ...base, coefficients, notes, accuracy: 'extended', estimatedDigits: 15 };
+    return { ...base, coefficients, notes, accuracy: 'extended', estimatedDigits: extendedDigits(base) };
   }
 
   // Row j of R_X⁻¹ gives var(β_j)/σ²; columns of the inverse by refined solves.
@@ -162,7 +162,7 @@ export function solveExtended(acc: Accumulator, options: SolveOptions = {}): Fit
     ...base,
     notes,
     accuracy: 'extended',
-    estimatedDigits: 15,
+    estimatedDigits: extendedDigits(base),
     rss,
     sigma,
     r2,
@@ -174,4 +174,14 @@ export function solveExtended(acc: Accumulator, options: SolveOptions = {}): Fit
     bic: -2 * logLik + Math.log(rows) * (pd + 1),
     coefficients,
   };
+}
+
+/**
+ * The same perturbation estimate as the double path with the unit roundoff of
+ * double-double (about ε²) in place of ε: −log10 of the error gains −log10 ε ≈ 15.65
+ * digits, and the published doubles cap it at 15.
+ */
+function extendedDigits(base: FitSolution): number | null {
+  if (base.estimatedDigits === null) return null;
+  return Math.min(15, base.estimatedDigits - Math.log10(Number.EPSILON));
 }

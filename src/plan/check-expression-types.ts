@@ -31,3 +31,18 @@ export function checkExpressionTypes(
   });
   return casts;
 }
+
+/**
+ * Keys of the terms, response and weight whose SQL type is `numeric`: exact decimals that a
+ * float8 cast would round, carried as numeric when a fit needs every digit.
+ */
+export function numericExpressionKeys(
+  expressions: readonly ProbedExpression[],
+  typeNames: readonly string[],
+): Set<string> {
+  const keys = new Set<string>();
+  expressions.forEach((e, i) => {
+    if ((e.role === 'term' || e.role === 'response' || e.role === 'weight') && typeNames[i] === 'numeric') keys.add(e.key);
+  });
+  return keys;
+}

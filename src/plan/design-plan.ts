@@ -10,6 +10,8 @@ interface DesignColumn {
   /** Spec name the column derives from (term, categorical column, response, weight). */
   readonly origin: string;
   readonly sql: SqlTemplate;
+  /** Wire type of the column: float8, or numeric when exact decimals are carried. */
+  readonly type: 'float8' | 'numeric';
 }
 
 /** Everything the reader and the fit need to know about the design query. */
@@ -25,6 +27,13 @@ export interface DesignPlan {
   readonly levels: readonly CategoricalLevels[];
   /** One design query per partition (a single one without partitions). */
   readonly queries: readonly SqlTemplate[];
+  /** Per value column, its wire type (all float8 unless the plan carries exact decimals). */
+  readonly valueTypes: readonly ('float8' | 'numeric')[];
+  /**
+   * The same design with numeric expressions kept numeric, for a double-double pass
+   * (absent when built without the types to decide it).
+   */
+  readonly extended?: DesignPlan;
 }
 
 /**
@@ -39,11 +48,18 @@ export function buildDesignPlan(
   casts: ReadonlyMap<string, FloatCast>,
   levels: readonly CategoricalLevels[],
   partitions: readonly SqlTemplate[] | null,
+  exact: ReadonlySet<string> = new Set(),
 ): DesignPlan {
+  // Expressions of type numeric stay numeric when `exact` names them (a float8 cast would
+  // round their decimals); everything else is float8.
+  const valueOf = (key: string, sql: string): { sql: SqlTemplate; type: 'float8' | 'numeric' } =>
+    exact.has(key)
+      ? { sql: new SqlTemplate([`(${sql})::numeric`]), type: 'numeric' }
+      : { sql: new SqlTemplate([`(${sql})${casts.get(key) ?? '::float8'}`]), type: 'float8' };
   const termCols: DesignColumn[] = spec.terms.map((t, i) => ({
     name: t.name,
     origin: t.name,
-    sql: new SqlTemplate([`(${t.sql})${casts.get(`terms[${i}]`) ?? '::float8'}`]),
+    ...valueOf(`terms[${i}]`, t.sql),
   }));
   const catCols = new Map<string, DesignColumn[]>();
   levels.forEach((l, i) => {
@@ -57,6 +73,7 @@ export function buildDesignPlan(
           name: `${l.column}=${v}`,
           origin: l.column,
           sql: new SqlTemplate([`(${col}::text = `, { value: v }, ')::int::float8']),
+          type: 'float8' as const,
         })),
     );
   });
@@ -66,10 +83,15 @@ export function buildDesignPlan(
   for (const [a, b] of spec.interactions) {
     for (const ca of columnsOf(a)) {
       for (const cb of columnsOf(b)) {
+        // A product of two numerics is exact in numeric; any float8 factor makes it float8.
+        const numeric = ca.type === 'numeric' && cb.type === 'numeric';
         interactionCols.push({
           name: `${ca.name}*${cb.name}`,
           origin: `${ca.origin}*${cb.origin}`,
-          sql: SqlTemplate.join(['(', ca.sql, ' * ', cb.sql, ')']),
+          sql: numeric
+            ? SqlTemplate.join(['(', ca.sql, ' * ', cb.sql, ')'])
+            : SqlTemplate.join(['(', ca.sql, '::float8 * ', cb.sql, '::float8)']),
+          type: numeric ? 'numeric' : 'float8',
         });
       }
     }
@@ -77,10 +99,10 @@ export function buildDesignPlan(
   const design = [...termCols, ...[...catCols.values()].flat(), ...interactionCols];
   const values: DesignColumn[] = [
     ...design,
-    { name: spec.response, origin: spec.response, sql: new SqlTemplate([`(${spec.response})${casts.get('response') ?? '::float8'}`]) },
+    { name: spec.response, origin: spec.response, ...valueOf('response', spec.response) },
   ];
   if (spec.weight !== null) {
-    values.push({ name: spec.weight, origin: spec.weight, sql: new SqlTemplate([`(${spec.weight})${casts.get('weight') ?? '::float8'}`]) });
+    values.push({ name: spec.weight, origin: spec.weight, ...valueOf('weight', spec.weight) });
   }
 
   const select: (SqlTemplate | string)[] = ['SELECT '];
@@ -98,5 +120,6 @@ export function buildDesignPlan(
     keyNames: [...spec.segmentBy],
     levels,
     queries,
+    valueTypes: values.map((v) => v.type),
   };
 }

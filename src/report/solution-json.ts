@@ -26,6 +26,8 @@ export function solutionToJson(s: FitSolution): Record<string, unknown> {
     aic: num(s.aic),
     bic: num(s.bic),
     condition: num(s.condition),
+    accuracy: s.accuracy,
+    estimated_digits: num(s.estimatedDigits),
     aliased: s.aliased,
     coefficients: s.coefficients.map((c) => ({
       term: c.term,

@@ -1,4 +1,4 @@
-import { checkExpressionTypes } from '../plan/check-expression-types.js';
+import { checkExpressionTypes, numericExpressionKeys } from '../plan/check-expression-types.js';
 import { buildDesignPlan } from '../plan/design-plan.js';
 import type { DesignPlan } from '../plan/design-plan.js';
 import { partitionPredicates } from '../plan/partition-predicates.js';
@@ -25,6 +25,7 @@ export async function planFit(client: DbSession, spec: FitSpec, parallel: number
     throw await locateProbeFailure(client, spec, expressions, e);
   }
   const casts = checkExpressionTypes(expressions, types);
+  const numeric = numericExpressionKeys(expressions, types);
   const levels: CategoricalLevels[] = [];
   for (const [i, cat] of spec.categorical.entries()) {
     const rows = await queryAll(client, levelQuery(spec, cat.column, cat.maxLevels));
@@ -36,7 +37,10 @@ export async function planFit(client: DbSession, spec: FitSpec, parallel: number
     const rows = await queryAll(client, tablePagesQuery(table));
     pages = Number(rows[0]?.[0] ?? 0);
   }
-  return buildDesignPlan(spec, casts, levels, partitionPredicates(spec, parallel, pages));
+  const partitions = partitionPredicates(spec, parallel, pages);
+  const fast = buildDesignPlan(spec, casts, levels, partitions);
+  const extended = numeric.size > 0 ? buildDesignPlan(spec, casts, levels, partitions, numeric) : fast;
+  return { ...fast, extended };
 }
 
 /**

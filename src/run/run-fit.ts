@@ -1,7 +1,9 @@
 import { normalEquationsProblem } from '../fit/check-normal-equations.js';
 import type { FitSolution } from '../fit/fit-solution.js';
 import { SegmentedFit } from '../fit/segmented-fit.js';
+import type { SegmentState, SegmentedFitOptions } from '../fit/segmented-fit.js';
 import { solve } from '../fit/solve.js';
+import { solveExtended } from '../fit/solve-extended.js';
 import type { DesignPlan } from '../plan/design-plan.js';
 import type { Database } from '../source/database.js';
 import { openDatabase } from '../source/open-database.js';
@@ -28,6 +30,8 @@ export interface RunFitRequest {
   readonly parallel?: number;
   /** Overrides the spec's `read`. */
   readonly read?: 'copy' | 'rows' | undefined;
+  /** Overrides the spec's `accuracy`. */
+  readonly accuracy?: 'auto' | 'fast' | 'extended' | undefined;
   readonly dryRun?: boolean;
   /** Called now and then while rows stream. */
   readonly onProgress?: (p: { rowsRead: number; segments: number; seconds: number }) => void;
@@ -38,6 +42,8 @@ export interface FittedModel {
   readonly segment: Record<string, string | null> | null;
   readonly segmentKey: string;
   readonly solution: FitSolution;
+  /** Streamed passes over the data the run took (2 when `auto` added a double-double pass). */
+  readonly passes: number;
 }
 
 /** The outcome of a run (or of a dry run: the plan only). */
@@ -93,7 +99,13 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
         rowsSkipped: out.rowsSkipped,
         seconds: out.seconds,
         models: out.models.map(
-          (m): ModelRecord => ({ segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution }),
+          (m): ModelRecord => ({
+            segment: m.segment,
+            segmentKey: m.segmentKey,
+            method: spec.method,
+            solution: m.solution,
+            passes: m.passes,
+          }),
         ),
       });
       return { ...base, runId, ...out };
@@ -107,22 +119,25 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
   }
 }
 
-async function readAndSolve(
+/** Estimated correct digits below which `accuracy: auto` takes a double-double pass. */
+export const AUTO_EXTENDED_BELOW_DIGITS = 14;
+
+/** One streamed pass over the design query into per-segment accumulators. */
+async function readPass(
   database: Database,
-  spec: FitSpec,
   plan: DesignPlan,
+  spec: FitSpec,
   req: RunFitRequest,
-): Promise<Omit<RunFitResult, 'spec' | 'plan' | 'connection' | 'runId'>> {
-  const started = performance.now();
+  options: SegmentedFitOptions,
+  progress: { rows: number; last: number; started: number },
+): Promise<{ fit: SegmentedFit; counts: DesignReadCounts[] }> {
   const shape = {
     terms: plan.columns,
     response: spec.response,
     weight: spec.weight ?? undefined,
     intercept: spec.intercept,
   };
-  const fits = plan.queries.map(() => new SegmentedFit(shape, plan.keyNames, spec.method));
-  let rowsSoFar = 0;
-  let lastReport = started;
+  const fits = plan.queries.map(() => new SegmentedFit(shape, plan.keyNames, options));
   const counts = await Promise.all(
     plan.queries.map((query, i) =>
       // A session whose stream broke is discarded, not used again.
@@ -132,33 +147,86 @@ async function readAndSolve(
             query,
             keyNames: plan.keyNames,
             valueNames: plan.valueNames,
+            valueTypes: plan.valueTypes,
             mode: req.read ?? spec.read,
             nonFinite: spec.nonFinite === 'skip' ? 'skip' : 'pass',
           },
           (block, keyTable) => {
             fits[i]!.consume(block, keyTable);
-            rowsSoFar += block.rows;
+            progress.rows += block.rows;
             const now = performance.now();
-            if (req.onProgress && now - lastReport > 250) {
-              lastReport = now;
-              req.onProgress({ rowsRead: rowsSoFar, segments: fits.reduce((s, f) => s + f.size, 0), seconds: (now - started) / 1000 });
+            if (req.onProgress && now - progress.last > 250) {
+              progress.last = now;
+              req.onProgress({
+                rowsRead: progress.rows,
+                segments: fits.reduce((n, f) => n + f.size, 0),
+                seconds: (now - progress.started) / 1000,
+              });
             }
           },
         ),
       ),
     ),
   );
-  const rowsRead = counts.reduce((s, c) => s + c.rowsRead, 0);
+  const fit = fits[0]!;
+  for (const f of fits.slice(1)) fit.merge(f);
+  return { fit, counts };
+}
+
+async function readAndSolve(
+  database: Database,
+  spec: FitSpec,
+  plan: DesignPlan,
+  req: RunFitRequest,
+): Promise<Omit<RunFitResult, 'spec' | 'plan' | 'connection' | 'runId'>> {
+  const started = performance.now();
+  const progress = { rows: 0, last: started, started };
+  const accuracy = spec.method === 'normal' ? 'fast' : (req.accuracy ?? spec.accuracy);
+  // Numeric columns travel as numeric only over COPY; the row stream carries float8.
+  const extendedPlan = (req.read ?? spec.read) === 'copy' ? (plan.extended ?? plan) : plan;
+  const extendedOptions: SegmentedFitOptions = {
+    precision: 'double-double',
+    pairs: extendedPlan.valueTypes.includes('numeric'),
+  };
+  const first = await readPass(
+    database,
+    accuracy === 'extended' ? extendedPlan : plan,
+    spec,
+    req,
+    accuracy === 'extended' ? extendedOptions : { method: spec.method },
+    progress,
+  );
+  const counts = first.counts;
+  const rowsRead = counts.reduce((n, c) => n + c.rowsRead, 0);
   if (rowsRead === 0) throw new Error('the source returned no rows; there is nothing to fit');
-  const all = fits[0]!;
-  for (const f of fits.slice(1)) all.merge(f);
+  const all = first.fit;
   if (plan.keyNames.length === 0) all.ensure([]);
+
+  const solveOne = (s: SegmentState): FitSolution =>
+    s.acc.precision === 'double-double'
+      ? solveExtended(s.acc, { confidence: spec.confidence })
+      : solve(s.acc, { confidence: spec.confidence });
+  const solutions = new Map<string, FitSolution>();
+  for (const s of all.states()) solutions.set(s.keyText, solveOne(s));
+
+  // auto: one more pass, in double-double, for the models double precision cannot vouch for.
+  let passes = 1;
+  if (accuracy === 'auto') {
+    const weak = new Set(
+      [...solutions].filter(([, f]) => f.estimatedDigits !== null && f.estimatedDigits < AUTO_EXTENDED_BELOW_DIGITS).map(([k]) => k),
+    );
+    if (weak.size > 0) {
+      passes = 2;
+      const second = await readPass(database, extendedPlan, spec, req, { ...extendedOptions, only: weak }, progress);
+      for (const s of second.fit.states()) solutions.set(s.keyText, solveOne(s));
+    }
+  }
 
   const models: FittedModel[] = [];
   let rowsUsed = 0;
   let zeroWeight = 0;
   for (const s of all.states()) {
-    const solution = solve(s.acc, { confidence: spec.confidence });
+    const solution = solutions.get(s.keyText)!;
     if (spec.method === 'normal') {
       const problem = normalEquationsProblem(solution);
       if (problem !== null) throw new Error(`${s.acc.label === undefined ? '' : `segment ${s.acc.label}: `}${problem}`);
@@ -167,7 +235,7 @@ async function readAndSolve(
     zeroWeight += solution.zeroWeightRows;
     const segment =
       plan.keyNames.length === 0 ? null : Object.fromEntries(plan.keyNames.map((n, i) => [n, s.key[i] ?? null]));
-    models.push({ segment, segmentKey: plan.keyNames.length === 0 ? '' : s.keyText, solution });
+    models.push({ segment, segmentKey: plan.keyNames.length === 0 ? '' : s.keyText, solution, passes });
   }
   return {
     rowsRead,

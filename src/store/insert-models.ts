@@ -39,6 +39,9 @@ const MODEL_COLUMNS: readonly UnnestColumn<ModelRecord>[] = [
   f8('condition_number', (m) => m.solution.condition),
   f8('rank_tolerance', (m) => m.solution.rankTolerance),
   { name: 'aliased_terms', kind: 'text[]', value: (m) => JSON.stringify(m.solution.aliased) },
+  { name: 'accuracy', kind: 'text', value: (m) => m.solution.accuracy },
+  { name: 'passes', kind: 'int4', value: (m) => integerText(m.passes ?? 1, 'passes') },
+  f8('estimated_digits', (m) => m.solution.estimatedDigits),
 ];
 
 /**

@@ -16,4 +16,6 @@ export interface ModelRecord {
   readonly segmentKey: string;
   readonly method: SolveMethod;
   readonly solution: FitSolution;
+  /** Streamed passes over the data the run took for this model (default 1). */
+  readonly passes?: number;
 }

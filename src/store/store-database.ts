@@ -82,6 +82,12 @@ export interface ModelsTable {
   condition_number: number | null;
   rank_tolerance: number | null;
   aliased_terms: string[];
+  /** fast (double precision) or extended (double-double); migration 0002. */
+  accuracy: ColumnType<'fast' | 'extended', 'fast' | 'extended' | undefined, 'fast' | 'extended'>;
+  /** Streamed passes the run took; migration 0002. */
+  passes: ColumnType<number, number | undefined, number>;
+  /** Estimated correct significant digits; migration 0002. */
+  estimated_digits: number | null;
 }
 
 /** `coefficients`: one row per model and term. */

@@ -115,6 +115,9 @@ function expectedModel(m: ModelRecord) {
     condition_number: s.condition,
     rank_tolerance: s.rankTolerance,
     aliased_terms: [...s.aliased],
+    accuracy: s.accuracy,
+    passes: m.passes ?? 1,
+    estimated_digits: s.estimatedDigits,
   };
 }
 

@@ -27,6 +27,9 @@ export interface NistSet {
    * double-double, so no digit of the published data is lost on the way in.
    */
   readonly pairRows: readonly number[][];
+  /** Column names of the file (y first) and its data rows as the decimal text NIST printed. */
+  readonly columns: readonly string[];
+  readonly textRows: readonly string[][];
   readonly certified: NistCertified;
 }
 
@@ -59,8 +62,10 @@ export function loadNistSet(name: string): NistSet {
   const terms = meta.model.terms.filter((t) => t !== '1');
   const rows: number[][] = [];
   const pairRows: number[][] = [];
+  const textRows: string[][] = [];
   for (let i = first - 1; i < last; i++) {
     const texts = lines[i]!.trim().split(/\s+/);
+    textRows.push(texts);
     const exact = new Map(columns.map((c, j) => [c, parseDecimalDD(texts[j]!)]));
     const pairs: number[] = [];
     for (const t of terms) {
@@ -89,5 +94,5 @@ export function loadNistSet(name: string): NistSet {
     row.push(byName.get('y')!);
     rows.push(row);
   }
-  return { name, intercept: meta.model.intercept, terms, rows, pairRows, certified: meta.certified };
+  return { name, intercept: meta.model.intercept, terms, rows, pairRows, columns, textRows, certified: meta.certified };
 }
