@@ -8,8 +8,9 @@ import { maskSecrets } from '../source/mask-secrets.js';
 import { CliError, ExitCode } from './exit-codes.js';
 import { fitCommand } from './fit-command.js';
 import { fitCsvCommand } from './fit-csv-command.js';
+import { reportCommand } from './report-command.js';
 
-const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand];
+const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand, reportCommand];
 
 /**
  * Entry point of the `rowfold` command. Each command lives in its own module; this file

@@ -1,0 +1,117 @@
+import { escapeHtml } from './escape-html.js';
+import { formatCount, formatNumber, formatP } from './format-number.js';
+import type { ReportCoefficient, ReportModel } from './report-run.js';
+
+/** Segments whose tables start open; the rest are one click away. */
+const OPEN_SEGMENTS = 5;
+
+/**
+ * One collapsible block per segment: the model's status and notes, its fit statistics, and
+ * its coefficient table (aliased terms shown as such, never with numbers). Numbers are
+ * rounded for reading; every cell keeps the stored value in `data-value`. With more than a
+ * few segments an overview table links to each block.
+ */
+export function renderModelSection(models: readonly ReportModel[]): string {
+  const out: string[] = ['<section id="models">', '<h2>Models and coefficients by segment</h2>'];
+  out.push(
+    `<p class="lead">${models.length} model${models.length === 1 ? '' : 's'}, in segment-key order${
+      models.length > OPEN_SEGMENTS ? `; the first ${OPEN_SEGMENTS} are open, click a segment to open or close it` : ''
+    }.</p>`,
+  );
+  if (models.length > OPEN_SEGMENTS) out.push(renderOverview(models));
+  models.forEach((m, i) => out.push(renderModel(m, i, i < OPEN_SEGMENTS)));
+  out.push('</section>');
+  return out.join('\n');
+}
+
+function statusBadge(status: string): string {
+  return `<span class="status${status === 'ok' ? '' : ' warn'}">${escapeHtml(status)}</span>`;
+}
+
+function renderOverview(models: readonly ReportModel[]): string {
+  const out = ['<table id="segment-overview"><thead><tr><th>segment</th><th>status</th><th class="num">rows</th><th class="num">R²</th><th class="num">σ</th><th class="num">condition</th><th class="num">aliased</th></tr></thead><tbody>'];
+  models.forEach((m, i) => {
+    out.push(
+      `<tr><td><a href="#seg-${i}">${escapeHtml(m.label)}</a></td><td>${statusBadge(m.status)}</td><td class="num">${formatCount(m.rows)}</td>` +
+        `<td class="num">${formatNumber(m.r2, 4)}</td><td class="num">${formatNumber(m.sigma, 5)}</td>` +
+        `<td class="num">${formatNumber(m.conditionNumber, 3)}</td><td class="num">${m.aliasedTerms.length}</td></tr>`,
+    );
+  });
+  out.push('</tbody></table>');
+  return out.join('\n');
+}
+
+function renderModel(m: ReportModel, index: number, open: boolean): string {
+  const out: string[] = [];
+  out.push(
+    `<details class="segment" id="seg-${index}" data-segment-key="${escapeHtml(m.segmentKey)}"${open ? ' open' : ''}>`,
+    `<summary>${escapeHtml(m.label)} <span class="meta">${statusBadge(m.status)} · ${formatCount(m.rows)} rows` +
+      (m.r2 === null ? '' : ` · R² ${formatNumber(m.r2, 4)}`) +
+      '</span></summary>',
+    '<div>',
+  );
+  if (m.notes.length > 0) out.push(`<ul class="notes">${m.notes.map((n) => `<li>${escapeHtml(n)}</li>`).join('')}</ul>`);
+  out.push(renderStats(m));
+  if (m.status === 'too_few_rows' || m.status === 'no_rows') {
+    out.push('<p>Nothing was estimated for this segment.</p>');
+  } else {
+    out.push(renderCoefficients(m.coefficients, m.confidence));
+  }
+  out.push('</div>', '</details>');
+  return out.join('\n');
+}
+
+function renderStats(m: ReportModel): string {
+  const stats: [string, string, number | null][] = [
+    ['rows', formatCount(m.rows), m.rows],
+    ['rank', `${m.rank} of ${m.coefficients.length}`, m.rank],
+    ['residual df', formatCount(m.dfResidual), m.dfResidual],
+    ['R²', formatNumber(m.r2, 5), m.r2],
+    ['adjusted R²', formatNumber(m.r2Adjusted, 5), m.r2Adjusted],
+    ['σ (residual SE)', formatNumber(m.sigma, 5), m.sigma],
+    ['F', m.f === null ? '–' : `${formatNumber(m.f, 5)} on ${formatNumber(m.fDf1)} and ${formatNumber(m.fDf2)} df`, m.f],
+    ['p of F', formatP(m.fP), m.fP],
+    ['log-likelihood', formatNumber(m.logLik, 7), m.logLik],
+    ['AIC', formatNumber(m.aic, 7), m.aic],
+    ['BIC', formatNumber(m.bic, 7), m.bic],
+    ['condition number', formatNumber(m.conditionNumber, 4), m.conditionNumber],
+  ];
+  if (m.zeroWeightRows > 0) stats.splice(1, 0, ['zero-weight rows', formatCount(m.zeroWeightRows), m.zeroWeightRows]);
+  const cells = stats.map(
+    ([k, text, v]) => `<div data-stat="${escapeHtml(k)}" data-value="${v === null ? '' : String(v)}"><dt>${escapeHtml(k)}</dt><dd>${escapeHtml(text)}</dd></div>`,
+  );
+  cells.push(`<div><dt>method</dt><dd>${escapeHtml(m.method)}</dd></div>`);
+  cells.push(
+    `<div data-stat="aliased terms"><dt>aliased terms</dt><dd>${m.aliasedTerms.length === 0 ? 'none' : m.aliasedTerms.map(escapeHtml).join(', ')}</dd></div>`,
+  );
+  return `<dl class="stats">${cells.join('')}</dl>`;
+}
+
+function renderCoefficients(coefficients: readonly ReportCoefficient[], confidence: number): string {
+  const level = `${Math.round(confidence * 1000) / 10}%`;
+  const cell = (v: number | null, text: string) => `<td class="num" data-value="${v === null ? '' : String(v)}">${escapeHtml(text)}</td>`;
+  const out = [
+    '<table class="coefficients"><thead><tr><th>term</th><th class="num">estimate</th><th class="num">std. error</th>' +
+      `<th class="num">t</th><th class="num">p</th><th class="num">${level} low</th><th class="num">${level} high</th><th class="num">VIF</th></tr></thead><tbody>`,
+  ];
+  for (const c of coefficients) {
+    const term = `<td><code>${escapeHtml(c.term)}</code></td>`;
+    if (c.aliased) {
+      out.push(`<tr class="aliased" data-term="${escapeHtml(c.term)}">${term}<td colspan="7">aliased: a linear combination of earlier terms, not estimated</td></tr>`);
+      continue;
+    }
+    out.push(
+      `<tr data-term="${escapeHtml(c.term)}">${term}` +
+        cell(c.estimate, formatNumber(c.estimate)) +
+        cell(c.stdError, formatNumber(c.stdError, 4)) +
+        cell(c.t, formatNumber(c.t, 4)) +
+        cell(c.p, formatP(c.p)) +
+        cell(c.ciLow, formatNumber(c.ciLow)) +
+        cell(c.ciHigh, formatNumber(c.ciHigh)) +
+        cell(c.vif, formatNumber(c.vif, 3)) +
+        '</tr>',
+    );
+  }
+  out.push('</tbody></table>');
+  return out.join('\n');
+}

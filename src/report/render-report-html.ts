@@ -1,0 +1,72 @@
+import { escapeHtml } from './escape-html.js';
+import { renderAcrossSegmentsSection } from './render-across-segments-section.js';
+import { renderAuditSection } from './render-audit-section.js';
+import type { ReportContext } from './render-audit-section.js';
+import { renderCautionsSection } from './render-cautions-section.js';
+import { renderConditioningSection } from './render-conditioning-section.js';
+import { renderModelSection } from './render-model-section.js';
+import { renderResidualSection } from './render-residual-section.js';
+import type { ResidualOutcome } from './render-residual-section.js';
+import type { ReportModel, ReportRun } from './report-run.js';
+import { REPORT_CSS } from './report-styles.js';
+
+/** Everything one report shows. */
+export interface ReportContent {
+  readonly run: ReportRun;
+  readonly context: ReportContext;
+  /** The segment whose residuals are plotted. */
+  readonly residualModel: ReportModel;
+  readonly residuals: ResidualOutcome;
+}
+
+const SECTIONS: readonly [string, string][] = [
+  ['run', 'Run'],
+  ['models', 'Models'],
+  ['across-segments', 'Across segments'],
+  ['residuals', 'Residuals'],
+  ['conditioning', 'Conditioning'],
+  ['cautions', 'Cautions'],
+];
+
+/**
+ * The report as one self-contained HTML document: inline style sheet, charts as inline
+ * SVG, no script, no external resource (a Content-Security-Policy that forbids both says
+ * so to the browser as well).
+ */
+export async function renderReportHtml(content: ReportContent): Promise<string> {
+  const { run, context } = content;
+  const title = `rowfold · fit ${run.fitName} · run ${run.runId}`;
+  const sections = [
+    renderAuditSection(run, context),
+    renderModelSection(run.models),
+    await renderAcrossSegmentsSection(run.models, run.segmentColumns),
+    await renderResidualSection(content.residualModel, content.residuals),
+    await renderConditioningSection(run.models, run.segmentColumns),
+    renderCautionsSection(run.models),
+  ];
+  const models = run.models.length;
+  return [
+    '<!doctype html>',
+    '<html lang="en">',
+    '<head>',
+    '<meta charset="utf-8">',
+    `<meta http-equiv="Content-Security-Policy" content="default-src 'none'; style-src 'unsafe-inline'">`,
+    '<meta name="viewport" content="width=device-width, initial-scale=1">',
+    `<title>${escapeHtml(title)}</title>`,
+    `<style>${REPORT_CSS}</style>`,
+    '</head>',
+    '<body>',
+    '<header class="page">',
+    `<h1>Fit ${escapeHtml(run.fitName)}</h1>`,
+    `<p>Run ${escapeHtml(run.runId)} · ${models} model${models === 1 ? '' : 's'} · ended ${escapeHtml(run.endedAt.toISOString().slice(0, 10))}</p>`,
+    '</header>',
+    `<nav class="contents">${SECTIONS.map(([id, name]) => `<a href="#${id}">${name}</a>`).join('')}</nav>`,
+    '<main>',
+    ...sections,
+    '</main>',
+    `<footer>Made by rowfold ${escapeHtml(context.toolVersion)} from the result tables in schema ${escapeHtml(run.schema)}. A single file: no scripts, nothing loaded from elsewhere.</footer>`,
+    '</body>',
+    '</html>',
+    '',
+  ].join('\n');
+}

@@ -1,0 +1,108 @@
+import { mkdir, writeFile } from 'node:fs/promises';
+import { dirname, resolve } from 'node:path';
+import { toolVersion } from '../run/tool-version.js';
+import type { Database } from '../source/database.js';
+import { maskSecrets } from '../source/mask-secrets.js';
+import { parseFitSpec } from '../spec/parse-fit-spec.js';
+import type { FitSpec } from '../spec/fit-spec.js';
+import { createStoreDb, DEFAULT_STORE_SCHEMA } from '../store/index.js';
+import { chooseSegment } from './choose-segment.js';
+import { loadReportRun } from './load-report-run.js';
+import type { ResidualOutcome } from './render-residual-section.js';
+import { renderReportHtml } from './render-report-html.js';
+import type { ReportModel, ReportRun } from './report-run.js';
+import { sampleResiduals } from './sample-residuals.js';
+
+/** What {@link writeFitReport} should report on, and where to write it. */
+export interface WriteFitReportOptions {
+  /** The fit's name. */
+  readonly fit: string;
+  /** Result schema; default `rowfold`. */
+  readonly schema?: string;
+  /** Segment for the residual plots: its key (`["F07"]`) or `col=value`; default the segment with most rows. */
+  readonly segment?: string | undefined;
+  /** The HTML file to write (its folder is created when missing). */
+  readonly out: string;
+  /** Most rows sampled for the residual plots; default 2000. */
+  readonly sampleRows?: number;
+}
+
+const DEFAULT_SAMPLE_ROWS = 2000;
+
+/**
+ * Writes the HTML report of a fit's newest succeeded run: audit trail, coefficient tables
+ * per segment, each coefficient across segments, residual plots of one segment from a
+ * random sample of its rows, conditioning and aliased terms, and cautions on reading them.
+ *
+ * Results are read through kysely over `database.dialect()`, the sample through a
+ * {@link Database} session, so any back end serves. When the sample cannot be read (the
+ * source was dropped or changed type) the report is still written and says why.
+ *
+ * @throws ReportError when there is no succeeded run, or `segment` matches no model.
+ *
+ * @example
+ * const database = await openDatabase({ env: process.env, sessions: 2 });
+ * try {
+ *   const { path } = await writeFitReport(database, { fit: 'feeder_load', out: 'feeder_load.html' });
+ * } finally { await database.close(); }
+ */
+export async function writeFitReport(database: Database, opts: WriteFitReportOptions): Promise<{ path: string; segments: number }> {
+  const schema = opts.schema ?? DEFAULT_STORE_SCHEMA;
+  const sampleRows = opts.sampleRows ?? DEFAULT_SAMPLE_ROWS;
+  if (!Number.isInteger(sampleRows) || sampleRows < 1) throw new RangeError(`sampleRows must be a positive whole number, got ${sampleRows}`);
+  const db = createStoreDb(database.dialect());
+  let run: ReportRun;
+  try {
+    run = await loadReportRun(db, schema, opts.fit, (text) => tryParseSpec(text, opts.fit)?.segmentBy ?? []);
+  } finally {
+    await db.destroy();
+  }
+  const model = chooseSegment(run.models, opts.segment);
+  const residuals = await residualOutcome(database, run.specText, opts.fit, run.runId, model, sampleRows);
+  const html = await renderReportHtml({
+    run,
+    context: { database: database.display, generatedAt: new Date(), toolVersion: toolVersion() },
+    residualModel: model,
+    residuals,
+  });
+  const path = resolve(opts.out);
+  await mkdir(dirname(path), { recursive: true });
+  await writeFile(path, html, 'utf8');
+  return { path, segments: run.models.length };
+}
+
+function tryParseSpec(text: string, fit: string): FitSpec | null {
+  try {
+    return parseFitSpec(text, `stored spec of ${fit}`);
+  } catch {
+    return null;
+  }
+}
+
+async function residualOutcome(
+  database: Database,
+  specText: string,
+  fit: string,
+  runId: string,
+  model: ReportModel,
+  sampleRows: number,
+): Promise<ResidualOutcome> {
+  if (model.status !== 'ok' && model.status !== 'no_residual_df') {
+    return { problem: `The model of this segment has no estimates (${model.status}): there are no fitted values to plot.` };
+  }
+  let spec: FitSpec;
+  try {
+    spec = parseFitSpec(specText, `stored spec of run ${runId}`);
+  } catch (e) {
+    return { problem: `The stored spec of run ${runId} no longer parses, so the design query cannot be planned again: ${message(e)}` };
+  }
+  try {
+    return { sample: await sampleResiduals(database, spec, model, sampleRows) };
+  } catch (e) {
+    return { problem: `Could not read a sample of the rows of fit ${fit} from the source: ${message(e)}` };
+  }
+}
+
+function message(e: unknown): string {
+  return maskSecrets(e instanceof Error ? e.message : String(e));
+}
