@@ -7,6 +7,14 @@ import type { RowBlock } from '../numeric/row-block.js';
 import { FitInputError } from './fit-input-error.js';
 import { FoldWorkspace, sharedWorkspace } from './fold-workspace.js';
 
+const zeroShifts = new Map<number, Float64Array>();
+/** A shared all-zero shift of the given length (accumulators that do not shift). */
+function ZERO_SHIFT(p: number): Float64Array {
+  let z = zeroShifts.get(p);
+  if (z === undefined) zeroShifts.set(p, (z = new Float64Array(p + 1)));
+  return z;
+}
+
 /** The columns an accumulator folds, by name, for shape checks and error messages. */
 export interface DesignShape {
   /** Names of the design columns supplied in each block row (the intercept excluded). */
@@ -43,6 +51,8 @@ export interface AccumulatorState {
   readonly method: FoldMethod;
   /** Low parts of the factor when it is double-double. */
   readonly factorLow?: Float64Array | undefined;
+  /** Shifts subtracted from the term and response columns before folding (see Accumulator.shift). */
+  readonly shift?: Float64Array | undefined;
   /** Rows folded with a positive weight. */
   readonly rows: number;
   /** Rows seen with weight exactly zero (left out of the fit, counted). */
@@ -84,6 +94,7 @@ export class Accumulator {
   private readonly rLow: Float64Array | undefined;
   private cholesky: Float64Array | undefined;
   private readonly workspace: FoldWorkspace;
+  private shiftBy: Float64Array | undefined;
   private nRows = 0;
   private nZeroWeight = 0;
   private sumW = 0;
@@ -123,6 +134,23 @@ export class Accumulator {
   /** Low parts of the double-double factor (undefined in double precision). */
   get factorLow(): Float64Array | undefined {
     return this.rLow;
+  }
+
+  /**
+   * Constants subtracted from each term column and from the response before folding
+   * (the values of the first row folded), or undefined. With an intercept any shift is
+   * exact algebra — the slopes are unchanged and the intercept is recovered after solving —
+   * but it takes the columns' common offset out of the factor, so an x that ranges over
+   * 1947…1962 no longer looks almost like the intercept column and fewer digits are lost
+   * (double-precision QR fits only).
+   */
+  get shift(): Float64Array | undefined {
+    return this.shiftBy;
+  }
+
+  /** Whether this accumulator shifts its columns. */
+  private get shifts(): boolean {
+    return this.shape.intercept && this.method === 'qr' && this.rLow === undefined;
   }
 
   /** Width a block row must have: terms, response, and the weight when weighted (twice that in pairs). */
@@ -195,7 +223,7 @@ export class Accumulator {
         this.errorContext(),
       );
     }
-    this.mergeFactor(other.r, other.rLow);
+    this.mergeFactor(other.r, other.rLow, other.shiftBy);
     this.nRows += other.nRows;
     this.nZeroWeight += other.nZeroWeight;
     this.sumW += other.sumW;
@@ -209,6 +237,7 @@ export class Accumulator {
       factor: this.r.slice(),
       method: this.method,
       factorLow: this.rLow?.slice(),
+      shift: this.shiftBy?.slice(),
       rows: this.nRows,
       zeroWeightRows: this.nZeroWeight,
       sumWeights: this.sumW,
@@ -227,7 +256,7 @@ export class Accumulator {
     if ((state.factorLow === undefined) !== (this.rLow === undefined)) {
       throw new FitInputError('cannot merge factors of different precision', this.errorContext());
     }
-    this.mergeFactor(state.factor, state.factorLow);
+    this.mergeFactor(state.factor, state.factorLow, state.shift);
     this.nRows += state.rows;
     this.nZeroWeight += state.zeroWeightRows;
     this.sumW += state.sumWeights;
@@ -328,8 +357,9 @@ export class Accumulator {
       }
       const sw = weighted ? Math.sqrt(w) : 1;
       if (icpt === 1) buf[fill] = sw;
-      for (let j = 0; j < p; j++) buf[(j + icpt) * m + fill] = v[base + j]! * sw;
-      buf[yCol + fill] = v[base + p]! * sw;
+      const c = this.shiftBy ?? (this.shifts ? (this.shiftBy = v.slice(base, base + p + 1)) : ZERO_SHIFT(p));
+      for (let j = 0; j < p; j++) buf[(j + icpt) * m + fill] = (v[base + j]! - c[j]!) * sw;
+      buf[yCol + fill] = (v[base + p]! - c[p]!) * sw;
       this.nRows++;
       this.sumW += w;
       if (weighted) this.sumLogW += Math.log(w);
@@ -387,9 +417,24 @@ export class Accumulator {
     if (fill > 0) householderFoldDD(n, this.r, rLow, bh, bl, fill, m);
   }
 
-  private mergeFactor(other: Float64Array, otherLow?: Float64Array): void {
+  private mergeFactor(other: Float64Array, otherLow?: Float64Array, otherShift?: Float64Array): void {
     const n = this.order;
     this.cholesky = undefined;
+    if (otherShift !== undefined) {
+      if (this.shiftBy === undefined) {
+        // This factor holds no rows yet (or was built without shifts): take the other's.
+        this.shiftBy = otherShift.slice();
+      } else if (otherShift.some((c, j) => c !== this.shiftBy![j])) {
+        // Re-express the other factor in this one's shift: R·M(c' − c) changes row 0 only,
+        // R'[0, j] = R[0, j] − (c'_j − c_j)·R[0, 0].
+        const moved = other.slice();
+        const r00 = moved[0]!;
+        for (let j = 0; j < otherShift.length; j++) {
+          moved[j + 1] = moved[j + 1]! - (this.shiftBy[j]! - otherShift[j]!) * r00;
+        }
+        other = moved;
+      }
+    }
     if (this.rLow !== undefined && otherLow !== undefined) {
       const both = this.workspace.take(2 * n * n);
       const bh = both.subarray(0, n * n);

@@ -164,6 +164,24 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
     }
   }
 
+  const shift = acc.shift;
+  if (shift !== undefined && intercept && qr.kept[0] === 0) {
+    unshiftIntercept(coefficients, covariance, qr.kept, shift, inference ? q : null, dfResidual);
+  }
+
+  // For the digit estimate: with shifted columns the published intercept is
+  // b0' + c_y − Σ b_j c_j, so its error gathers the slopes' errors times |c_j|.
+  const interceptContext = () =>
+    shift !== undefined && intercept && qr.kept[0] === 0 && coefficients[0]!.estimate !== null
+      ? {
+          value: coefficients[0]!.estimate,
+          scales: qr.kept.map((j) => scale[j]!),
+          shifts: qr.kept.map((j) => (j === 0 ? 0 : shift[j - 1]!)),
+          terms: Math.abs(shift[shift.length - 1]!) +
+            qr.kept.reduce((sum, j) => sum + (j === 0 ? Math.abs(betaScaled[0]! / scale[0]!) : Math.abs(coefficients[j]!.estimate! * shift[j - 1]!)), 0),
+        }
+      : undefined;
+
   const fDf1 = k - icpt;
   let f: number | null = null;
   let fP: number | null = null;
@@ -191,7 +209,7 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
     status,
     notes,
     accuracy: 'fast',
-    estimatedDigits: estimateDigits(betaScaled, qr.residualNorm, qr.r11, rInv, cScaled),
+    estimatedDigits: estimateDigits(betaScaled, qr.residualNorm, qr.r11, rInv, cScaled, interceptContext()),
     rank: k,
     dfResidual,
     rss,
@@ -228,6 +246,7 @@ function estimateDigits(
   r11: Float64Array,
   rInv: Float64Array,
   cScaled: Float64Array,
+  interceptOf?: { value: number; scales: number[]; shifts: number[]; terms: number },
 ): number | null {
   const k = betaScaled.length;
   if (k === 0) return null;
@@ -241,6 +260,7 @@ function estimateDigits(
     }
   }
   let worst = eps;
+  const absErr = new Float64Array(k); // absolute error of each scaled coefficient
   for (let j = 0; j < k; j++) {
     let consistent = 0;
     let ones = 0;
@@ -250,11 +270,69 @@ function estimateDigits(
       ones += m[j * k + l]!;
       residual += Math.abs(cScaled[j * k + l]!);
     }
-    const betaRel = (eps * (consistent + residualNorm * residual)) / Math.abs(betaScaled[j]!);
-    worst = Math.max(worst, eps * ones, betaRel);
+    absErr[j] = eps * (consistent + residualNorm * residual);
+    worst = Math.max(worst, eps * ones);
+    if (j > 0 || interceptOf === undefined) worst = Math.max(worst, absErr[j]! / Math.abs(betaScaled[j]!));
+  }
+  if (interceptOf !== undefined) {
+    // b0 = b0' + c_y − Σ b_j c_j, in original units.
+    let err = eps * interceptOf.terms + absErr[0]! / interceptOf.scales[0]!;
+    for (let j = 1; j < k; j++) err += (absErr[j]! / interceptOf.scales[j]!) * Math.abs(interceptOf.shifts[j]!);
+    worst = Math.max(worst, err / Math.abs(interceptOf.value));
   }
   if (!Number.isFinite(worst)) return 0;
   return Math.max(0, Math.min(15, -Math.log10(worst)));
+}
+
+/**
+ * The fit ran on shifted columns (x_j − c_j, y − c_y); slopes are unchanged and the
+ * intercept of the original columns is b0 = b0' + c_y − Σ b_j c_j, with variance gᵀCg for
+ * g = (1, −c_1, …). Rewrites the intercept's coefficient and the covariance's first row
+ * and column in place.
+ */
+function unshiftIntercept(
+  coefficients: CoefficientResult[],
+  covariance: Float64Array | null,
+  kept: readonly number[],
+  shift: Float64Array,
+  q: number | null,
+  df: number,
+): void {
+  const p = shift.length - 1;
+  const k = kept.length;
+  const g = kept.map((j) => (j === 0 ? 1 : -shift[j - 1]!));
+  const c0 = coefficients[0]!;
+  if (c0.estimate === null) return;
+  let estimate = c0.estimate + shift[p]!;
+  for (let pos = 1; pos < k; pos++) estimate += g[pos]! * coefficients[kept[pos]!]!.estimate!;
+  if (covariance === null || q === null) {
+    coefficients[0] = { ...c0, estimate };
+    return;
+  }
+  const cg = new Float64Array(k);
+  for (let i = 0; i < k; i++) {
+    let sum = 0;
+    for (let l = 0; l < k; l++) sum += covariance[i * k + l]! * g[l]!;
+    cg[i] = sum;
+  }
+  let variance = 0;
+  for (let i = 0; i < k; i++) variance += g[i]! * cg[i]!;
+  for (let i = 0; i < k; i++) {
+    covariance[i] = cg[i]!;
+    covariance[i * k] = cg[i]!;
+  }
+  covariance[0] = variance;
+  const stdError = Math.sqrt(variance);
+  const t = estimate / stdError;
+  coefficients[0] = {
+    ...c0,
+    estimate,
+    stdError,
+    t,
+    p: tTwoSided(t, df),
+    ciLow: estimate - q * stdError,
+    ciHigh: estimate + q * stdError,
+  };
 }
 
 function nullCoefficient(term: string, aliased: boolean): CoefficientResult {

@@ -43,9 +43,12 @@ describe('Accumulator fold and merge', () => {
     const acc = foldRows(shape, ROWS);
     const n = acc.order;
     const ref = new Float64Array(packedLength(n));
+    // The accumulator folds shifted columns (x − c, y − c_y, c the first row); so does the reference.
+    const c = acc.shift!;
+    expect(Array.from(c)).toEqual(ROWS[0]!.slice(0, P + 1));
     for (const row of ROWS) {
       const sw = Math.sqrt(row[P + 1]!);
-      const scaled = Float64Array.from([sw, ...row.slice(0, P).map((v) => v * sw), row[P]! * sw]);
+      const scaled = Float64Array.from([sw, ...row.slice(0, P).map((v, j) => (v - c[j]!) * sw), (row[P]! - c[P]!) * sw]);
       givensFoldRow(n, ref, scaled);
     }
     const a = normalisedFactor(n, acc.factor);
