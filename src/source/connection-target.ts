@@ -60,7 +60,9 @@ const SESSION_DEFAULTS = { fallback_application_name: 'rowfold' } as const;
 /**
  * Decides which database to connect to. Precedence: the `--db` URL, else `DATABASE_URL`,
  * else the libpq `PG*` variables (when any is set), else libpq's defaults (the local server
- * on port 5432, as the operating-system user). This is the one place that decision is made.
+ * on port 5432, as the operating-system user; `from: 'defaults'`, which openDatabase takes as
+ * "nothing configured" and answers with the embedded database). This is the one place that
+ * decision is made; `--db embedded:FOLDER` is recognised by openDatabase before it gets here.
  *
  * With a URL, parts it leaves out (user, host, port, database) fall back to the `PG*`
  * variables and then to the defaults, as in libpq and pg.
@@ -78,7 +80,7 @@ export function resolveConnection(opts: ResolveConnectionOptions): ConnectionTar
   const databaseUrl = env['DATABASE_URL'];
   if (databaseUrl !== undefined && databaseUrl !== '') return fromUrl(databaseUrl, 'DATABASE_URL', 'DATABASE_URL', env);
   const anyPgVariable = PG_VARIABLES.some((name) => nonEmpty(env[name]) !== undefined);
-  // The embedded database will take the 'defaults' branch; libpq's defaults until then.
+  // openDatabase turns 'defaults' (nothing configured) into the embedded database.
   return anyPgVariable ? fromPgVariables(env) : fromDefaults(env);
 }
 
@@ -86,7 +88,8 @@ function fromUrl(url: string, from: ConnectionSource, label: string, env: NodeJS
   const shown = JSON.stringify(maskSecrets(url));
   const scheme = /^([A-Za-z][A-Za-z0-9+.-]*):/.exec(url)?.[1]?.toLowerCase();
   if (scheme !== 'postgres' && scheme !== 'postgresql') {
-    throw new ConnectionConfigError(`${label} must be a PostgreSQL URL such as ${URL_EXAMPLE}; got ${shown}`, from);
+    const embedded = label === '--db' ? ' (or embedded:FOLDER for the embedded database)' : '';
+    throw new ConnectionConfigError(`${label} must be a PostgreSQL URL such as ${URL_EXAMPLE}${embedded}; got ${shown}`, from);
   }
   const result = parseLikePg(url);
   if (result === undefined) {

@@ -1,20 +1,59 @@
+import { homedir } from 'node:os';
+import { resolve } from 'node:path';
+
 import { resolveConnection } from './connection-target.js';
 import type { Database } from './database.js';
+import { openEmbeddedDatabase } from './embedded-database.js';
 import { openServerDatabase } from './server-database.js';
 
 /** Where to connect: `--db`, the environment, and how many sessions the caller needs. */
 export interface OpenDatabaseOptions {
+  /** `--db`: a PostgreSQL URL, or `embedded:FOLDER` for the embedded database. */
   readonly db?: string | undefined;
   readonly env: NodeJS.ProcessEnv;
-  /** Sessions the caller may use at once (readers + one). */
+  /** Sessions the caller may use at once (readers + one); the embedded database serves one. */
   readonly sessions: number;
+  /** Folder that relative embedded paths are taken from; default the working directory. */
+  readonly cwd?: string;
 }
 
+/** `--db embedded:FOLDER` selects the embedded database in FOLDER (our own prefix). */
+export const EMBEDDED_PREFIX = 'embedded:';
+
+/** The embedded database's folder when nothing names one, relative to the working directory. */
+export const DEFAULT_EMBEDDED_DIR = '.rowfold/db';
+
 /**
- * Opens the database the options point at: `--db URL`, else DATABASE_URL, else the libpq
- * PG* variables, else libpq's defaults.
+ * Opens the database the options point at:
+ *
+ * 1. `--db embedded:FOLDER` → the embedded database in FOLDER (relative to the working
+ *    directory; `~/` is the home folder; `embedded:` alone means the default folder below);
+ * 2. `--db URL`, else `DATABASE_URL`, else the libpq `PG*` variables → that PostgreSQL server;
+ * 3. none of these → the embedded database (PGlite) in `ROWFOLD_DATA_DIR`, else
+ *    `.rowfold/db` under the working directory.
+ *
+ * The third case is the zero-setup first run: with nothing configured there is no server to
+ * guess at (libpq would try the local socket as the OS user), so rowfold keeps its results in
+ * a folder of its own instead, where a later `--db` can never mistake them for a server's.
+ *
+ * @example
+ * const database = await openDatabase({ db: argv.db, env: process.env, sessions: parallel + 1 });
+ * console.error(`using ${database.kind} database ${database.display}`);
  */
 export async function openDatabase(opts: OpenDatabaseOptions): Promise<Database> {
-  const target = resolveConnection({ db: opts.db, env: opts.env });
+  const { db, env } = opts;
+  if (db !== undefined && db.startsWith(EMBEDDED_PREFIX)) {
+    return openEmbeddedDatabase(embeddedDir(db.slice(EMBEDDED_PREFIX.length), opts));
+  }
+  const target = resolveConnection({ db, env });
+  if (target.from === 'defaults') return openEmbeddedDatabase(embeddedDir('', opts));
   return openServerDatabase(target, Math.max(1, opts.sessions));
+}
+
+/** The embedded folder as an absolute path: the given one, else ROWFOLD_DATA_DIR, else the default. */
+export function embeddedDir(path: string, opts: Pick<OpenDatabaseOptions, 'env' | 'cwd'>): string {
+  const fromEnv = opts.env['ROWFOLD_DATA_DIR'];
+  const chosen = path !== '' ? path : fromEnv !== undefined && fromEnv !== '' ? fromEnv : DEFAULT_EMBEDDED_DIR;
+  const expanded = chosen === '~' || chosen.startsWith('~/') ? homedir() + chosen.slice(1) : chosen;
+  return resolve(opts.cwd ?? process.cwd(), expanded);
 }

@@ -4,6 +4,7 @@ import type { SqlTemplate } from '../plan/sql-template.js';
 import { CopyBinaryDecoder, CopyDecodeError } from './copy-binary-decoder.js';
 import type { CopyBinaryDecoderOptions, DecodedBlock, NonFinitePolicy } from './copy-binary-decoder.js';
 import { DesignReadError } from './design-read-error.js';
+import type { DesignTransport } from './design-transport.js';
 import { maskSecrets } from './mask-secrets.js';
 import { RowArrayBlockBuilder } from './row-array-block-builder.js';
 import { streamCopyChunks } from './stream-copy-chunks.js';
@@ -17,6 +18,11 @@ export interface DesignReadRequest {
   readonly keyNames: readonly string[];
   /** The V value column names, for messages and counts. */
   readonly valueNames: readonly string[];
+  /**
+   * Per value column, its wire type (default all float8). Numeric columns arrive exact and
+   * every value is emitted as a (high, low) pair; COPY mode only.
+   */
+  readonly valueTypes?: readonly ('float8' | 'numeric')[];
   /**
    * `'copy'`: `COPY (query) TO STDOUT (FORMAT binary)`, values inlined as literals (the fast
    * path). `'rows'`: the query with bind parameters through a cursor, for servers without
@@ -86,7 +92,25 @@ const SESSION_SETUP = "SET client_encoding TO 'UTF8'; SET extra_float_digits TO 
  *     (block, keyTable) => fit.consume(block, keyTable)),
  * );
  */
-export async function readDesign(client: pg.ClientBase, req: DesignReadRequest, sink: BlockSink): Promise<DesignReadCounts> {
+export function readDesign(client: pg.ClientBase, req: DesignReadRequest, sink: BlockSink): Promise<DesignReadCounts> {
+  return readDesignFrom(
+    {
+      exec: async (sql) => {
+        await client.query(sql);
+      },
+      copyChunks: (query, signal) => streamCopyChunks(client, query, signal),
+      rowArrays: (query, signal) => streamRowArrays(client, query, signal),
+    },
+    req,
+    sink,
+  );
+}
+
+/**
+ * {@link readDesign} over any back end: the same decoding, skipping, counting and error
+ * reporting, whatever delivers the bytes or rows (a pg client, the embedded database).
+ */
+export async function readDesignFrom(transport: DesignTransport, req: DesignReadRequest, sink: BlockSink): Promise<DesignReadCounts> {
   if (req.mode !== 'copy' && req.mode !== 'rows') throw new RangeError(`mode must be 'copy' or 'rows', got ${String(req.mode)}`);
   const options: CopyBinaryDecoderOptions = {
     keyColumns: req.keyNames.length,
@@ -95,6 +119,8 @@ export async function readDesign(client: pg.ClientBase, req: DesignReadRequest, 
     valueNames: req.valueNames,
     blockRows: req.blockRows ?? DEFAULT_BLOCK_ROWS,
     nonFinite: req.nonFinite,
+    // Numeric columns are decoded exact, as (high, low) pairs, from COPY only.
+    ...(req.mode === 'copy' && req.valueTypes !== undefined ? { valueTypes: req.valueTypes } : {}),
   };
   // Both validate the options (RangeError) before anything is sent.
   const reader = req.mode === 'copy' ? new CopyBinaryDecoder(options) : new RowArrayBlockBuilder(options);
@@ -112,12 +138,12 @@ export async function readDesign(client: pg.ClientBase, req: DesignReadRequest, 
 
   try {
     req.signal?.throwIfAborted();
-    await client.query(SESSION_SETUP);
+    await transport.exec(SESSION_SETUP);
     req.signal?.throwIfAborted();
     if (reader instanceof CopyBinaryDecoder) {
-      for await (const chunk of streamCopyChunks(client, req.query, req.signal)) reader.write(chunk, onBlock);
+      for await (const chunk of transport.copyChunks(req.query, req.signal)) reader.write(chunk, onBlock);
     } else {
-      for await (const row of streamRowArrays(client, req.query, req.signal)) reader.push(row, onBlock);
+      for await (const row of transport.rowArrays(req.query, req.signal)) reader.push(row, onBlock);
     }
     reader.end(onBlock);
   } catch (error) {
