@@ -1,6 +1,6 @@
 import pg from 'pg';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { createTestDatabase, randomSuffix } from '../support/pg-database.js';
+import { createTestDatabase, ON_EMBEDDED, randomSuffix } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
 
@@ -31,7 +31,8 @@ afterAll(async () => {
   await c.end();
 });
 
-describe('a backend terminated mid-stream', () => {
+// Server only: the embedded database has no other backends to terminate (pg_terminate_backend).
+describe.skipIf(ON_EMBEDDED)('a backend terminated mid-stream', () => {
   it('leaves a failed run and no partial models', async () => {
     const spec = writeSpec({ name: 'killed', source: 'big', response: 'y', terms: ['x1', 'x2'], segment_by: ['seg'] });
     const running = runCli(['fit', spec, '--db', tdb.url, '--json']);
@@ -57,7 +58,8 @@ describe('a backend terminated mid-stream', () => {
   });
 });
 
-describe('least privilege', () => {
+// Server only: the embedded database has one superuser and no roles or privileges.
+describe.skipIf(ON_EMBEDDED)('least privilege', () => {
   it('a role with SELECT on its source and CREATE on the database fits and publishes', async () => {
     const spec = writeSpec({ name: 'as_role', source: 'small', response: 'y', terms: ['x'], schema: 'rowfold_role' });
     const res = await runCli(['fit', spec, '--db', tdb.urlAs(role), '--json']);

@@ -1,17 +1,13 @@
-import pg from 'pg';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { createTestDatabase } from '../support/pg-database.js';
+import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
 
 let tdb: TestDatabase;
-let admin: pg.Client;
 
 beforeAll(async () => {
   tdb = await createTestDatabase('behaviour');
-  admin = new pg.Client({ connectionString: tdb.url });
-  await admin.connect();
-  await admin.query(`
+  await tdb.query(`
     create table obs as
       select case when g <= 2 then 'tiny' when g % 2 = 0 then 'even' else 'odd' end as grp,
              g::float8 as x, sin(g)::float8 as z,
@@ -20,7 +16,6 @@ beforeAll(async () => {
         from generate_series(1, 300) g`);
 });
 afterAll(async () => {
-  await admin?.end();
   await tdb?.drop();
 });
 
@@ -41,7 +36,7 @@ describe('rowfold fit behaviour', () => {
       ['tiny', 'too_few_rows'],
     ]);
     expect(doc.models[2]!.notes[0]).toBe('too few rows: 2 rows for 3 coefficients');
-    const stored = await admin.query(
+    const stored = await tdb.query(
       `select status, notes from rowfold.models where run_id = $1 and segment->>'grp' = 'tiny'`,
       [doc.run.id],
     );
@@ -56,7 +51,7 @@ describe('rowfold fit behaviour', () => {
     expect(res.stdout).toContain('design columns (3 + intercept):\n  x, grp=even, grp=tiny');
     expect(res.stdout).toMatch(/COPY|SELECT/);
     expect(res.stdout).toContain('$1 = "even"');
-    const runs = await admin.query(`select count(*)::int as n from rowfold.runs where fit_name = 'dry'`).catch(() => ({ rows: [{ n: 0 }] }));
+    const runs = await tdb.query(`select count(*)::int as n from rowfold.runs where fit_name = 'dry'`).catch(() => ({ rows: [{ n: 0 }] }));
     expect(runs.rows[0].n).toBe(0);
   });
 
@@ -76,7 +71,8 @@ describe('rowfold fit behaviour', () => {
     });
   });
 
-  it('a query source split by a hash of partition_key equals one connection (1e-10)', async () => {
+  // Server only: the embedded database serves one reader at a time (--parallel 1).
+  it.skipIf(ON_EMBEDDED)('a query source split by a hash of partition_key equals one connection (1e-10)', async () => {
     const base = { source: 'select * from obs where grp <> $$tiny$$', response: 'y', terms: ['x', 'z'], segment_by: 'grp', partition_key: 'x' };
     const one = await runCli(['fit', writeSpec({ name: 'hash1', ...base }), '--db', tdb.url, '--json']);
     const three = await runCli(['fit', writeSpec({ name: 'hash3', ...base }), '--db', tdb.url, '--json', '--parallel', '3']);
@@ -94,16 +90,16 @@ describe('rowfold fit behaviour', () => {
   });
 
   it('rows with NULL in a used column are left out and counted by column', async () => {
-    await admin.query(`create table obs_nulls as select * from obs`);
-    await admin.query(`update obs_nulls set z = null where x in (10, 20, 30)`);
-    await admin.query(`update obs_nulls set grp = null where x in (40, 41)`);
-    await admin.query(`update obs_nulls set y = null where x = 50`);
+    await tdb.query(`create table obs_nulls as select * from obs`);
+    await tdb.query(`update obs_nulls set z = null where x in (10, 20, 30)`);
+    await tdb.query(`update obs_nulls set grp = null where x in (40, 41)`);
+    await tdb.query(`update obs_nulls set y = null where x = 50`);
     const spec = writeSpec({ name: 'nulls', source: 'obs_nulls', response: 'y', terms: ['x', 'z'], categorical: ['grp'] });
     const res = await runCli(['fit', spec, '--db', tdb.url, '--json']);
     expect(res.code, res.stderr).toBe(0);
     const doc = JSON.parse(res.stdout) as { run: { rows_read: number; rows_used: number; rows_skipped: Record<string, number> } };
     expect(doc.run).toMatchObject({ rows_read: 300, rows_used: 294, rows_skipped: { 'null:z': 3, 'null:grp': 2, 'null:y': 1 } });
-    const stored = await admin.query(`select rows_skipped from rowfold.runs where fit_name = 'nulls'`);
+    const stored = await tdb.query(`select rows_skipped from rowfold.runs where fit_name = 'nulls'`);
     expect(stored.rows[0].rows_skipped).toEqual({ 'null:z': 3, 'null:grp': 2, 'null:y': 1 });
   });
 

@@ -2,7 +2,6 @@
 // (test/fixtures/reference/design-cases.json): weights, categoricals with a chosen
 // reference, interactions, segments — fitted from PostgreSQL through `rowfold fit`.
 import { readFileSync } from 'node:fs';
-import pg from 'pg';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { expectClose } from '../support/close.js';
 import { createTestDatabase } from '../support/pg-database.js';
@@ -43,18 +42,12 @@ const fx = JSON.parse(readFileSync(new URL('../fixtures/reference/design-cases.j
 let tdb: TestDatabase;
 beforeAll(async () => {
   tdb = await createTestDatabase('design');
-  const client = new pg.Client({ connectionString: tdb.url });
-  await client.connect();
-  try {
-    const cols = fx.table.columns;
-    await client.query(`create table readings (${cols.map((c) => `${c.name} ${c.sql_type}`).join(', ')})`);
-    await client.query(
-      `insert into readings select * from unnest(${cols.map((c, j) => `$${j + 1}::${c.sql_type}[]`).join(', ')})`,
-      cols.map((_, j) => fx.table.rows.map((r) => r[j])),
-    );
-  } finally {
-    await client.end();
-  }
+  const cols = fx.table.columns;
+  await tdb.query(`create table readings (${cols.map((c) => `${c.name} ${c.sql_type}`).join(', ')})`);
+  await tdb.query(
+    `insert into readings select * from unnest(${cols.map((c, j) => `$${j + 1}::${c.sql_type}[]`).join(', ')})`,
+    cols.map((_, j) => fx.table.rows.map((r) => r[j])),
+  );
 });
 afterAll(() => tdb?.drop());
 

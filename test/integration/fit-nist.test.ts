@@ -21,20 +21,14 @@ let tdb: TestDatabase;
 
 beforeAll(async () => {
   tdb = await createTestDatabase('nist');
-  const client = new pg.Client({ connectionString: tdb.url });
-  await client.connect();
-  try {
-    for (const name of NIST_SETS) {
-      const set = loadNistSet(name);
-      const table = pg.escapeIdentifier(name.toLowerCase());
-      await client.query(`create table ${table} (${set.columns.map((c) => `${c} numeric`).join(', ')})`);
-      await client.query(
-        `insert into ${table} select * from unnest(${set.columns.map((_, j) => `$${j + 1}::numeric[]`).join(', ')})`,
-        set.columns.map((_, j) => set.textRows.map((r) => r[j])),
-      );
-    }
-  } finally {
-    await client.end();
+  for (const name of NIST_SETS) {
+    const set = loadNistSet(name);
+    const table = pg.escapeIdentifier(name.toLowerCase());
+    await tdb.query(`create table ${table} (${set.columns.map((c) => `${c} numeric`).join(', ')})`);
+    await tdb.query(
+      `insert into ${table} select * from unnest(${set.columns.map((_, j) => `$${j + 1}::numeric[]`).join(', ')})`,
+      set.columns.map((_, j) => set.textRows.map((r) => r[j])),
+    );
   }
 });
 

@@ -6,7 +6,7 @@ import { resolveConnection } from '../../src/source/connection-target.js';
 import { describeQuery, queryAll } from '../../src/source/query-helpers.js';
 import { pgSession } from '../../src/source/server-database.js';
 import { withClient } from '../../src/source/with-client.js';
-import { createTestDatabase, PoolTracker, withAdminClient } from '../support/pg-database.js';
+import { createTestDatabase, ON_EMBEDDED, PoolTracker, withAdminClient } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 
 // The planner's helpers (describeQuery, queryAll), withClient's release rules, and a pool
@@ -25,7 +25,8 @@ beforeAll(async () => {
 afterEach(() => pools.closeAll());
 afterAll(() => tdb?.drop());
 
-describe('describeQuery', () => {
+// Server only: goes through pg pools and clients (withClient, pgSession, resolveConnection against a server).
+describe.skipIf(ON_EMBEDDED)('describeQuery', () => {
   it('names the types of the output columns without reading rows', async () => {
     const pool = pools.open(tdb.url, 1);
     const query = SqlTemplate.join([
@@ -62,7 +63,7 @@ describe('describeQuery', () => {
   });
 });
 
-describe('queryAll', () => {
+describe.skipIf(ON_EMBEDDED)('queryAll', () => {
   it('returns array rows with bound values, the quote/backslash/$1 value intact', async () => {
     const pool = pools.open(tdb.url, 1);
     const tricky = "it's a \\ $1 value";
@@ -73,7 +74,7 @@ describe('queryAll', () => {
   });
 });
 
-describe('withClient', () => {
+describe.skipIf(ON_EMBEDDED)('withClient', () => {
   it('returns a healthy client to the pool', async () => {
     const pool = pools.open(tdb.url, 1);
     expect(await withClient(pool, async (c) => (await c.query('SELECT 2 AS two')).rows[0].two)).toBe(2);
@@ -107,7 +108,7 @@ describe('withClient', () => {
   });
 });
 
-describe('resolveConnection against the server', () => {
+describe.skipIf(ON_EMBEDDED)('resolveConnection against the server', () => {
   it('a --db URL connects as shown, named rowfold in pg_stat_activity', async () => {
     const target = resolveConnection({ db: tdb.url, env: {} });
     expect(target.from).toBe('flag');

@@ -5,7 +5,7 @@ import { SqlTemplate } from '../../src/plan/sql-template.js';
 import { readDesign } from '../../src/source/read-design.js';
 import type { DesignReadCounts, DesignReadRequest } from '../../src/source/read-design.js';
 import { withClient } from '../../src/source/with-client.js';
-import { createTestDatabase, PoolTracker, withAdminClient } from '../support/pg-database.js';
+import { createTestDatabase, ON_EMBEDDED, PoolTracker, withAdminClient } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 
 // Reads the same rows with binary COPY and with the row-stream fallback and checks that the
@@ -70,7 +70,8 @@ afterAll(() => tdb?.drop());
 
 const ALL_ROWS = new SqlTemplate(['SELECT k, x, y FROM obs ORDER BY id']);
 
-describe('copy and rows modes read identically', () => {
+// Server only: tests node-postgres readers and pools; embedded-read-design.test.ts covers the embedded reads.
+describe.skipIf(ON_EMBEDDED)('copy and rows modes read identically', () => {
   it.each([
     { nonFinite: 'pass' as const, blockRows: undefined },
     { nonFinite: 'skip' as const, blockRows: undefined },
@@ -139,7 +140,7 @@ describe('copy and rows modes read identically', () => {
   });
 });
 
-describe('bound values', () => {
+describe.skipIf(ON_EMBEDDED)('bound values', () => {
   it("inline (copy) and bound (rows) agree on a value with a quote, a backslash and $1; the SQL's own '$1' is untouched", async () => {
     const pool = pools.open(tdb.url, 1);
     const query = SqlTemplate.join([
@@ -164,7 +165,7 @@ describe('bound values', () => {
   });
 });
 
-describe('session settings', () => {
+describe.skipIf(ON_EMBEDDED)('session settings', () => {
   it('resets a session left in LATIN1 with rounded float output, so both modes still read the same', async () => {
     const pool = pools.open(tdb.url, 1);
     // pg always asks for UTF8 at startup; an application may still have changed the session.

@@ -6,7 +6,7 @@ import { DesignReadError } from '../../src/source/design-read-error.js';
 import { readDesign } from '../../src/source/read-design.js';
 import type { BlockSink, DesignReadRequest } from '../../src/source/read-design.js';
 import { withClient } from '../../src/source/with-client.js';
-import { createTestDatabase, PoolTracker } from '../support/pg-database.js';
+import { createTestDatabase, ON_EMBEDDED, PoolTracker } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 
 // How a read that stops early fails, and that the pool survives it: query errors keep their
@@ -63,7 +63,8 @@ beforeAll(async () => {
 afterEach(() => pools.closeAll());
 afterAll(() => tdb?.drop());
 
-describe.each(MODES)('%s mode', (mode) => {
+// Server only: tests node-postgres readers and pools; embedded-read-design.test.ts covers the embedded reads.
+describe.skipIf(ON_EMBEDDED).each(MODES)('%s mode', (mode) => {
   it('an unknown column rejects with SQLSTATE 42703 kept, the pg error as cause', async () => {
     const pool = pools.open(tdb.url, 1);
     const query = new SqlTemplate(['SELECT nope::text AS k, 1::float8 AS x']);
@@ -168,7 +169,7 @@ describe.each(MODES)('%s mode', (mode) => {
   });
 });
 
-describe('client state after an early stop', () => {
+describe.skipIf(ON_EMBEDDED)('client state after an early stop', () => {
   it('rows mode closes its cursor: the same client can query again', async () => {
     const client = new pg.Client({ connectionString: tdb.url });
     await client.connect();

@@ -1,6 +1,5 @@
 import type { Kysely } from 'kysely';
 import { afterAll, afterEach, beforeAll, beforeEach, describe, expect, it } from 'vitest';
-import { createStoreDb } from '../../src/store/create-store-db.js';
 import { describeError } from '../../src/store/describe-error.js';
 import { failRun } from '../../src/store/fail-run.js';
 import { maskSecrets } from '../../src/source/mask-secrets.js';
@@ -8,20 +7,20 @@ import { migrate } from '../../src/store/migrate.js';
 import { publishRun } from '../../src/store/publish-run.js';
 import { startRun } from '../../src/store/start-run.js';
 import type { StoreDatabase } from '../../src/store/store-database.js';
-import { createTestDatabase, PoolTracker } from '../support/pg-database.js';
+import { createTestDatabase, StoreTracker } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 
 const SCHEMA = 'rowfold';
 const START = { fitName: 'feeder_load', specHash: 'h', specText: 's', designQuery: 'q', toolVersion: '0.1.0' };
 
 let tdb: TestDatabase;
-const pools = new PoolTracker();
+const stores = new StoreTracker();
 let db: Kysely<StoreDatabase>;
 
 beforeAll(async () => {
   tdb = await createTestDatabase('store_fail');
 });
-afterEach(() => pools.closeAll());
+afterEach(() => stores.closeAll());
 afterAll(() => tdb?.drop());
 
 async function runRow(runId: number) {
@@ -30,7 +29,7 @@ async function runRow(runId: number) {
 
 describe('failRun', () => {
   beforeEach(async () => {
-    db = createStoreDb(pools.open(tdb.url, 2));
+    db = stores.open(tdb, 2);
     await migrate(db, SCHEMA);
   });
 

@@ -4,31 +4,30 @@ import { join } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { sql } from 'kysely';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
-import { createStoreDb } from '../../src/store/create-store-db.js';
 import { migrate } from '../../src/store/migrate.js';
 import { MigrationError } from '../../src/store/migration-error.js';
 import { defaultMigrationsDir } from '../../src/store/migrations-dir.js';
-import { createTestDatabase, PoolTracker } from '../support/pg-database.js';
+import { createTestDatabase, StoreTracker } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 
 const REPO_ROOT = fileURLToPath(new URL('../../', import.meta.url));
 
 let tdb: TestDatabase;
-const pools = new PoolTracker();
+const stores = new StoreTracker();
 let scratch: string;
 
 beforeAll(async () => {
   tdb = await createTestDatabase('store_migrate');
   scratch = await mkdtemp(join(tmpdir(), 'rowfold-migrations-'));
 });
-afterEach(() => pools.closeAll());
+afterEach(() => stores.closeAll());
 afterAll(async () => {
   await tdb?.drop();
   if (scratch) await rm(scratch, { recursive: true, force: true });
 });
 
 function openDb() {
-  return createStoreDb(pools.open(tdb.url, 2));
+  return stores.open(tdb, 2);
 }
 
 /** A folder of migrations; the files' text is given per name. */

@@ -3,7 +3,6 @@ import type { Kysely } from 'kysely';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import type { FitSolution } from '../../src/fit/fit-solution.js';
 import { solve } from '../../src/fit/solve.js';
-import { createStoreDb } from '../../src/store/create-store-db.js';
 import { failRun } from '../../src/store/fail-run.js';
 import { migrate } from '../../src/store/migrate.js';
 import type { ModelRecord } from '../../src/store/model-record.js';
@@ -13,29 +12,29 @@ import { startRun } from '../../src/store/start-run.js';
 import type { RunStart } from '../../src/store/start-run.js';
 import type { StoreDatabase } from '../../src/store/store-database.js';
 import { foldRows } from '../support/fit-rows.js';
-import { createTestDatabase, PoolTracker } from '../support/pg-database.js';
+import { createTestDatabase, StoreTracker } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { syntheticRows } from '../support/synthetic.js';
 
 const SCHEMA = 'results';
 
 let tdb: TestDatabase;
-const pools = new PoolTracker();
+const stores = new StoreTracker();
 let db: Kysely<StoreDatabase>;
 
 beforeAll(async () => {
   tdb = await createTestDatabase('store_publish');
-  const setup = createStoreDb(pools.open(tdb.url, 1));
+  const setup = stores.open(tdb, 1);
   await migrate(setup, SCHEMA);
   await setup.destroy();
-  await pools.closeAll();
+  await stores.closeAll();
 });
 // Ends the test's pool after checking that no client is still checked out.
-afterEach(() => pools.closeAll());
+afterEach(() => stores.closeAll());
 afterAll(() => tdb?.drop());
 
 function openDb(): Kysely<StoreDatabase> {
-  db = createStoreDb(pools.open(tdb.url, 3));
+  db = stores.open(tdb, 3);
   return db;
 }
 
