@@ -17,7 +17,11 @@ export function fitCommand(y: Argv): Argv {
     (c) =>
       c
         .positional('spec', { type: 'string', demandOption: true, describe: 'fit spec (YAML)' })
-        .option('db', { type: 'string', describe: 'PostgreSQL URL (default: DATABASE_URL, then the PG* variables)' })
+        .option('db', {
+          type: 'string',
+          describe:
+            'PostgreSQL URL, or embedded:FOLDER (default: DATABASE_URL, then the PG* variables, then the embedded database in .rowfold/db)',
+        })
         .option('parallel', { type: 'number', default: 1, describe: 'read N disjoint partitions over N connections' })
         .option('read', { choices: ['copy', 'rows'] as const, describe: 'override the spec: binary COPY or row stream' })
         .option('accuracy', {
