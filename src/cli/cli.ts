@@ -6,11 +6,12 @@ import { SpecFileError } from '../run/run-fit.js';
 import { SpecError } from '../spec/spec-error.js';
 import { maskSecrets } from '../source/mask-secrets.js';
 import { CliError, ExitCode } from './exit-codes.js';
+import { demoCommand } from './demo-command.js';
 import { fitCommand } from './fit-command.js';
 import { fitCsvCommand } from './fit-csv-command.js';
 import { reportCommand } from './report-command.js';
 
-const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand, reportCommand];
+const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand, demoCommand, reportCommand];
 
 /**
  * Entry point of the `rowfold` command. Each command lives in its own module; this file
