@@ -1,7 +1,7 @@
 import { writeFileSync } from 'node:fs';
 import os from 'node:os';
-import { benchEndToEnd } from './e2e-bench.js';
-import type { EndToEndFigure } from './e2e-bench.js';
+import { benchAccuracy, benchEndToEnd } from './e2e-bench.js';
+import type { AccuracyFigure, EndToEndFigure } from './e2e-bench.js';
 import { benchKernels } from './kernel-bench.js';
 import type { KernelFigure } from './kernel-bench.js';
 
@@ -37,7 +37,18 @@ for (const parallel of [1, 2]) {
     break;
   }
 }
+let accuracy: AccuracyFigure | null = null;
+try {
+  accuracy = await benchAccuracy(1_000_000, 50);
+  console.log(
+    `\naccuracy auto vs fast · 1,000,000 rows × 50 terms (well conditioned): fast ${accuracy.fastSeconds.toFixed(2)} s, ` +
+      `auto ${accuracy.autoSeconds.toFixed(2)} s (${(accuracy.overhead * 100).toFixed(1)}% over fast; target ≤ 5%), ` +
+      `auto passes ${accuracy.autoPasses}, estimated digits ${accuracy.estimatedDigits.toFixed(1)}`,
+  );
+} catch (err) {
+  console.log(`accuracy case skipped: ${err instanceof Error ? err.message : String(err)}`);
+}
 writeFileSync(
   new URL('../../bench/results.json', import.meta.url),
-  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, e2e }, null, 2) + '\n',
+  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, e2e, accuracy }, null, 2) + '\n',
 );

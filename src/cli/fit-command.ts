@@ -26,7 +26,7 @@ export function fitCommand(y: Argv): Argv {
         .option('read', { choices: ['copy', 'rows'] as const, describe: 'override the spec: binary COPY or row stream' })
         .option('accuracy', {
           choices: ['auto', 'fast', 'extended'] as const,
-          describe: 'override the spec: auto adds a double-double pass where double precision cannot give 14 digits',
+          describe: 'override the spec: auto adds a double-double pass where double precision cannot give 13.5 digits',
         })
         .option('json', { type: 'boolean', default: false, describe: 'print exactly one JSON document on stdout' })
         .option('dry-run', { type: 'boolean', default: false, describe: 'print the design query and levels; fit nothing' }),

@@ -120,7 +120,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
 }
 
 /** Estimated correct digits below which `accuracy: auto` takes a double-double pass. */
-export const AUTO_EXTENDED_BELOW_DIGITS = 14;
+export const AUTO_EXTENDED_BELOW_DIGITS = 13.5;
 
 /** One streamed pass over the design query into per-segment accumulators. */
 async function readPass(

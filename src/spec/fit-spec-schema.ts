@@ -127,7 +127,7 @@ export const fitSpecSchema = z
       .default('auto')
       .meta({
         description:
-          'auto: fold in double precision and, for models whose estimated correct digits fall below 14, take one more pass in double-double; fast: never an extra pass; extended: always double-double.',
+          'auto: fold in double precision and, for models whose estimated correct digits fall below 13.5, take one more pass in double-double; fast: never an extra pass; extended: always double-double.',
       }),
     schema: identifier('a schema name', 'Schema that receives the result tables.').default('rowfold'),
     read: z

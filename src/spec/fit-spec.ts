@@ -93,7 +93,7 @@ export interface FitSpec {
   readonly method: 'qr' | 'normal';
   /**
    * `auto` (default): double precision, plus one double-double pass for models whose
-   * estimated correct digits fall below 14; `fast`: never an extra pass; `extended`:
+   * estimated correct digits fall below 13.5; `fast`: never an extra pass; `extended`:
    * always double-double. Applies to `method: qr`.
    */
   readonly accuracy: 'auto' | 'fast' | 'extended';
