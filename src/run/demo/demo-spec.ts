@@ -78,11 +78,6 @@ partition_key: feeder_id
 
 # 95% confidence intervals.
 confidence: 0.95
-
-# Double precision only: these designs are well conditioned (condition numbers about 30),
-# so one pass gives some 12 correct digits, far finer than the noise. The default, auto,
-# would read the rows a second time in double-double to reach 14.
-accuracy: fast
 `;
 
 /**
