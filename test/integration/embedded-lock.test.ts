@@ -10,7 +10,7 @@ import { afterAll, beforeAll, describe, expect, inject, it } from 'vitest';
 import { EmbeddedDatabaseLockedError } from '../../src/source/embedded-database-locked-error.js';
 import { openEmbeddedDatabase } from '../../src/source/embedded-database.js';
 import { copyEmbeddedTemplate } from '../support/embedded-template.js';
-import { writeSpec } from '../support/run-cli.js';
+import { runCli, writeSpec } from '../support/run-cli.js';
 
 // Two processes on one PGlite folder would silently lose each other's writes, so the folder's
 // rowfold.lock keeps out a second process, names the holder, and is taken over when its
@@ -67,27 +67,7 @@ function exited(child: ChildProcess): Promise<void> {
 }
 
 describe('another process', () => {
-  it('is refused while this one has the folder open, by `rowfold fit` with exit code 1 and our PID', async () => {
-    const dir = await freshFolder('cli');
-    const database = await openEmbeddedDatabase(dir);
-    try {
-      const spec = writeSpec({ name: 'locked_out', source: 'select 1::float8 as x, 2::float8 as y', response: 'y', terms: ['x'] });
-      const cli = spawnSync(
-        process.execPath,
-        ['--import', REGISTER, join(REPO, 'src/cli/main.ts'), 'fit', spec, '--db', `embedded:${dir}`],
-        { encoding: 'utf8', timeout: 60_000 },
-      );
-      expect(cli.stderr).toContain(`embedded database ${dir} is in use by PID ${process.pid}`);
-      expect(cli.status).toBe(1);
-      expect(cli.stdout).toBe('');
-      // Refused before it touched anything: our lock is intact.
-      expect(readFileSync(join(dir, 'rowfold.lock'), 'utf8').trim()).toBe(String(process.pid));
-    } finally {
-      await database.close();
-    }
-  });
-
-  it('holding the folder keeps this process out, naming its PID; once it is killed its lock is taken over', async () => {
+  it('holding the folder keeps this one out, naming its PID (rowfold fit exits 1); once it is killed its lock is taken over', async () => {
     const dir = await freshFolder('killed');
     const { child, opened } = holder(dir, 'wait');
     await opened;
@@ -95,6 +75,12 @@ describe('another process', () => {
     expect(error).toBeInstanceOf(EmbeddedDatabaseLockedError);
     expect((error as Error).message).toMatch(new RegExp(`^embedded database ${dir} is in use by PID ${child.pid}`));
     expect((error as EmbeddedDatabaseLockedError).pid).toBe(child.pid);
+
+    const spec = writeSpec({ name: 'locked_out', source: 'select 1::float8 as x, 2::float8 as y', response: 'y', terms: ['x'] });
+    const cli = await runCli(['fit', spec, '--db', `embedded:${dir}`]);
+    expect(cli.stderr).toContain(`rowfold: error: embedded database ${dir} is in use by PID ${child.pid}`);
+    expect(cli.code).toBe(1);
+    expect(cli.stdout).toBe('');
 
     child.kill('SIGKILL'); // no exit hook runs: the lock file stays behind, stale
     await exited(child);
