@@ -14,7 +14,7 @@ export function reportCommand(y: Argv): Argv {
         .positional('fit', { type: 'string', demandOption: true, describe: 'name of the fit' })
         .option('out', { type: 'string', describe: 'HTML file to write (default: FIT-report.html)' })
         .option('segment', { type: 'string', describe: 'segment for the residual plots: its key or col=value (default: the one with most rows)' })
-        .option('db', { type: 'string', describe: 'PostgreSQL URL (default: DATABASE_URL, then the PG* variables)' })
+        .option('db', { type: 'string', describe: 'PostgreSQL URL, or embedded:FOLDER (default as for fit)' })
         .option('schema', { type: 'string', default: 'rowfold', describe: 'result schema' }),
     async (args) => {
       const out = args.out ?? `${args.fit}-report.html`;
