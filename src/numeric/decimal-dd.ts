@@ -1,4 +1,4 @@
-import { dd, ddDiv, ddMul } from './double-double.js';
+import { dd, ddScaleByPower } from './double-double.js';
 import type { DD } from './double-double.js';
 
 /**
@@ -14,16 +14,7 @@ export function parseDecimalDD(text: string, out: DD = dd()): DD {
   const big = BigInt(digits === '' ? '0' : digits);
   const hi = Number(big);
   const lo = Number(big - BigInt(hi));
-  let ph = 1;
-  let pl = 0;
-  const t = dd();
-  for (let i = 0; i < Math.abs(exp); i++) {
-    ddMul(ph, pl, 10, 0, t);
-    ph = t.hi;
-    pl = t.lo;
-  }
-  if (exp >= 0) ddMul(hi, lo, ph, pl, out);
-  else ddDiv(hi, lo, ph, pl, out);
+  ddScaleByPower(hi, lo, 10, exp, out);
   if (m[1] === '-') {
     out.hi = -out.hi;
     out.lo = -out.lo;

@@ -96,3 +96,20 @@ export function ddSqrt(ah: number, al: number, out: DD): DD {
   out.hi = h;
   return out;
 }
+
+/**
+ * out = (hi + lo) · base^exp for a small integer `base` and any integer `exp`: the power is
+ * built by repeated double-double products (exact while it fits in 106 bits), then
+ * multiplied or divided in once. Decimal and base-10000 numbers are scaled this way.
+ */
+export function ddScaleByPower(hi: number, lo: number, base: number, exp: number, out: DD): DD {
+  let ph = 1;
+  let pl = 0;
+  const t = dd();
+  for (let i = 0; i < Math.abs(exp); i++) {
+    ddMul(ph, pl, base, 0, t);
+    ph = t.hi;
+    pl = t.lo;
+  }
+  return exp >= 0 ? ddMul(hi, lo, ph, pl, out) : ddDiv(hi, lo, ph, pl, out);
+}

@@ -1,4 +1,4 @@
-import { dd, ddAdd, ddDiv, ddMul } from '../numeric/double-double.js';
+import { dd, ddAdd, ddMul, ddScaleByPower } from '../numeric/double-double.js';
 import type { DD } from '../numeric/double-double.js';
 
 const NUMERIC_NEG = 0x4000;
@@ -41,15 +41,7 @@ export function decodeNumericDD(view: DataView, pos: number, length: number, out
   }
   // value = integer · 10000^(weight − ndigits + 1)
   const exp = weight - ndigits + 1;
-  let ph = 1;
-  let pl = 0;
-  for (let i = 0; i < Math.abs(exp); i++) {
-    ddMul(ph, pl, 10000, 0, T);
-    ph = T.hi;
-    pl = T.lo;
-  }
-  if (exp >= 0) ddMul(h, l, ph, pl, out);
-  else ddDiv(h, l, ph, pl, out);
+  ddScaleByPower(h, l, 10000, exp, out);
   if (sign === NUMERIC_NEG) {
     out.hi = -out.hi;
     out.lo = -out.lo;
