@@ -6,33 +6,11 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { expectClose } from '../support/close.js';
 import { createTestDatabase } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
+import type { ReferenceCoefficient, ReferenceExpected } from '../support/reference-case.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
 
-interface Coef {
-  term: string;
-  aliased: boolean;
-  estimate: number | null;
-  std_error: number | null;
-  t: number | null;
-  p: number | null;
-  ci_low: number | null;
-  ci_high: number | null;
-  vif: number | null;
-}
-interface Expected {
-  rank: number;
-  n: number;
-  df_residual: number;
-  sigma: number;
-  r2: number;
-  r2_adjusted: number;
-  f: number;
-  f_p: number;
-  loglik: number;
-  aic: number;
-  bic: number;
-  coefficients: Coef[];
-}
+type Coef = ReferenceCoefficient;
+type Expected = ReferenceExpected;
 const fx = JSON.parse(readFileSync(new URL('../fixtures/reference/design-cases.json', import.meta.url), 'utf8')) as {
   library: string;
   table: { columns: { name: string; sql_type: string }[]; rows: unknown[][] };

@@ -5,33 +5,9 @@ import { describe, expect, it } from 'vitest';
 import { solve } from '../../src/fit/solve.js';
 import { expectClose } from '../support/close.js';
 import { foldRows } from '../support/fit-rows.js';
+import type { ReferenceExpected } from '../support/reference-case.js';
 
-interface Expected {
-  rank: number;
-  aliased: string[];
-  n: number;
-  df_residual: number;
-  rss: number;
-  sigma: number;
-  r2: number;
-  r2_adjusted: number;
-  f: number | null;
-  f_p: number | null;
-  loglik: number;
-  aic: number;
-  bic: number;
-  coefficients: {
-    term: string;
-    aliased: boolean;
-    estimate: number | null;
-    std_error: number | null;
-    t: number | null;
-    p: number | null;
-    ci_low: number | null;
-    ci_high: number | null;
-    vif: number | null;
-  }[];
-}
+type Expected = ReferenceExpected;
 interface Case {
   name: string;
   intercept: boolean;
