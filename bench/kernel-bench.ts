@@ -1,4 +1,8 @@
 import { Accumulator } from '../src/fit/accumulator.js';
+import { FoldWorkspace } from '../src/fit/fold-workspace.js';
+import { wasmFold } from '../src/fit/wasm-kernel.js';
+import { householderFold } from '../src/numeric/householder-fold.js';
+import { packedLength } from '../src/numeric/packed.js';
 
 /** Figures of one kernel workload. */
 export interface KernelFigure {
@@ -57,4 +61,35 @@ export function benchKernels(p: number, repeats = 3): KernelFigure[] {
     { kernel: 'fold', p, rows: foldRows, seconds: fold, gflops: (2 * foldRows * n * n) / fold / 1e9 },
     { kernel: 'merge', p, rows: merges * n, seconds: merge, gflops: (2 * merges * n * n * n) / merge / 1e9 },
   ];
+}
+
+/** Raw fold kernels side by side: the WebAssembly SIMD kernel and the TypeScript one. */
+export function benchRawKernels(p: number): { p: number; wasm: number | null; js: number } {
+  const n = p + 2;
+  const m = FoldWorkspace.rowsFor(n);
+  const src = randomBlock(m, n).values;
+  const blocks = Math.max(10, Math.round(2e9 / (2 * m * n * n)));
+  const time = (fn: () => void) => {
+    fn();
+    const t0 = performance.now();
+    for (let t = 0; t < blocks; t++) fn();
+    return (2 * m * n * n * blocks) / ((performance.now() - t0) / 1000) / 1e9;
+  };
+  const r = new Float64Array(packedLength(n));
+  const b = new Float64Array(m * n);
+  const js = time(() => {
+    b.set(src);
+    householderFold(n, r, b, m, m);
+  });
+  const kernel = wasmFold();
+  let wasm: number | null = null;
+  if (kernel !== null) {
+    const rw = new Float64Array(packedLength(n));
+    wasm = time(() => {
+      const staged = kernel.staging(n, m * n);
+      staged.set(src);
+      kernel.fold(n, rw, staged, m, m);
+    });
+  }
+  return { p, wasm, js };
 }

@@ -2,7 +2,7 @@ import { writeFileSync } from 'node:fs';
 import os from 'node:os';
 import { benchAccuracy, benchEndToEnd } from './e2e-bench.js';
 import type { AccuracyFigure, EndToEndFigure } from './e2e-bench.js';
-import { benchKernels } from './kernel-bench.js';
+import { benchKernels, benchRawKernels } from './kernel-bench.js';
 import type { KernelFigure } from './kernel-bench.js';
 
 // `npm run bench`: prints figures and writes bench/results.json. Targets live here, not
@@ -19,6 +19,12 @@ for (const p of [20, 50, 200]) {
       `${k.kernel.padEnd(6)}  ${String(k.p).padEnd(4)}  ${String(k.rows).padStart(12)}  ${k.seconds.toFixed(3).padStart(9)}  ${k.gflops.toFixed(2).padStart(8)}`,
     );
   }
+}
+const raw = [20, 50, 200].map((p) => benchRawKernels(p));
+for (const k of raw) {
+  console.log(
+    `raw fold kernel p=${k.p}: WebAssembly SIMD ${k.wasm === null ? 'not built' : `${k.wasm.toFixed(2)} GFLOP/s`}, TypeScript ${k.js.toFixed(2)} GFLOP/s`,
+  );
 }
 const fold200 = kernels.find((k) => k.kernel === 'fold' && k.p === 200)!;
 console.log(`fold at p = 200: ${fold200.gflops.toFixed(2)} GFLOP/s (target ≥ 2.9: ratio ${(fold200.gflops / 2.9).toFixed(2)})`);
@@ -50,5 +56,5 @@ try {
 }
 writeFileSync(
   new URL('../../bench/results.json', import.meta.url),
-  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, e2e, accuracy }, null, 2) + '\n',
+  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, e2e, accuracy }, null, 2) + '\n',
 );

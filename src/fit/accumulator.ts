@@ -6,6 +6,7 @@ import { packedLength, packedRowStart } from '../numeric/packed.js';
 import type { RowBlock } from '../numeric/row-block.js';
 import { FitInputError } from './fit-input-error.js';
 import { FoldWorkspace, sharedWorkspace } from './fold-workspace.js';
+import { wasmFold } from './wasm-kernel.js';
 
 const zeroShifts = new Map<number, Float64Array>();
 /** A shared all-zero shift of the given length (accumulators that do not shift). */
@@ -342,9 +343,12 @@ export class Accumulator {
     const weighted = this.shape.weight !== undefined;
     const icpt = this.shape.intercept ? 1 : 0;
     const m = FoldWorkspace.rowsFor(n);
-    const buf = this.workspace.take(m * n);
+    // The WebAssembly SIMD kernel when it is built; rows are staged in its memory.
+    const wasm = this.method === 'qr' ? wasmFold() : null;
+    const buf = wasm !== null ? wasm.staging(n, m * n) : this.workspace.take(m * n);
+    const kernel: (n: number, r: Float64Array, b: Float64Array, m: number, ld: number) => void =
+      wasm !== null ? (nn, r, b, mm, ld) => wasm.fold(nn, r, b, mm, ld) : this.method === 'qr' ? householderFold : gramUpdate;
     const yCol = (n - 1) * m;
-    const kernel = this.method === 'qr' ? householderFold : gramUpdate;
     this.cholesky = undefined;
     let fill = 0;
     for (let row = from; row < to; row++) {
@@ -456,13 +460,15 @@ export class Accumulator {
       for (let i = 0; i < other.length; i++) this.r[i] = this.r[i]! + other[i]!;
       return;
     }
-    const buf = this.workspace.take(n * n);
+    const wasm = wasmFold();
+    const buf = wasm !== null ? wasm.staging(n, n * n) : this.workspace.take(n * n);
     // R_other as n dense rows in column-major order (zeros below its diagonal).
     buf.fill(0, 0, n * n);
     for (let i = 0; i < n; i++) {
       const rs = packedRowStart(n, i);
       for (let j = i; j < n; j++) buf[j * n + i] = other[rs + j - i]!;
     }
-    householderFold(n, this.r, buf, n, n);
+    if (wasm !== null) wasm.fold(n, this.r, buf, n, n);
+    else householderFold(n, this.r, buf, n, n);
   }
 }

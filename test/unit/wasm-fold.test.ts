@@ -1,0 +1,41 @@
+import { describe, expect, it } from 'vitest';
+import { wasmFold } from '../../src/fit/wasm-kernel.js';
+import { householderFold } from '../../src/numeric/householder-fold.js';
+import { packedLength } from '../../src/numeric/packed.js';
+import { rng } from '../support/synthetic.js';
+
+const kernel = wasmFold();
+const required = process.env['ROWFOLD_REQUIRE_WASM'] === '1';
+
+describe.skipIf(kernel === null && !required)(
+  'WebAssembly SIMD fold against the TypeScript kernel (skipped until `npm run build` has compiled it)',
+  () => {
+    it('is built (CI requires it)', () => {
+      expect(kernel).not.toBeNull();
+    });
+
+    it.each([
+      [3, 1],
+      [7, 5],
+      [22, 512],
+      [52, 333],
+      [202, 161],
+    ])('order %i, %i rows per block: the same factor to 1e-12 relative over 20 blocks', (n, m) => {
+      const u = rng(n * 1000 + m);
+      const rJs = new Float64Array(packedLength(n));
+      const rWasm = new Float64Array(packedLength(n));
+      const block = new Float64Array(m * n);
+      for (let t = 0; t < 20; t++) {
+        for (let i = 0; i < block.length; i++) block[i] = (u() - 0.5) * (1 + (i % n));
+        const staged = kernel!.staging(n, m * n);
+        staged.set(block);
+        kernel!.fold(n, rWasm, staged, m, m);
+        householderFold(n, rJs, block.slice(), m, m);
+      }
+      const scale = Math.max(...rJs.map(Math.abs));
+      let worst = 0;
+      rJs.forEach((v, i) => (worst = Math.max(worst, Math.abs(v - rWasm[i]!) / scale)));
+      expect(worst).toBeLessThan(1e-12);
+    });
+  },
+);
