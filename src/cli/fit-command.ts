@@ -28,6 +28,11 @@ export function fitCommand(y: Argv): Argv {
           choices: ['auto', 'fast', 'extended'] as const,
           describe: 'override the spec: auto adds a double-double pass where double precision cannot give 13.5 digits',
         })
+        .option('full', {
+          type: 'boolean',
+          default: false,
+          describe: 'with a watermark: read every row and replace the stored state (folds in late rows)',
+        })
         .option('json', { type: 'boolean', default: false, describe: 'print exactly one JSON document on stdout' })
         .option('dry-run', { type: 'boolean', default: false, describe: 'print the design query and levels; fit nothing' }),
     async (args) => {
@@ -45,6 +50,7 @@ export function fitCommand(y: Argv): Argv {
           read: args.read,
           accuracy: args.accuracy,
           dryRun: args.dryRun,
+          full: args.full,
           onProgress: args.json ? undefined : progress.update,
         });
       } finally {
@@ -67,8 +73,27 @@ function runJson(r: RunFitResult): unknown {
       rows_skipped: r.rowsSkipped,
       segments: r.models.length,
       seconds: r.seconds,
+      ...(r.refit === undefined ? {} : refitJson(r.refit)),
     },
     models: r.models.map((m) => ({ segment: m.segment, ...solutionToJson(m.solution), passes: m.passes })),
+  };
+}
+
+function refitJson(refit: NonNullable<RunFitResult['refit']>): Record<string, unknown> {
+  return {
+    refit: refit.record.refit,
+    watermark_from: refit.record.watermarkFrom,
+    watermark_to: refit.record.watermarkTo,
+    notes: refit.record.notes,
+    drift: refit.drift.map((d) => ({
+      segment: d.segment,
+      flagged: d.test.flagged,
+      flagged_terms: d.test.flaggedTerms,
+      test: d.test.test,
+      f: d.test.f,
+      f_p: d.test.fP,
+      max_abs_z: d.test.maxAbsZ,
+    })),
   };
 }
 
@@ -83,6 +108,16 @@ function runText(r: RunFitResult): string {
       (skipped.length ? ` (skipped: ${skipped.join(', ')})` : '') +
       ` · ${r.models.length} model${r.models.length === 1 ? '' : 's'} · ${r.seconds.toFixed(2)} s`,
   );
+  if (r.refit !== undefined) {
+    for (const note of r.refit.record.notes) out.push(note);
+    const flagged = r.refit.drift.filter((d) => d.test.flagged);
+    if (r.refit.drift.length > 0) {
+      out.push(
+        `drift: ${flagged.length} of ${r.refit.drift.length} segment${r.refit.drift.length === 1 ? '' : 's'} flagged` +
+          (flagged.length > 0 ? ` (${flagged.slice(0, 5).map((d) => d.segmentKey || r.spec.name).join(', ')}${flagged.length > 5 ? ', …' : ''}; view ${r.spec.schema}.drift)` : ''),
+      );
+    }
+  }
   const title = (m: RunFitResult['models'][number]) =>
     m.segment === null ? r.spec.name : Object.entries(m.segment).map(([k, v]) => `${k}=${v ?? 'NULL'}`).join(', ');
   if (r.models.length <= FULL_MODELS_UP_TO) {

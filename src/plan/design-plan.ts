@@ -34,7 +34,23 @@ export interface DesignPlan {
    * (absent when built without the types to decide it).
    */
   readonly extended?: DesignPlan;
+  /**
+   * The design of `extended` with every value float8, for a double-double pass read as rows
+   * (set when that pass is scoped differently from this plan, as in a refit).
+   */
+  readonly extendedFloat?: DesignPlan;
 }
+
+/** Narrows a design query for incremental and window fits. */
+export interface DesignScope {
+  /** Predicate the rows must meet (bound values), ANDed with any partition predicate. */
+  readonly filter?: SqlTemplate | undefined;
+  /** Time bucket of a row, read as one more key column after the segment columns. */
+  readonly bucket?: SqlTemplate | undefined;
+}
+
+/** Key name under which the bucket column of a window fit is read (after the segment columns). */
+export const BUCKET_KEY = 'rowfold_bucket';
 
 /**
  * Builds the design query: segment columns as text, then every design column as float8
@@ -49,6 +65,7 @@ export function buildDesignPlan(
   levels: readonly CategoricalLevels[],
   partitions: readonly SqlTemplate[] | null,
   exact: ReadonlySet<string> = new Set(),
+  scope: DesignScope = {},
 ): DesignPlan {
   // Expressions of type numeric stay numeric when `exact` names them (a float8 cast would
   // round their decimals); everything else is float8.
@@ -108,16 +125,25 @@ export function buildDesignPlan(
   const select: (SqlTemplate | string)[] = ['SELECT '];
   const items: SqlTemplate[] = [
     ...spec.segmentBy.map((c, i) => new SqlTemplate([`${SOURCE_ALIAS}.${quoteIdent(c)}::text AS ${quoteIdent(`k${i}`)}`])),
+    ...(scope.bucket === undefined
+      ? []
+      : [SqlTemplate.join([scope.bucket, ` AS ${quoteIdent(`k${spec.segmentBy.length}`)}`])]),
     ...values.map((v, i) => SqlTemplate.join([v.sql, ` AS ${quoteIdent(`v${i}`)}`])),
   ];
   select.push(SqlTemplate.join(items, ',\n       '), '\n  FROM ', sourceRelation(spec));
   const base = SqlTemplate.join(select);
-  const queries = (partitions ?? [null]).map((p) => (p === null ? base : SqlTemplate.join([base, '\n WHERE ', p])));
+  const queries = (partitions ?? [null]).map((p) => {
+    const where = [p, scope.filter ?? null].filter((c): c is SqlTemplate => c !== null);
+    if (where.length === 0) return base;
+    if (where.length === 1) return SqlTemplate.join([base, '\n WHERE ', where[0]!]);
+    // Both in parentheses, so neither binds to the other's operators.
+    return SqlTemplate.join([base, '\n WHERE ', SqlTemplate.join(where.map((c) => SqlTemplate.join(['(', c, ')'])), ' AND ')]);
+  });
   return {
     columns: design.map((c) => c.name),
     valueNames: values.map((v) => v.name),
     origins: values.map((v) => v.origin),
-    keyNames: [...spec.segmentBy],
+    keyNames: scope.bucket === undefined ? [...spec.segmentBy] : [...spec.segmentBy, BUCKET_KEY],
     levels,
     queries,
     valueTypes: values.map((v) => v.type),

@@ -1,6 +1,6 @@
 import { checkExpressionTypes, numericExpressionKeys } from '../plan/check-expression-types.js';
 import { buildDesignPlan } from '../plan/design-plan.js';
-import type { DesignPlan } from '../plan/design-plan.js';
+import type { DesignPlan, DesignScope } from '../plan/design-plan.js';
 import { partitionPredicates } from '../plan/partition-predicates.js';
 import { PlanError } from '../plan/plan-error.js';
 import { levelQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
@@ -14,9 +14,15 @@ import type { FitSpec } from '../spec/fit-spec.js';
 /**
  * Plans a fit against the live source: checks the type of every expression (finding the
  * culprit when the server rejects one), discovers categorical levels, and cuts the
- * source into `parallel` partitions.
+ * source into `parallel` partitions. `scope` narrows the first pass and the double-double
+ * pass of an incremental or window fit (see refitFilter).
  */
-export async function planFit(client: DbSession, spec: FitSpec, parallel: number): Promise<DesignPlan> {
+export async function planFit(
+  client: DbSession,
+  spec: FitSpec,
+  parallel: number,
+  scope: { first?: DesignScope; extended?: DesignScope } = {},
+): Promise<DesignPlan> {
   const expressions = probedExpressions(spec);
   let types: string[];
   try {
@@ -38,9 +44,12 @@ export async function planFit(client: DbSession, spec: FitSpec, parallel: number
     pages = Number(rows[0]?.[0] ?? 0);
   }
   const partitions = partitionPredicates(spec, parallel, pages);
-  const fast = buildDesignPlan(spec, casts, levels, partitions);
-  const extended = numeric.size > 0 ? buildDesignPlan(spec, casts, levels, partitions, numeric) : fast;
-  return { ...fast, extended };
+  // The first pass may be scoped differently from a second, double-double one: an incremental
+  // fit folds only new rows (per bucket) into stored state, the second pass reads them all.
+  const fast = buildDesignPlan(spec, casts, levels, partitions, new Set(), scope.first);
+  const extended = buildDesignPlan(spec, casts, levels, partitions, numeric, scope.extended ?? scope.first);
+  const extendedFloat = scope.extended === undefined ? undefined : buildDesignPlan(spec, casts, levels, partitions, new Set(), scope.extended);
+  return { ...fast, extended, extendedFloat };
 }
 
 /**

@@ -11,9 +11,11 @@ import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
-import { createStoreDb, failRun, migrate, publishRun, startRun } from '../store/index.js';
+import { createStoreDb, failRun, migrate, publishRun, startRun, writeFitStates, writeRefitRecord, writeRunResult } from '../store/index.js';
 import type { ModelRecord } from '../store/index.js';
 import { planFit } from './plan-fit.js';
+import { finishRefit, startRefit, storedStates } from './refit.js';
+import type { RefitOutcome, RefitStart } from './refit.js';
 import { toolVersion } from './tool-version.js';
 
 /** The spec file could not be read (missing, unreadable): a usage error, not a failed fit. */
@@ -33,6 +35,8 @@ export interface RunFitRequest {
   /** Overrides the spec's `accuracy`. */
   readonly accuracy?: 'auto' | 'fast' | 'extended' | undefined;
   readonly dryRun?: boolean;
+  /** With a watermark: read every row and replace the stored state (late rows are folded in). */
+  readonly full?: boolean;
   /** Called now and then while rows stream. */
   readonly onProgress?: (p: { rowsRead: number; segments: number; seconds: number }) => void;
 }
@@ -57,6 +61,8 @@ export interface RunFitResult {
   readonly rowsSkipped: Record<string, number>;
   readonly seconds: number;
   readonly models: readonly FittedModel[];
+  /** For a fit with a watermark or window: full or incremental, notes, watermarks, drift tests. */
+  readonly refit?: RefitOutcome | undefined;
 }
 
 const TOOL_VERSION = toolVersion();
@@ -78,7 +84,15 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     if (parallel > database.maxSessions) {
       throw new SpecFileError(`--parallel ${parallel}: the ${database.kind} database serves ${database.maxSessions} reader(s) at once`);
     }
-    const plan = await database.withSession((session) => planFit(session, spec, parallel));
+    let refit: RefitStart | null = null;
+    // Read before the session opens: the embedded database serves one session at a time.
+    const stored = spec.watermark === null ? [] : await storedStates(db, spec);
+    const plan = await database.withSession(async (session) => {
+      if (spec.watermark === null) return planFit(session, spec, parallel);
+      // The unscoped plan gives the design (columns, levels) that stored state must match.
+      refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel), req.full === true);
+      return planFit(session, spec, parallel, refit.scope);
+    });
     const base = { spec, plan, connection: database.display };
     if (req.dryRun) {
       return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
@@ -92,8 +106,8 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       toolVersion: TOOL_VERSION,
     });
     try {
-      const out = await readAndSolve(database, spec, plan, req);
-      await publishRun(db, spec.schema, runId, {
+      const out = await readAndSolve(database, spec, plan, req, refit);
+      const result = {
         rowsRead: out.rowsRead,
         rowsUsed: out.rowsUsed,
         rowsSkipped: out.rowsSkipped,
@@ -107,7 +121,17 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
             passes: m.passes,
           }),
         ),
-      });
+      };
+      const done = out.refit;
+      if (done === undefined) await publishRun(db, spec.schema, runId, result);
+      else {
+        // State, drift tests and models in one transaction: a refit never merges state of an unpublished run.
+        await db.transaction().execute(async (trx) => {
+          await writeRunResult(trx, spec.schema, runId, result);
+          await writeFitStates(trx, spec.schema, spec.name, runId, done.states);
+          await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
+        });
+      }
       return { ...base, runId, ...out };
     } catch (e) {
       await failRun(db, spec.schema, runId, e).catch(() => undefined);
@@ -178,29 +202,41 @@ async function readAndSolve(
   spec: FitSpec,
   plan: DesignPlan,
   req: RunFitRequest,
+  refit: RefitStart | null = null,
 ): Promise<Omit<RunFitResult, 'spec' | 'plan' | 'connection' | 'runId'>> {
   const started = performance.now();
   const progress = { rows: 0, last: started, started };
   const accuracy = spec.method === 'normal' ? 'fast' : (req.accuracy ?? spec.accuracy);
   // Numeric columns travel as numeric only over COPY; the row stream carries float8.
-  const extendedPlan = (req.read ?? spec.read) === 'copy' ? (plan.extended ?? plan) : plan;
+  const extendedPlan = (req.read ?? spec.read) === 'copy' ? (plan.extended ?? plan) : (plan.extendedFloat ?? plan);
   const extendedOptions: SegmentedFitOptions = {
     precision: 'double-double',
     pairs: extendedPlan.valueTypes.includes('numeric'),
   };
+  // A refit folds its first pass in double precision, the arithmetic of stored state.
+  const ddFirst = accuracy === 'extended' && refit === null;
   const first = await readPass(
     database,
-    accuracy === 'extended' ? extendedPlan : plan,
+    ddFirst ? extendedPlan : plan,
     spec,
     req,
-    accuracy === 'extended' ? extendedOptions : { method: spec.method },
+    ddFirst ? extendedOptions : { method: spec.method },
     progress,
   );
   const counts = first.counts;
   const rowsRead = counts.reduce((n, c) => n + c.rowsRead, 0);
-  if (rowsRead === 0) throw new Error('the source returned no rows; there is nothing to fit');
-  const all = first.fit;
-  if (plan.keyNames.length === 0) all.ensure([]);
+  const done = refit === null ? undefined : finishRefit(refit, spec, first.fit.shape, spec.method, first.fit, rowsRead);
+  const all = done?.fit ?? first.fit;
+  if (rowsRead === 0 && (done === undefined || all.states().every((s) => s.acc.rows + s.acc.zeroWeightRows === 0))) {
+    throw new Error(
+      done === undefined || done.record.refit === 'full'
+        ? 'the source returned no rows; there is nothing to fit'
+        : 'the source returned no new rows and no stored state is left in the window; there is nothing to fit',
+    );
+  }
+  // Segment columns of the models (a window plan reads one more key, the bucket).
+  const keyNames = done === undefined ? plan.keyNames : spec.segmentBy;
+  if (keyNames.length === 0) all.ensure([]);
 
   const solveOne = (s: SegmentState): FitSolution =>
     s.acc.precision === 'double-double'
@@ -210,10 +246,13 @@ async function readAndSolve(
   for (const s of all.states()) solutions.set(s.keyText, solveOne(s));
 
   // auto: one more pass, in double-double, for the models double precision cannot vouch for.
+  // (With a refit, `extended` is this pass for every segment, over all its rows.)
   let passes = 1;
-  if (accuracy === 'auto') {
+  if (accuracy === 'auto' || (accuracy === 'extended' && refit !== null)) {
     const weak = new Set(
-      [...solutions].filter(([, f]) => f.estimatedDigits !== null && f.estimatedDigits < AUTO_EXTENDED_BELOW_DIGITS).map(([k]) => k),
+      [...solutions]
+        .filter(([, f]) => accuracy === 'extended' || (f.estimatedDigits !== null && f.estimatedDigits < AUTO_EXTENDED_BELOW_DIGITS))
+        .map(([k]) => k),
     );
     if (weak.size > 0) {
       passes = 2;
@@ -233,9 +272,17 @@ async function readAndSolve(
     }
     rowsUsed += solution.rows;
     zeroWeight += solution.zeroWeightRows;
-    const segment =
-      plan.keyNames.length === 0 ? null : Object.fromEntries(plan.keyNames.map((n, i) => [n, s.key[i] ?? null]));
-    models.push({ segment, segmentKey: plan.keyNames.length === 0 ? '' : s.keyText, solution, passes });
+    const segment = keyNames.length === 0 ? null : Object.fromEntries(keyNames.map((n, i) => [n, s.key[i] ?? null]));
+    models.push({ segment, segmentKey: keyNames.length === 0 ? '' : s.keyText, solution, passes });
+  }
+  if (done !== undefined) {
+    // A refit's counts are of the rows it read; its models also hold the stored rows.
+    rowsUsed = 0;
+    zeroWeight = 0;
+    for (const s of first.fit.states()) {
+      rowsUsed += s.acc.rows;
+      zeroWeight += s.acc.zeroWeightRows;
+    }
   }
   return {
     rowsRead,
@@ -243,6 +290,7 @@ async function readAndSolve(
     rowsSkipped: skippedByReason(plan, counts, zeroWeight),
     seconds: (performance.now() - started) / 1000,
     models,
+    refit: done,
   };
 }
 

@@ -142,6 +142,30 @@ export const fitSpecSchema = z
       'a column name',
       'Column hashed to split the source into partitions that are read in parallel.',
     ).optional(),
+    watermark: identifier(
+      'a column name',
+      'Monotone column (timestamp, date or integer): the state of every segment is stored with the highest value folded, ' +
+        'and the next run reads only rows above it and merges. Rows that arrive later with a value at or below it (late rows) ' +
+        'are ignored until a run with --full.',
+    ).optional(),
+    window: z
+      .strictObject({
+        column: identifier('a column name', 'Timestamp or date column that places a row in its bucket.'),
+        bucket: z
+          .enum(['day', 'week', 'month'])
+          .meta({ description: 'Bucket size: day, week (ISO, from Monday) or month.' }),
+        keep: z
+          .int({ error: 'must be a whole number from 1 to 10000' })
+          .min(1, { error: 'must be a whole number from 1 to 10000' })
+          .max(10000, { error: 'must be a whole number from 1 to 10000' })
+          .meta({ description: 'Buckets in the window, the newest bucket with rows included.' }),
+      })
+      .optional()
+      .meta({
+        description:
+          'Rolling window: state is stored per segment and bucket; each run folds only new rows and fits the last `keep` ' +
+          'buckets; older buckets are pruned. The watermark defaults to the window column.',
+      }),
   })
   .meta({
     title: 'rowfold fit spec',

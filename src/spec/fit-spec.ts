@@ -60,6 +60,18 @@ export interface FitInteractionFactor {
 export type FitInteraction = readonly [FitInteractionFactor, FitInteractionFactor];
 
 /**
+ * A rolling window: state is kept per time bucket and a fit merges the newest `keep` buckets.
+ *
+ * @example
+ * const w: FitWindow = { column: 'read_at', bucket: 'week', keep: 8 };
+ */
+export interface FitWindow {
+  readonly column: string;
+  readonly bucket: 'day' | 'week' | 'month';
+  readonly keep: number;
+}
+
+/**
  * A validated, normalised fit spec with every default filled in.
  *
  * Produced by `parseFitSpec` / `loadFitSpec`; the object is deeply frozen. Optional
@@ -105,6 +117,14 @@ export interface FitSpec {
   readonly nonFinite: 'error' | 'skip';
   /** Column hashed to split the source into partitions read in parallel, or `null`. */
   readonly partitionKey: string | null;
+  /**
+   * Monotone column (timestamp, date or integer) for incremental refits, or `null`: segment
+   * states are stored with the highest value folded and the next run reads only rows above it.
+   * With `window` and no `watermark`, the window column.
+   */
+  readonly watermark: string | null;
+  /** Rolling window over time buckets of a timestamp or date column, or `null`. */
+  readonly window: FitWindow | null;
   /** File name (or label) the spec was read from, as used in error messages. */
   readonly origin: string;
   /** The spec text exactly as read. */

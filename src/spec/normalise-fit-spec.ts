@@ -157,6 +157,8 @@ export function normaliseFitSpec(
       read: doc.read,
       nonFinite: doc.non_finite,
       partitionKey: doc.partition_key ?? null,
+      watermark: doc.watermark ?? doc.window?.column ?? null,
+      window: doc.window === undefined ? null : { ...doc.window },
     },
   };
 }

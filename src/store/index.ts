@@ -15,3 +15,8 @@ export { DEFAULT_STORE_SCHEMA, checkSchemaName } from './schema-name.js';
 export { startRun } from './start-run.js';
 export type { RunStart } from './start-run.js';
 export type * from './store-database.js';
+export type { FitStateRecord } from './fit-state-record.js';
+export { loadFitStates } from './load-fit-states.js';
+export { writeFitStates } from './write-fit-states.js';
+export { writeRefitRecord } from './write-refit-record.js';
+export type { DriftRecord, RefitRecord } from './write-refit-record.js';

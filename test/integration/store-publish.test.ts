@@ -202,6 +202,11 @@ describe('publishRun', () => {
       seconds: 1.25,
       tool_version: '0.1.0',
       error_message: null,
+      // Migration 0003: only runs of a fit with a watermark fill these.
+      refit: null,
+      watermark_from: null,
+      watermark_to: null,
+      notes: [],
     });
     expect(run.started_at.getTime()).toBeGreaterThanOrEqual(before.getTime() - 5000);
     expect(run.ended_at!.getTime()).toBeGreaterThanOrEqual(run.started_at.getTime());

@@ -39,6 +39,8 @@ describe('schema/fit-spec.schema.json', () => {
       'read',
       'non_finite',
       'partition_key',
+      'watermark',
+      'window',
     ]);
   });
 });

@@ -31,6 +31,8 @@ describe('parseFitSpec: defaults', () => {
       read: 'copy',
       nonFinite: 'error',
       partitionKey: null,
+      watermark: null,
+      window: null,
       origin: 'load.yaml',
       text,
       hash: createHash('sha256').update(text).digest('hex'),
