@@ -1,5 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { createTestDatabase } from '../support/pg-database.js';
+import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
 
@@ -179,5 +179,52 @@ describe('drift', () => {
     const view = await tdb.query(`select segment_key, flagged_terms, test from rowfold.drift where fit_name = 'meter_drift' order by 1`);
     expect(view.rows.length).toBe(hits + falseAlarms);
     expect(view.rows[0]).toMatchObject({ segment_key: '["F00"]', test: 'chow' });
+  });
+});
+
+describe('other watermark types, buckets and readers', () => {
+  // An integer watermark (a load sequence), a query source read over two connections (server),
+  // and a month window whose watermark is another column than its buckets.
+  beforeAll(async () => {
+    await tdb.exec(`create table meter_seq as select row_number() over (order by t, feeder) as seq, * from meter`);
+  });
+
+  it('an integer watermark: the refit equals a full fit to 1e-10', async () => {
+    const spec = { name: 'meter_seq', ...base, source: 'meter_seq', watermark: 'seq' };
+    await tdb.query('delete from meter_seq where seq > 600');
+    expect((await fit(spec)).run.rows_read).toBe(600);
+    await tdb.query(`insert into meter_seq select row_number() over (order by t, feeder) + 600, * from meter where t > '2026-01-10'`);
+    const refit = await fit(spec);
+    expect(refit.run.refit).toBe('incremental');
+    expect(refit.run.watermark_from).toBe('600');
+    expect(maxRelativeDifference(await fit({ name: 'meter_seq_reference', ...base, source: 'meter_seq' }), refit)).toBeLessThan(1e-10);
+  });
+
+  it.skipIf(ON_EMBEDDED)('an incremental refit read over two connections equals one read over one', async () => {
+    const spec = { name: 'meter_parallel', ...base, source: 'select * from meter_seq', partition_key: 'feeder', watermark: 'seq' };
+    await tdb.query('delete from meter_seq where seq > 900');
+    const res = await runCli(['fit', writeSpec(spec), '--db', tdb.url, '--json', '--parallel', '2']);
+    expect(res.code).toBe(0);
+    await tdb.query(`insert into meter_seq select row_number() over (order by t, feeder) + 900, * from meter where t > '2026-01-12'`);
+    const two = JSON.parse((await runCli(['fit', writeSpec(spec), '--db', tdb.url, '--json', '--parallel', '2'])).stdout) as Doc;
+    expect(two.run.refit).toBe('incremental');
+    expect(maxRelativeDifference(await fit({ name: 'meter_parallel_reference', ...base, source: 'meter_seq' }), two)).toBeLessThan(1e-10);
+  });
+
+  it('a month window with its own watermark keeps two buckets and equals a full fit over them', async () => {
+    const spec = { name: 'meter_month', ...base, source: 'meter_seq', watermark: 'seq', window: { column: 't', bucket: 'month', keep: 2 } };
+    await tdb.query(`delete from meter_seq where seq > 1200`);
+    await fit(spec);
+    await tdb.query(`insert into meter_seq select 1200 + row_number() over (order by t, feeder), feeder, t + interval '40 days', x1, x2, y from meter`);
+    const refit = await fit(spec);
+    expect(refit.run.refit).toBe('incremental');
+    const reference = await fit({
+      name: 'meter_month_reference',
+      ...base,
+      source: `select * from meter_seq where t >= date_trunc('month', (select max(t) from meter_seq)) - interval '1 month'`,
+    });
+    expect(maxRelativeDifference(reference, refit)).toBeLessThan(1e-10);
+    const buckets = await tdb.query(`select array_agg(distinct bucket order by bucket) as b from rowfold.fit_states where fit_name = 'meter_month'`);
+    expect(buckets.rows[0].b).toEqual(['2026-02-01', '2026-03-01']);
   });
 });
