@@ -10,8 +10,12 @@ import { demoCommand } from './demo-command.js';
 import { fitCommand } from './fit-command.js';
 import { fitCsvCommand } from './fit-csv-command.js';
 import { reportCommand } from './report-command.js';
+import { ScheduleError } from '../schedule/fit-schedule.js';
+import { runsCommand } from './runs-command.js';
+import { scheduleCommand } from './schedule-command.js';
+import { serveCommand } from './serve-command.js';
 
-const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand, demoCommand, reportCommand];
+const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand, demoCommand, reportCommand, scheduleCommand, serveCommand, runsCommand];
 
 /**
  * Entry point of the `rowfold` command. Each command lives in its own module; this file
@@ -43,6 +47,7 @@ function describeFailure(e: unknown): { code: number; text: string } {
   const message = e instanceof Error ? e.message : String(e);
   if (e instanceof CliError) return { code: e.exitCode, text: message };
   if (e instanceof SpecFileError) return { code: ExitCode.usage, text: message };
+  if (e instanceof ScheduleError) return { code: ExitCode.usage, text: message };
   if (e instanceof SpecError) return { code: ExitCode.usage, text: `bad spec: ${message}` };
   if (e instanceof PlanError) return { code: ExitCode.usage, text: `spec does not fit the source: ${message}` };
   if (e instanceof FitInputError) return { code: ExitCode.failed, text: `bad data: ${message}` };

@@ -4,7 +4,7 @@ import { solutionToJson } from '../report/solution-json.js';
 import { formatSegmentsTable } from '../report/segments-table.js';
 import { formatSolution } from '../report/terminal-summary.js';
 import { formatCount } from '../report/format-number.js';
-import { runFit } from '../run/run-fit.js';
+import { runFitExclusive } from '../run/run-fit-exclusive.js';
 import type { RunFitResult } from '../run/run-fit.js';
 import { CliError, ExitCode } from './exit-codes.js';
 import { progressReporter } from './progress-reporter.js';
@@ -43,7 +43,7 @@ export function fitCommand(y: Argv): Argv {
       const progress = progressReporter();
       let result: RunFitResult;
       try {
-        result = await runFit({
+        result = await runFitExclusive({
           specPath: args.spec,
           db: args.db,
           parallel,

@@ -1,4 +1,5 @@
 import * as z from 'zod';
+import { CRON_RULE, cronProblem } from '../schedule/cron-expression.js';
 
 const NAME_PATTERN = /^[A-Za-z][A-Za-z0-9_.-]{0,62}$/;
 const IDENTIFIER_PATTERN = /^[A-Za-z_][A-Za-z0-9_]{0,62}$/;
@@ -142,6 +143,14 @@ export const fitSpecSchema = z
       'a column name',
       'Column hashed to split the source into partitions that are read in parallel.',
     ).optional(),
+    schedule: z
+      .string({ error: `must be ${CRON_RULE}` })
+      .superRefine((value, ctx) => {
+        const problem = cronProblem(value);
+        if (problem !== null) ctx.addIssue({ code: 'custom', message: problem });
+      })
+      .optional()
+      .meta({ description: `When \`rowfold serve\` refits: ${CRON_RULE}.` }),
     watermark: identifier(
       'a column name',
       'Monotone column (timestamp, date or integer): the state of every segment is stored with the highest value folded, ' +

@@ -117,6 +117,8 @@ export interface FitSpec {
   readonly nonFinite: 'error' | 'skip';
   /** Column hashed to split the source into partitions read in parallel, or `null`. */
   readonly partitionKey: string | null;
+  /** When `rowfold serve` refits: a five-field cron expression in UTC, or `null`. */
+  readonly schedule: string | null;
   /**
    * Monotone column (timestamp, date or integer) for incremental refits, or `null`: segment
    * states are stored with the highest value folded and the next run reads only rows above it.

@@ -157,6 +157,7 @@ export function normaliseFitSpec(
       read: doc.read,
       nonFinite: doc.non_finite,
       partitionKey: doc.partition_key ?? null,
+      schedule: doc.schedule === undefined ? null : doc.schedule.trim(),
       watermark: doc.watermark ?? doc.window?.column ?? null,
       window: doc.window === undefined ? null : { ...doc.window },
     },

@@ -31,6 +31,7 @@ describe('parseFitSpec: defaults', () => {
       read: 'copy',
       nonFinite: 'error',
       partitionKey: null,
+      schedule: null,
       watermark: null,
       window: null,
       origin: 'load.yaml',
