@@ -26,7 +26,8 @@ function model(over: Partial<ReportModel>): ReportModel {
 }
 
 describe('normalQuantile (t quantile at 1e12 df)', () => {
-  // Reference: scipy.stats.norm.ppf, which agrees with −√2·erfcinv(2p) from stdlib to 1e-15.
+  // Reference: scipy 1.17.1, scipy.stats.norm.ppf (values printed by it on this machine; it
+  // agrees with −√2·erfcinv(2p) from stdlib to 1e-15).
   it.each([
     [0.975, 1.959963984540054],
     [0.001, -3.090232306167813],
@@ -49,7 +50,7 @@ describe('normalQuantilePoints', () => {
     expect(pts.map((p) => p.observed)).toEqual([-1.2, 0.3, 0.8]);
     expect(pts[0]!.expected).toBeCloseTo(-pts[2]!.expected, 12);
     expect(Math.abs(pts[1]!.expected)).toBeLessThan(1e-12);
-    // (1 − 3/8) / (3 + 1/4) = 0.1923…, Φ⁻¹ of which is −0.8694 (scipy.stats.norm.ppf).
+    // (1 − 3/8) / (3 + 1/4) = 0.1923…, Φ⁻¹ of which is −0.8694 (scipy 1.17.1, scipy.stats.norm.ppf).
     expect(pts[0]!.expected).toBeCloseTo(-0.8694237, 6);
   });
 });
