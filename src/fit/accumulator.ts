@@ -343,11 +343,18 @@ export class Accumulator {
     const weighted = this.shape.weight !== undefined;
     const icpt = this.shape.intercept ? 1 : 0;
     const m = FoldWorkspace.rowsFor(n);
-    // The WebAssembly SIMD kernel when it is built; rows are staged in its memory.
-    const wasm = this.method === 'qr' ? wasmFold() : null;
+    // The WebAssembly SIMD kernels when they are built; rows are staged in their memory.
+    const wasm = wasmFold();
     const buf = wasm !== null ? wasm.staging(n, m * n) : this.workspace.take(m * n);
-    const kernel: (n: number, r: Float64Array, b: Float64Array, m: number, ld: number) => void =
-      wasm !== null ? (nn, r, b, mm, ld) => wasm.fold(nn, r, b, mm, ld) : this.method === 'qr' ? householderFold : gramUpdate;
+    type Kernel = (n: number, r: Float64Array, b: Float64Array, m: number, ld: number) => void;
+    const kernel: Kernel =
+      wasm !== null
+        ? this.method === 'qr'
+          ? (nn, r, b, mm, ld) => wasm.fold(nn, r, b, mm, ld)
+          : (nn, g, b, mm, ld) => wasm.gram(nn, g, b, mm, ld)
+        : this.method === 'qr'
+          ? householderFold
+          : gramUpdate;
     const yCol = (n - 1) * m;
     this.cholesky = undefined;
     let fill = 0;

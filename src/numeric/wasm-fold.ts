@@ -1,7 +1,8 @@
 import { packedLength } from './packed.js';
 
 /**
- * The WebAssembly (128-bit SIMD) Householder fold, instantiated from its compiled bytes.
+ * The WebAssembly (128-bit SIMD) Householder fold and Gram update, instantiated from their
+ * compiled bytes.
  * Pure: the bytes come from the caller (see fit/wasm-kernel.ts, which finds the file).
  *
  * The kernel works in its own linear memory: the staging block lives there (views from
@@ -11,12 +12,14 @@ import { packedLength } from './packed.js';
 export class WasmFold {
   private readonly memory: WebAssembly.Memory;
   private readonly run: (n: number, r: number, b: number, m: number, ld: number) => void;
+  private readonly runGram: (n: number, g: number, b: number, m: number, ld: number) => void;
 
   constructor(bytes: Uint8Array) {
     this.memory = new WebAssembly.Memory({ initial: 64 });
     const module = new WebAssembly.Module(bytes);
     const instance = new WebAssembly.Instance(module, { env: { memory: this.memory, abort: () => undefined } });
     this.run = instance.exports['fold'] as (n: number, r: number, b: number, m: number, ld: number) => void;
+    this.runGram = instance.exports['gram'] as (n: number, g: number, b: number, m: number, ld: number) => void;
   }
 
   /**
@@ -39,6 +42,18 @@ export class WasmFold {
     heap.set(r.subarray(0, len));
     this.run(n, 0, staged.byteOffset, m, ld);
     r.set(heap);
+  }
+
+  /**
+   * Adds BᵀB of `m` staged rows to the packed Gram matrix `g` of order `n` (the XᵀX
+   * option's kernel; see gram-update.ts for the reference).
+   */
+  gram(n: number, g: Float64Array, staged: Float64Array, m: number, ld: number): void {
+    const len = packedLength(n);
+    const heap = new Float64Array(this.memory.buffer, 0, len);
+    heap.set(g.subarray(0, len));
+    this.runGram(n, 0, staged.byteOffset, m, ld);
+    g.set(heap);
   }
 
   private ensure(bytes: number): void {

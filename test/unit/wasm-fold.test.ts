@@ -1,5 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { wasmFold } from '../../src/fit/wasm-kernel.js';
+import { gramUpdate } from '../../src/numeric/gram-update.js';
 import { householderFold } from '../../src/numeric/householder-fold.js';
 import { packedLength } from '../../src/numeric/packed.js';
 import { rng } from '../support/synthetic.js';
@@ -36,6 +37,23 @@ describe.skipIf(kernel === null && !required)(
       let worst = 0;
       rJs.forEach((v, i) => (worst = Math.max(worst, Math.abs(v - rWasm[i]!) / scale)));
       expect(worst).toBeLessThan(1e-12);
+    });
+  
+    it('the Gram update (XᵀX option) equals the TypeScript one to 1e-12 relative', () => {
+      const n = 53;
+      const m = 301;
+      const u = rng(7);
+      const gJs = new Float64Array(packedLength(n));
+      const gWasm = new Float64Array(packedLength(n));
+      for (let t = 0; t < 10; t++) {
+        const block = Float64Array.from({ length: m * n }, () => u() - 0.5);
+        const staged = kernel!.staging(n, m * n);
+        staged.set(block);
+        kernel!.gram(n, gWasm, staged, m, m);
+        gramUpdate(n, gJs, block, m, m);
+      }
+      const scale = Math.max(...gJs.map(Math.abs));
+      gJs.forEach((v, i) => expect(Math.abs(v - gWasm[i]!) / scale).toBeLessThan(1e-12));
     });
   },
 );

@@ -69,3 +69,24 @@ export function fold(n: i32, r: usize, b: usize, m: i32, ld: i32): void {
     }
   }
 }
+
+// Adds BᵀB to the packed upper-triangular Gram matrix g of order n (the normal-equations
+// counterpart of fold; same layout as ../gram-update.ts).
+export function gram(n: i32, g: usize, b: usize, m: i32, ld: i32): void {
+  const m2 = m & ~1;
+  for (let i = 0; i < n; i++) {
+    const ci = b + (<usize>(i * ld) << 3);
+    const gi = g + (<usize>rowStart(n, i) << 3);
+    for (let j = i; j < n; j++) {
+      const cj = b + (<usize>(j * ld) << 3);
+      let acc = f64x2.splat(0);
+      for (let r = 0; r < m2; r += 2) {
+        acc = f64x2.add(acc, f64x2.mul(v128.load(ci + (<usize>r << 3)), v128.load(cj + (<usize>r << 3))));
+      }
+      let s = f64x2.extract_lane(acc, 0) + f64x2.extract_lane(acc, 1);
+      for (let r = m2; r < m; r++) s += load<f64>(ci + (<usize>r << 3)) * load<f64>(cj + (<usize>r << 3));
+      const p = gi + (<usize>(j - i) << 3);
+      store<f64>(p, load<f64>(p) + s);
+    }
+  }
+}
