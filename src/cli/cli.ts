@@ -5,6 +5,7 @@ import { PlanError } from '../plan/plan-error.js';
 import { SpecFileError } from '../run/run-fit.js';
 import { SpecError } from '../spec/spec-error.js';
 import { maskSecrets } from '../source/mask-secrets.js';
+import { setNoticeSink } from '../source/notices.js';
 import { CliError, ExitCode } from './exit-codes.js';
 import { demoCommand } from './demo-command.js';
 import { fitCommand } from './fit-command.js';
@@ -22,6 +23,7 @@ const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand, dem
  * only wires them and maps errors to exit codes and messages (with any password masked).
  */
 export async function main(argv: string[]): Promise<number> {
+  setNoticeSink((message) => process.stderr.write(`rowfold: ${message}\n`));
   const base = yargs(argv)
     .scriptName('rowfold')
     .strict()

@@ -1,5 +1,6 @@
+import { existsSync } from 'node:fs';
 import { mkdir, readdir, realpath } from 'node:fs/promises';
-import { resolve } from 'node:path';
+import { join, resolve } from 'node:path';
 
 import { PGlite } from '@electric-sql/pglite';
 import type { ParserOptions } from '@electric-sql/pglite';
@@ -13,6 +14,7 @@ import type { PGliteSession } from './pglite-dialect.js';
 import { pgliteDesignTransport } from './pglite-design-transport.js';
 import { pgliteQuery } from './pglite-query.js';
 import { designReadParsers, knownTypeOids, pgTypeParsers } from './pglite-type-parsers.js';
+import { notice } from './notices.js';
 import { readDesignFrom } from './read-design.js';
 import { SessionQueue } from './session-queue.js';
 
@@ -127,6 +129,7 @@ async function startInstance(key: string, shown: string): Promise<Instance> {
   const lock = await lockDataDir(key);
   try {
     await checkFolder(key, shown);
+    if (!existsSync(join(key, 'PG_VERSION'))) notice(`creating the embedded database in ${shown} (first run; a few seconds)`);
     const pglite = await PGlite.create(key);
     try {
       const oids = await knownTypeOids(pglite);
