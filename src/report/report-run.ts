@@ -1,21 +1,35 @@
-import type { FitStatus } from '../fit/fit-solution.js';
+import type { CoefficientResult, FitSolution, FitStatus } from '../fit/fit-solution.js';
 
 /** One stored coefficient, numbers as JS numbers (NaN and ±Infinity kept). */
-export interface ReportCoefficient {
+export interface ReportCoefficient extends CoefficientResult {
   readonly termIndex: number;
-  readonly term: string;
-  readonly aliased: boolean;
-  readonly estimate: number | null;
-  readonly stdError: number | null;
-  readonly t: number | null;
-  readonly p: number | null;
-  readonly ciLow: number | null;
-  readonly ciHigh: number | null;
-  readonly vif: number | null;
 }
 
+/** The fit statistics a stored model carries, as the solver named them. */
+type StoredStatistics = Pick<
+  FitSolution,
+  | 'confidence'
+  | 'intercept'
+  | 'rows'
+  | 'zeroWeightRows'
+  | 'sumWeights'
+  | 'rank'
+  | 'dfResidual'
+  | 'rss'
+  | 'sigma'
+  | 'r2'
+  | 'r2Adjusted'
+  | 'f'
+  | 'fDf1'
+  | 'fDf2'
+  | 'fP'
+  | 'logLik'
+  | 'aic'
+  | 'bic'
+>;
+
 /** One stored model of the run, with its coefficients in term order. */
-export interface ReportModel {
+export interface ReportModel extends StoredStatistics {
   readonly modelId: string;
   /** Segment column → value; null without `segment_by`. */
   readonly segment: Readonly<Record<string, string | null>> | null;
@@ -28,24 +42,6 @@ export interface ReportModel {
   readonly status: FitStatus;
   readonly notes: readonly string[];
   readonly method: string;
-  readonly confidence: number;
-  readonly intercept: boolean;
-  readonly rows: number;
-  readonly zeroWeightRows: number;
-  readonly sumWeights: number;
-  readonly rank: number;
-  readonly dfResidual: number;
-  readonly rss: number | null;
-  readonly sigma: number | null;
-  readonly r2: number | null;
-  readonly r2Adjusted: number | null;
-  readonly f: number | null;
-  readonly fDf1: number | null;
-  readonly fDf2: number | null;
-  readonly fP: number | null;
-  readonly logLik: number | null;
-  readonly aic: number | null;
-  readonly bic: number | null;
   readonly conditionNumber: number | null;
   readonly aliasedTerms: readonly string[];
   readonly coefficients: readonly ReportCoefficient[];
