@@ -224,11 +224,7 @@ export class Accumulator {
         this.errorContext(),
       );
     }
-    this.mergeFactor(other.r, other.rLow, other.shiftBy);
-    this.nRows += other.nRows;
-    this.nZeroWeight += other.nZeroWeight;
-    this.sumW += other.sumW;
-    this.sumLogW += other.sumLogW;
+    this.absorb(other.r, other.rLow, other.shiftBy, other.nRows, other.nZeroWeight, other.sumW, other.sumLogW);
   }
 
   /** A copy of the state, for storage or transfer to another thread. */
@@ -257,11 +253,24 @@ export class Accumulator {
     if ((state.factorLow === undefined) !== (this.rLow === undefined)) {
       throw new FitInputError('cannot merge factors of different precision', this.errorContext());
     }
-    this.mergeFactor(state.factor, state.factorLow, state.shift);
-    this.nRows += state.rows;
-    this.nZeroWeight += state.zeroWeightRows;
-    this.sumW += state.sumWeights;
-    this.sumLogW += state.sumLogWeights;
+    this.absorb(state.factor, state.factorLow, state.shift, state.rows, state.zeroWeightRows, state.sumWeights, state.sumLogWeights);
+  }
+
+  /** Folds another factor in and adds its counts: the common body of merge and mergeState. */
+  private absorb(
+    factor: Float64Array,
+    low: Float64Array | undefined,
+    shift: Float64Array | undefined,
+    rows: number,
+    zeroWeightRows: number,
+    sumWeights: number,
+    sumLogWeights: number,
+  ): void {
+    this.mergeFactor(factor, low, shift);
+    this.nRows += rows;
+    this.nZeroWeight += zeroWeightRows;
+    this.sumW += sumWeights;
+    this.sumLogW += sumLogWeights;
   }
 
   /** A new accumulator with the same shape and a copy of this one's state. */

@@ -37,11 +37,7 @@ export class WasmFold {
    * {@link staging} into the packed factor `r` of order `n`.
    */
   fold(n: number, r: Float64Array, staged: Float64Array, m: number, ld: number): void {
-    const len = packedLength(n);
-    const heap = new Float64Array(this.memory.buffer, 0, len);
-    heap.set(r.subarray(0, len));
-    this.run(n, 0, staged.byteOffset, m, ld);
-    r.set(heap);
+    this.onFactor(this.run, n, r, staged, m, ld);
   }
 
   /**
@@ -49,11 +45,23 @@ export class WasmFold {
    * option's kernel; see gram-update.ts for the reference).
    */
   gram(n: number, g: Float64Array, staged: Float64Array, m: number, ld: number): void {
+    this.onFactor(this.runGram, n, g, staged, m, ld);
+  }
+
+  /** Copies the packed matrix into the kernel's memory, runs the kernel on it, copies it back. */
+  private onFactor(
+    kernel: (n: number, r: number, b: number, m: number, ld: number) => void,
+    n: number,
+    packed: Float64Array,
+    staged: Float64Array,
+    m: number,
+    ld: number,
+  ): void {
     const len = packedLength(n);
     const heap = new Float64Array(this.memory.buffer, 0, len);
-    heap.set(g.subarray(0, len));
-    this.runGram(n, 0, staged.byteOffset, m, ld);
-    g.set(heap);
+    heap.set(packed.subarray(0, len));
+    kernel(n, 0, staged.byteOffset, m, ld);
+    packed.set(heap);
   }
 
   private ensure(bytes: number): void {
