@@ -1,6 +1,5 @@
 import { normalEquationsProblem } from '../fit/check-normal-equations.js';
 import type { FitSolution } from '../fit/fit-solution.js';
-import { SegmentedFit } from '../fit/segmented-fit.js';
 import type { SegmentState, SegmentedFitOptions } from '../fit/segmented-fit.js';
 import { solve } from '../fit/solve.js';
 import { solveExtended } from '../fit/solve-extended.js';
@@ -16,6 +15,7 @@ import type { ModelRecord } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { finishRefit, startRefit, storedStates } from './refit.js';
 import type { RefitOutcome, RefitStart } from './refit.js';
+import { readPass } from './read-pass.js';
 import { toolVersion } from './tool-version.js';
 
 /** The spec file could not be read (missing, unreadable): a usage error, not a failed fit. */
@@ -145,57 +145,6 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
 
 /** Estimated correct digits below which `accuracy: auto` takes a double-double pass. */
 export const AUTO_EXTENDED_BELOW_DIGITS = 13.5;
-
-/** One streamed pass over the design query into per-segment accumulators. */
-async function readPass(
-  database: Database,
-  plan: DesignPlan,
-  spec: FitSpec,
-  req: RunFitRequest,
-  options: SegmentedFitOptions,
-  progress: { rows: number; last: number; started: number },
-): Promise<{ fit: SegmentedFit; counts: DesignReadCounts[] }> {
-  const shape = {
-    terms: plan.columns,
-    response: spec.response,
-    weight: spec.weight ?? undefined,
-    intercept: spec.intercept,
-  };
-  const fits = plan.queries.map(() => new SegmentedFit(shape, plan.keyNames, options));
-  const counts = await Promise.all(
-    plan.queries.map((query, i) =>
-      // A session whose stream broke is discarded, not used again.
-      database.withSession((session) =>
-        session.readDesign(
-          {
-            query,
-            keyNames: plan.keyNames,
-            valueNames: plan.valueNames,
-            valueTypes: plan.valueTypes,
-            mode: req.read ?? spec.read,
-            nonFinite: spec.nonFinite === 'skip' ? 'skip' : 'pass',
-          },
-          (block, keyTable) => {
-            fits[i]!.consume(block, keyTable);
-            progress.rows += block.rows;
-            const now = performance.now();
-            if (req.onProgress && now - progress.last > 250) {
-              progress.last = now;
-              req.onProgress({
-                rowsRead: progress.rows,
-                segments: fits.reduce((n, f) => n + f.size, 0),
-                seconds: (now - progress.started) / 1000,
-              });
-            }
-          },
-        ),
-      ),
-    ),
-  );
-  const fit = fits[0]!;
-  for (const f of fits.slice(1)) fit.merge(f);
-  return { fit, counts };
-}
 
 async function readAndSolve(
   database: Database,
