@@ -151,6 +151,32 @@ export const fitSpecSchema = z
       })
       .optional()
       .meta({ description: `When \`rowfold serve\` refits: ${CRON_RULE}.` }),
+    split: z
+      .strictObject({
+        partitions: z
+          .int({ error: 'must be a whole number from 2 to 1024' })
+          .min(2, { error: 'must be a whole number from 2 to 1024' })
+          .max(1024, { error: 'must be a whole number from 2 to 1024' })
+          .meta({
+            description:
+              'Partition jobs per run: a table source is cut into ranges of pages, a query source by a hash of partition_key.',
+          }),
+        job_timeout_seconds: z
+          .int({ error: 'must be a whole number of seconds from 2 to 86400' })
+          .min(2, { error: 'must be a whole number of seconds from 2 to 86400' })
+          .max(86400, { error: 'must be a whole number of seconds from 2 to 86400' })
+          .default(3600)
+          .meta({
+            description:
+              'A partition or merge job still running after this many seconds is taken to be lost and retried by another worker.',
+          }),
+      })
+      .optional()
+      .meta({
+        description:
+          'Runs by `rowfold serve` are cut into partition jobs on the queue: any serve process folds a partition and stores ' +
+          'its partial factors, and a final job merges them and publishes the run. `rowfold fit` reads the whole source itself.',
+      }),
     watermark: identifier(
       'a column name',
       'Monotone column (timestamp, date or integer): the state of every segment is stored with the highest value folded, ' +

@@ -72,6 +72,19 @@ export interface FitWindow {
 }
 
 /**
+ * How `rowfold serve` cuts a run into partition jobs.
+ *
+ * @example
+ * const s: FitSplit = { partitions: 8, jobTimeoutSeconds: 3600 };
+ */
+export interface FitSplit {
+  /** Partition jobs per run (2 to 1024). */
+  readonly partitions: number;
+  /** A partition or merge job active longer than this is taken to be lost and retried. */
+  readonly jobTimeoutSeconds: number;
+}
+
+/**
  * A validated, normalised fit spec with every default filled in.
  *
  * Produced by `parseFitSpec` / `loadFitSpec`; the object is deeply frozen. Optional
@@ -119,6 +132,8 @@ export interface FitSpec {
   readonly partitionKey: string | null;
   /** When `rowfold serve` refits: a five-field cron expression in UTC, or `null`. */
   readonly schedule: string | null;
+  /** How `rowfold serve` cuts a run into partition jobs, or `null` to run it whole. */
+  readonly split: FitSplit | null;
   /**
    * Monotone column (timestamp, date or integer) for incremental refits, or `null`: segment
    * states are stored with the highest value folded and the next run reads only rows above it.

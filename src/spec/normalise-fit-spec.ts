@@ -137,6 +137,20 @@ export function normaliseFitSpec(
     });
   }
 
+  if (doc.split !== undefined) {
+    if (doc.watermark !== undefined || doc.window !== undefined) {
+      problems.push({
+        path: ['split'],
+        message: `a split run cannot be combined with ${doc.watermark !== undefined ? 'watermark' : 'window'} yet: incremental and window refits run whole; remove split`,
+      });
+    } else if (source.ok && source.source.kind === 'query' && doc.partition_key === undefined) {
+      problems.push({
+        path: ['split'],
+        message: 'a query source is split by a hash of partition_key: name a partition_key column (a table source is split by pages)',
+      });
+    }
+  }
+
   if (problems.length > 0 || !source.ok) return { ok: false, problems };
   return {
     ok: true,
@@ -158,6 +172,7 @@ export function normaliseFitSpec(
       nonFinite: doc.non_finite,
       partitionKey: doc.partition_key ?? null,
       schedule: doc.schedule === undefined ? null : doc.schedule.trim(),
+      split: doc.split === undefined ? null : { partitions: doc.split.partitions, jobTimeoutSeconds: doc.split.job_timeout_seconds },
       watermark: doc.watermark ?? doc.window?.column ?? null,
       window: doc.window === undefined ? null : { ...doc.window },
     },

@@ -1,6 +1,7 @@
 import { sql } from 'kysely';
 import type { Kysely } from 'kysely';
 import type { FitStateRecord } from './fit-state-record.js';
+import { parseFloat8Array } from './float8-array.js';
 import { checkSchemaName } from './schema-name.js';
 import type { StoreDatabase } from './store-database.js';
 
@@ -53,11 +54,4 @@ export async function loadFitStates(db: Kysely<StoreDatabase>, schema: string, f
       sumLogWeights: Number(r.sum_log_weights),
     },
   }));
-}
-
-/** `{1.5,-2,NaN}` → Float64Array. */
-function parseFloat8Array(text: string): Float64Array {
-  const body = text.trim().replace(/^\{|\}$/g, '');
-  if (body === '') return new Float64Array(0);
-  return Float64Array.from(body.split(','), (v) => Number(v));
 }

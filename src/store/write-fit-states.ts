@@ -1,14 +1,10 @@
 import { sql } from 'kysely';
 import type { Kysely } from 'kysely';
 import type { FitStateRecord } from './fit-state-record.js';
+import { float8ArrayText } from './float8-array.js';
 import { float8Text } from './sql-array-values.js';
 import { checkSchemaName } from './schema-name.js';
 import type { StoreDatabase } from './store-database.js';
-
-/** `Float64Array` → `{…}` float8 array text (shortest round-trip digits; -0 kept). */
-function float8ArrayText(values: Float64Array): string {
-  return `{${Array.from(values, (v) => float8Text(v)).join(',')}}`;
-}
 
 /**
  * Replaces every stored state of a fit by `states` (one set-based insert), inside the

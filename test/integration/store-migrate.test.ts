@@ -53,9 +53,9 @@ describe('migrate', () => {
   it('creates the schema, tables and views, with every column documented, and is idempotent', async () => {
     const db = openDb();
     const first = await migrate(db, 'rowfold');
-    expect(first.applied.map((m) => m.version)).toEqual([1, 2, 3]);
+    expect(first.applied.map((m) => m.version)).toEqual([1, 2, 3, 4]);
     const second = await migrate(db, 'rowfold');
-    expect(second).toEqual({ schema: 'rowfold', applied: [], version: 3 });
+    expect(second).toEqual({ schema: 'rowfold', applied: [], version: 4 });
 
     const relations = await sql<{ relname: string; relkind: string }>`
       select c.relname, c.relkind from pg_class c join pg_namespace n on n.oid = c.relnamespace
@@ -68,8 +68,11 @@ describe('migrate', () => {
       { relname: 'latest_coefficients', relkind: 'v' },
       { relname: 'latest_models', relkind: 'v' },
       { relname: 'models', relkind: 'r' },
+      { relname: 'partial_factors', relkind: 'r' },
       { relname: 'runs', relkind: 'r' },
       { relname: 'schema_migrations', relkind: 'r' },
+      { relname: 'split_partitions', relkind: 'r' },
+      { relname: 'split_runs', relkind: 'r' },
     ]);
 
     const undocumented = await sql<{ relname: string; attname: string }>`
@@ -88,10 +91,11 @@ describe('migrate', () => {
     expect(index.rows[0]?.indexdef).toContain('(fit_name, segment_key, run_id DESC)');
 
     const recorded = await db.withSchema('rowfold').selectFrom('schema_migrations').selectAll().execute();
-    expect(recorded).toHaveLength(3);
+    expect(recorded).toHaveLength(4);
     expect(recorded[0]).toMatchObject({ version: 1, name: 'result_tables' });
     expect(recorded[1]).toMatchObject({ version: 2, name: 'accuracy' });
     expect(recorded[2]).toMatchObject({ version: 3, name: 'fit_states' });
+    expect(recorded[3]).toMatchObject({ version: 4, name: 'split_runs' });
     expect(recorded[0]!.checksum).toMatch(/^[0-9a-f]{64}$/);
     expect(recorded[0]!.applied_at).toBeInstanceOf(Date);
     await db.destroy();
@@ -116,18 +120,18 @@ describe('migrate', () => {
     const dbs = Array.from({ length: 6 }, () => openDb());
     const results = await Promise.all(dbs.map((db) => migrate(db, 'race', { migrationsDir: dir })));
     const appliedVersions = results.flatMap((r) => r.applied.map((m) => m.version)).sort();
-    expect(appliedVersions).toEqual([1, 2, 3]);
+    expect(appliedVersions).toEqual([1, 2, 3, 4]);
     const log = await sql<{ version: number }>`select version from race.log order by version`.execute(dbs[0]!);
-    expect(log.rows.map((r) => r.version)).toEqual([1, 2, 3]);
+    expect(log.rows.map((r) => r.version)).toEqual([1, 2, 3, 4]);
     const recorded = await dbs[0]!.withSchema('race').selectFrom('schema_migrations').select('version').execute();
-    expect(recorded.map((r) => r.version).sort()).toEqual([1, 2, 3]);
+    expect(recorded.map((r) => r.version).sort()).toEqual([1, 2, 3, 4]);
     await Promise.all(dbs.map((db) => db.destroy()));
   });
 
   it('migrates the real schema from several processes at once', async () => {
     const dbs = Array.from({ length: 4 }, () => openDb());
     const results = await Promise.all(dbs.map((db) => migrate(db, 'race_real')));
-    expect(results.flatMap((r) => r.applied.map((m) => m.version)).sort()).toEqual([1, 2, 3]);
+    expect(results.flatMap((r) => r.applied.map((m) => m.version)).sort()).toEqual([1, 2, 3, 4]);
     await Promise.all(dbs.map((db) => db.destroy()));
   });
 

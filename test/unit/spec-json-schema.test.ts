@@ -40,6 +40,7 @@ describe('schema/fit-spec.schema.json', () => {
       'non_finite',
       'partition_key',
       'schedule',
+      'split',
       'watermark',
       'window',
     ]);

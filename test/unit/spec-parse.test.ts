@@ -32,6 +32,7 @@ describe('parseFitSpec: defaults', () => {
       nonFinite: 'error',
       partitionKey: null,
       schedule: null,
+      split: null,
       watermark: null,
       window: null,
       origin: 'load.yaml',
