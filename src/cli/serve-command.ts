@@ -1,7 +1,7 @@
 import { existsSync } from 'node:fs';
 import type { Argv } from 'yargs';
-import { runFitExclusive } from '../run/run-fit-exclusive.js';
 import { JOBS_SCHEMA } from '../schedule/fit-queue.js';
+import { fitJobRunner } from '../schedule/fit-job-runner.js';
 import { loadFitSchedules } from '../schedule/fit-schedule.js';
 import { serveFits } from '../schedule/serve-fits.js';
 import { resolveConnection } from '../source/connection-target.js';
@@ -22,13 +22,35 @@ export function serveCommand(y: Argv): Argv {
         .positional('specs', { type: 'string', array: true, describe: 'fit specs with schedule: (or schedule files)' })
         .option('schedules', { type: 'string', describe: `schedule file: a list of {spec, cron} (default ${DEFAULT_SCHEDULES} when no spec is named)` })
         .option('db', { type: 'string', describe: 'PostgreSQL URL (default: DATABASE_URL, then the PG* variables); not the embedded database' })
-        .option('concurrency', { type: 'number', default: 1, describe: 'fits this process runs at once' })
+        .option('concurrency', { type: 'number', default: 1, describe: 'jobs (fits, partitions of split fits) this process works at once' })
+        .option('job-timeout-seconds', {
+          type: 'number',
+          default: 3600,
+          describe: 'a fit job still running after this many seconds is taken to be lost and retried (split jobs: the spec\'s split.job_timeout_seconds)',
+        })
+        .option('forget-after-seconds', {
+          type: 'number',
+          default: 86_400,
+          describe: 'remove the schedule of a fit that no serve process has served for this long',
+        })
         .option('poll-seconds', { type: 'number', default: 2, hidden: true })
         .option('cron-seconds', { type: 'number', default: 30, hidden: true })
-        .option('job-timeout-seconds', { type: 'number', default: 3600, hidden: true }),
+        .option('sweep-seconds', { type: 'number', default: 10, hidden: true })
+        .option('maintenance-seconds', { type: 'number', default: 120, hidden: true }),
     async (args) => {
       if (!Number.isInteger(args.concurrency) || args.concurrency < 1 || args.concurrency > 64) {
         throw new CliError(`--concurrency must be a whole number from 1 to 64, got ${args.concurrency}`, ExitCode.usage);
+      }
+      for (const [flag, value, min] of [
+        ['--job-timeout-seconds', args.jobTimeoutSeconds, 1],
+        ['--forget-after-seconds', args.forgetAfterSeconds, 1],
+        ['--sweep-seconds', args.sweepSeconds, 0.1],
+        ['--maintenance-seconds', args.maintenanceSeconds, 1],
+      ] as const) {
+        if (!Number.isFinite(value) || value < min) throw new CliError(`${flag} must be a number of seconds of at least ${min}, got ${value}`, ExitCode.usage);
+      }
+      if (args.sweepSeconds * 3 > args.forgetAfterSeconds) {
+        throw new CliError(`--forget-after-seconds (${args.forgetAfterSeconds}) must be at least three sweeps (--sweep-seconds ${args.sweepSeconds})`, ExitCode.usage);
       }
       const noServer =
         'rowfold serve needs a PostgreSQL server: the embedded database serves one process at a time, and serve ' +
@@ -49,12 +71,17 @@ export function serveCommand(y: Argv): Argv {
 
       const log = (line: string) => process.stderr.write(`${new Date().toISOString()} rowfold serve[${process.pid}]: ${maskSecrets(line)}\n`);
       const controller = new AbortController();
+      const now = new AbortController();
       const onSignal = (signal: NodeJS.Signals) => {
+        if (now.signal.aborted) return;
         if (controller.signal.aborted) {
-          log(`${signal} again: exiting now; running jobs go back to the queue when they expire`);
-          process.exit(1);
+          log(`${signal} again: stopping now; running runs are marked failed and their jobs go back to the queue`);
+          now.abort();
+          // Should handing back hang (a database that does not answer), exit all the same.
+          setTimeout(() => process.exit(ExitCode.failed), 15_000).unref();
+          return;
         }
-        log(`${signal}: taking no more jobs; running fits finish first`);
+        log(`${signal}: taking no more jobs; running fits finish first (send it again to stop now)`);
         controller.abort();
       };
       process.on('SIGTERM', onSignal);
@@ -65,18 +92,21 @@ export function serveCommand(y: Argv): Argv {
           schedules,
           concurrency: args.concurrency,
           signal: controller.signal,
+          stopNow: now.signal,
           log,
           pollSeconds: args.pollSeconds,
           cronSeconds: args.cronSeconds,
           jobTimeoutSeconds: args.jobTimeoutSeconds,
+          forgetAfterSeconds: args.forgetAfterSeconds,
+          sweepSeconds: args.sweepSeconds,
+          maintenanceSeconds: args.maintenanceSeconds,
           onReady: () =>
             log(`serving ${schedules.length} fit${schedules.length === 1 ? '' : 's'}, ${args.concurrency} at a time (queue schema ${JOBS_SCHEMA} on ${target.display})`),
-          runFit: async (s) => {
-            const r = await runFitExclusive({ specPath: s.specPath, db: args.db, env: process.env });
-            return { run_id: r.runId, rows_read: r.rowsRead, rows_used: r.rowsUsed, segments: r.models.length, seconds: r.seconds };
-          },
+          runJob: fitJobRunner({ target, db: args.db, env: process.env }),
         });
-        log(`stopped: ${summary.succeeded} succeeded, ${summary.failed} failed, ${summary.skipped} skipped`);
+        log(`stopped: ${summary.succeeded} succeeded, ${summary.failed} failed, ${summary.skipped} skipped, ${summary.released} handed back`);
+        // Dropped runs may still be working in this process: leave them behind, at once.
+        if (now.signal.aborted) process.exit(ExitCode.failed);
       } finally {
         process.off('SIGTERM', onSignal);
         process.off('SIGINT', onSignal);

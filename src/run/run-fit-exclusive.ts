@@ -1,9 +1,12 @@
 import { createHash } from 'node:crypto';
 import { resolveConnection } from '../source/connection-target.js';
+import type { ConnectionTarget } from '../source/connection-target.js';
 import { EMBEDDED_PREFIX } from '../source/open-database.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
+import type { FitSpec } from '../spec/fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
+import { createStoreDb, failAbandonedRuns } from '../store/index.js';
 import { runFit, SpecFileError } from './run-fit.js';
 import type { RunFitRequest, RunFitResult } from './run-fit.js';
 
@@ -27,12 +30,24 @@ export function fitLockKey(schema: string, name: string): string {
 }
 
 /**
+ * Error of a run that a later run found still marked running with no process working it.
+ * Public so that tests and `rowfold runs` readers can recognise it.
+ */
+export const ABANDONED_RUN_MESSAGE =
+  'abandoned: the process running it stopped before the run ended (a later run of the fit found it still running with nobody holding the fit\'s lock)';
+
+/**
  * {@link runFit}, but never two runs of one fit at once, on any machine: on a server the run
  * first takes a session-level advisory lock keyed by the fit (`pg_try_advisory_lock`) on a
  * connection of its own, held until the run has published or failed. When another run holds
  * it, this one fails at once with a {@link FitBusyError} naming the backend that holds it, and
  * writes nothing (not even a `runs` row): the run in progress reads the same rows, so waiting
  * to repeat it would only queue work. A dropped lock connection releases the lock.
+ *
+ * With the lock held, a run of the fit still marked running was left so by a process that
+ * stopped (killed, or its server restarted): it is marked failed ({@link ABANDONED_RUN_MESSAGE})
+ * and its partial results removed before this run starts. A split run whose jobs are still being
+ * worked by `rowfold serve` processes is busy too.
  *
  * The embedded database needs no lock: its folder lock already keeps other processes out. A
  * dry run takes no lock either.
@@ -49,8 +64,21 @@ export async function runFitExclusive(req: RunFitRequest): Promise<RunFitResult>
     if (e instanceof SpecError) throw e;
     throw new SpecFileError(`cannot read the spec ${req.specPath}: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
   });
+  return withFitLock(target, spec, () => runFit(req));
+}
+
+/**
+ * Runs `fn` holding the advisory lock of a fit (see {@link runFitExclusive}), after failing
+ * the fit's abandoned runs; throws {@link FitBusyError} when another run holds the lock or a
+ * split run of the fit is in progress.
+ *
+ * @example
+ * await withFitLock(target, spec, async () => startTheRun());
+ */
+export async function withFitLock<T>(target: ConnectionTarget, spec: FitSpec, fn: () => Promise<T>): Promise<T> {
   const key = fitLockKey(spec.schema, spec.name);
-  const lockDb = openServerDatabase(target, 1);
+  const lockDb = openServerDatabase(target, 2);
+  const store = createStoreDb(lockDb.dialect());
   try {
     return await lockDb.withSession(async (session) => {
       const got = await session.query('select pg_try_advisory_lock($1::bigint)', [key]);
@@ -70,12 +98,20 @@ export async function runFitExclusive(req: RunFitRequest): Promise<RunFitResult>
         );
       }
       try {
-        return await runFit(req);
+        const { live } = await failAbandonedRuns(store, spec.schema, spec.name, ABANDONED_RUN_MESSAGE);
+        if (live.length > 0) {
+          throw new FitBusyError(
+            spec.name,
+            `fit ${spec.name} is already running (split run ${live.join(', ')}, whose partition jobs serve processes are working); this run did not start: see \`rowfold runs ${spec.name}\``,
+          );
+        }
+        return await fn();
       } finally {
         await session.query('select pg_advisory_unlock($1::bigint)', [key]);
       }
     });
   } finally {
+    await store.destroy();
     await lockDb.close();
   }
 }

@@ -1,6 +1,6 @@
 import { normalEquationsProblem } from '../fit/check-normal-equations.js';
 import type { FitSolution } from '../fit/fit-solution.js';
-import type { SegmentState, SegmentedFitOptions } from '../fit/segmented-fit.js';
+import type { SegmentState, SegmentedFit, SegmentedFitOptions } from '../fit/segmented-fit.js';
 import { solve } from '../fit/solve.js';
 import { solveExtended } from '../fit/solve-extended.js';
 import type { DesignPlan } from '../plan/design-plan.js';
@@ -37,6 +37,8 @@ export interface RunFitRequest {
   readonly dryRun?: boolean;
   /** With a watermark: read every row and replace the stored state (late rows are folded in). */
   readonly full?: boolean;
+  /** Called once the run's `runs` row is written (so a server can fail it if it must stop). */
+  readonly onRunStarted?: (runId: number) => void;
   /** Called now and then while rows stream. */
   readonly onProgress?: (p: { rowsRead: number; segments: number; seconds: number }) => void;
 }
@@ -105,6 +107,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       designQuery: plan.queries.map((q) => q.toBound().text).join('\n-- next partition --\n'),
       toolVersion: TOOL_VERSION,
     });
+    req.onRunStarted?.(runId);
     try {
       const out = await readAndSolve(database, spec, plan, req, refit);
       const result = {
@@ -146,15 +149,23 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
 /** Estimated correct digits below which `accuracy: auto` takes a double-double pass. */
 export const AUTO_EXTENDED_BELOW_DIGITS = 13.5;
 
-async function readAndSolve(
-  database: Database,
+/**
+ * The arithmetic and plan of a run's passes: the first pass (double precision, or double-double
+ * when `accuracy: extended` and the run is not a refit) and the double-double pass that `auto`
+ * and `extended` may take. A split run's partition jobs fold their first pass by it too.
+ */
+export function passesOf(
   spec: FitSpec,
   plan: DesignPlan,
-  req: RunFitRequest,
-  refit: RefitStart | null = null,
-): Promise<Omit<RunFitResult, 'spec' | 'plan' | 'connection' | 'runId'>> {
-  const started = performance.now();
-  const progress = { rows: 0, last: started, started };
+  req: Pick<RunFitRequest, 'read' | 'accuracy'>,
+  refit: RefitStart | null,
+): {
+  accuracy: 'auto' | 'fast' | 'extended';
+  extendedPlan: DesignPlan;
+  extendedOptions: SegmentedFitOptions;
+  firstPlan: DesignPlan;
+  firstOptions: SegmentedFitOptions;
+} {
   const accuracy = spec.method === 'normal' ? 'fast' : (req.accuracy ?? spec.accuracy);
   // Numeric columns travel as numeric only over COPY; the row stream carries float8.
   const extendedPlan = (req.read ?? spec.read) === 'copy' ? (plan.extended ?? plan) : (plan.extendedFloat ?? plan);
@@ -164,14 +175,32 @@ async function readAndSolve(
   };
   // A refit folds its first pass in double precision, the arithmetic of stored state.
   const ddFirst = accuracy === 'extended' && refit === null;
-  const first = await readPass(
-    database,
-    ddFirst ? extendedPlan : plan,
-    spec,
-    req,
-    ddFirst ? extendedOptions : { method: spec.method },
-    progress,
-  );
+  return {
+    accuracy,
+    extendedPlan,
+    extendedOptions,
+    firstPlan: ddFirst ? extendedPlan : plan,
+    firstOptions: ddFirst ? extendedOptions : { method: spec.method },
+  };
+}
+
+/**
+ * Read (unless `folded` brings the first pass already folded, as the merge of a split run
+ * does), solve, take the double-double pass `accuracy` asks for, and gather the models and
+ * counts to publish.
+ */
+export async function readAndSolve(
+  database: Database,
+  spec: FitSpec,
+  plan: DesignPlan,
+  req: RunFitRequest,
+  refit: RefitStart | null = null,
+  folded?: { fit: SegmentedFit; counts: DesignReadCounts[] },
+): Promise<Omit<RunFitResult, 'spec' | 'plan' | 'connection' | 'runId'>> {
+  const started = performance.now();
+  const progress = { rows: 0, last: started, started };
+  const { accuracy, extendedPlan, extendedOptions, firstPlan, firstOptions } = passesOf(spec, plan, req, refit);
+  const first = folded ?? (await readPass(database, firstPlan, spec, req, firstOptions, progress));
   const counts = first.counts;
   const rowsRead = counts.reduce((n, c) => n + c.rowsRead, 0);
   const done = refit === null ? undefined : finishRefit(refit, spec, first.fit.shape, spec.method, first.fit, rowsRead);

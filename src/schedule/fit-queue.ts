@@ -1,3 +1,5 @@
+import { createHash } from 'node:crypto';
+
 /** Schema of pg-boss's tables (queues, jobs, schedules) in the rowfold database. */
 export const JOBS_SCHEMA = 'rowfold_jobs';
 
@@ -17,4 +19,43 @@ export function fitQueueName(schema: string, fitName: string): string {
 export interface FitJobData {
   readonly fit: string;
   readonly schema: string;
+}
+
+/** The queue of the partition jobs of a split fit: `rowfold-part.<schema>.<name>`. */
+export function partitionQueueName(schema: string, fitName: string): string {
+  return `rowfold-part.${schema}.${fitName}`;
+}
+
+/** The queue of the merge jobs of a split fit: `rowfold-merge.<schema>.<name>`. */
+export function mergeQueueName(schema: string, fitName: string): string {
+  return `rowfold-merge.${schema}.${fitName}`;
+}
+
+/** A partition job: fold partition `partition` (of `partitions`) of split run `runId`. */
+export interface PartitionJobData extends FitJobData {
+  readonly runId: number;
+  readonly partition: number;
+  readonly partitions: number;
+}
+
+/** A merge job: merge the partial factors of split run `runId` and publish it. */
+export interface MergeJobData extends FitJobData {
+  readonly runId: number;
+}
+
+/**
+ * The id of a job that must exist at most once, whoever sends it (a UUID made from the queue
+ * and `parts`): pg-boss inserts a job whose id exists as nothing, so the partition jobs of a
+ * run, and its merge job, are sent once however many workers send them.
+ *
+ * @example
+ * jobIdOf(mergeQueueName('rowfold', 'feeder_load'), 42); // '…-…-5…-…-…' (always the same)
+ */
+export function jobIdOf(queue: string, ...parts: readonly (string | number)[]): string {
+  const h = createHash('sha256').update(JSON.stringify([queue, ...parts]), 'utf8').digest();
+  // Version 5 and RFC 4122 variant bits, so that the text is a well-formed UUID.
+  h[6] = (h[6]! & 0x0f) | 0x50;
+  h[8] = (h[8]! & 0x3f) | 0x80;
+  const x = h.subarray(0, 16).toString('hex');
+  return `${x.slice(0, 8)}-${x.slice(8, 12)}-${x.slice(12, 16)}-${x.slice(16, 20)}-${x.slice(20, 32)}`;
 }

@@ -4,29 +4,63 @@ import pg from 'pg';
 import PgBoss from 'pg-boss';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import type { FitSchedule } from './fit-schedule.js';
-import { fitQueueName, JOBS_SCHEMA } from './fit-queue.js';
-import type { FitJobData } from './fit-queue.js';
+import { fitQueueName, jobIdOf, JOBS_SCHEMA, mergeQueueName, partitionQueueName } from './fit-queue.js';
+import type { FitJobData, MergeJobData, PartitionJobData } from './fit-queue.js';
+import { ServeRegistry } from './serve-registry.js';
 
-/** What a worker does with one fit job: run the fit, return a summary for the job's output. */
-export type RunScheduledFit = (schedule: FitSchedule) => Promise<Record<string, unknown>>;
+/** The three kinds of job of a fit: a (scheduled) run, a partition of a split run, its merge. */
+export type JobKind = 'fit' | 'partition' | 'merge';
+
+/** One job as the worker sees it. */
+export interface ServedJob {
+  readonly kind: JobKind;
+  readonly queue: string;
+  readonly id: string;
+  readonly schedule: FitSchedule;
+  readonly data: FitJobData & Partial<PartitionJobData>;
+  /** pg-boss will not try this job again after this attempt. */
+  readonly final: boolean;
+  /** Registers what to undo if serve must drop the job before it ends (a second signal). */
+  onDrop(undo: () => Promise<void>): void;
+}
+
+/** How a worker puts the jobs of a split run on the queue (each job once, whoever sends it). */
+export interface JobSender {
+  partitions(schedule: FitSchedule, runId: number, partitions: number, timeoutSeconds: number): Promise<void>;
+  merge(schedule: FitSchedule, runId: number, timeoutSeconds: number): Promise<void>;
+}
+
+/** What a worker does with one job: its summary becomes the job's output. */
+export type RunServedJob = (job: ServedJob, send: JobSender) => Promise<Record<string, unknown>>;
 
 /** Options of {@link serveFits}. */
 export interface ServeFitsOptions {
   /** The PostgreSQL server holding the queue (and, usually, the data). */
   readonly target: ConnectionTarget;
   readonly schedules: readonly FitSchedule[];
-  /** Fits this process runs at once. */
+  /** Jobs this process works at once. */
   readonly concurrency: number;
-  readonly runFit: RunScheduledFit;
+  readonly runJob: RunServedJob;
   /** Ends serving: no more jobs are taken, the running ones finish, then the promise resolves. */
   readonly signal: AbortSignal;
+  /**
+   * Ends serving now: running jobs are dropped (their undo hooks run, e.g. the run is marked
+   * failed) and handed back to the queue at once, then the promise resolves.
+   */
+  readonly stopNow?: AbortSignal;
   readonly log: (line: string) => void;
   /** Seconds between looks at an empty queue (default 2). */
   readonly pollSeconds?: number;
   /** pg-boss's cron monitor and cron worker intervals in seconds (default 30 and 5); tests shorten them. */
   readonly cronSeconds?: number;
-  /** A job running longer than this is taken to be lost and retried (default 3600). */
+  /** A fit job running longer than this is taken to be lost and retried (default 3600). */
   readonly jobTimeoutSeconds?: number;
+  /** Seconds between pg-boss's maintenance runs, which retry expired jobs (default 120). */
+  readonly maintenanceSeconds?: number;
+  /** Seconds between heartbeats and looks for jobs of dead processes and stale schedules (default 10). */
+  readonly sweepSeconds?: number;
+  /** A schedule whose fit no serve process has served for this long is removed (default 86400). */
+  readonly forgetAfterSeconds?: number;
   /** Called once everything is registered and the first poll is about to happen. */
   readonly onReady?: () => void;
 }
@@ -34,16 +68,41 @@ export interface ServeFitsOptions {
 /** Session advisory lock that serialises serve start-ups on one database (`rowfold:serve:register`). */
 const REGISTER_LOCK_KEY = createHash('sha256').update('rowfold:serve:register', 'utf8').digest().readBigInt64BE(0).toString();
 
+/** Retries of a partition or merge job, and the seconds between them: a lost partition should come back soon. */
+const SPLIT_RETRY_LIMIT = 5;
+const SPLIT_RETRY_DELAY = 2;
+
 /** Ways a job ends, counted for the closing log line. */
 export interface ServeSummary {
   readonly succeeded: number;
   readonly failed: number;
   readonly skipped: number;
+  /** Jobs handed back to the queue unfinished by a stop-now. */
+  readonly released: number;
 }
 
 /** An error that means "this fit is running elsewhere": the job is done, not failed. */
 export function isBusy(e: unknown): boolean {
   return e instanceof Error && e.name === 'FitBusyError';
+}
+
+interface QueueRoute {
+  readonly kind: JobKind;
+  readonly schedule: FitSchedule;
+}
+
+interface ActiveJob {
+  readonly queue: string;
+  readonly id: string;
+  readonly undo: (() => Promise<void>)[];
+  dropped: boolean;
+}
+
+interface Counts {
+  succeeded: number;
+  failed: number;
+  skipped: number;
+  released: number;
 }
 
 /**
@@ -55,15 +114,25 @@ export function isBusy(e: unknown): boolean {
  * table, and the tick's job is deduplicated by a singleton key per fit and minute) turns each
  * tick into exactly one job; workers take jobs with `SELECT … FOR UPDATE SKIP LOCKED`, so each
  * job is worked by one process. This loop fetches one job at a time while fewer than
- * `concurrency` fits run, and completes or fails it (failed jobs are retried by pg-boss, twice,
- * a minute apart). A job whose fit is already running elsewhere (a FitBusyError) is completed
- * as skipped.
+ * `concurrency` jobs run, and completes or fails it (failed fit jobs are retried by pg-boss,
+ * twice, a minute apart). A job whose fit is already running elsewhere (a FitBusyError) is
+ * completed as skipped.
  *
- * When `signal` aborts, no more jobs are fetched; running fits finish and their jobs are
- * completed before pg-boss stops.
+ * A fit with `split:` has two more queues, of partition jobs and merge jobs (retried up to five
+ * times, two seconds apart), worked the same way by every process that serves the fit.
+ *
+ * Each process records its presence, the jobs it works and the fits it serves
+ * ({@link ServeRegistry}); every `sweepSeconds` it beats its heartbeat, hands back to the queue
+ * the jobs of processes that died (their presence lock is gone), and removes the schedules of
+ * fits that no process has served for `forgetAfterSeconds`. A job of a process that hangs
+ * without dying comes back when it expires (`jobTimeoutSeconds`, or the spec's
+ * `split.job_timeout_seconds`).
+ *
+ * When `signal` aborts, no more jobs are fetched; running jobs finish and are completed before
+ * pg-boss stops. When `stopNow` aborts, running jobs are dropped and handed back at once.
  *
  * @example
- * await serveFits({ target, schedules, concurrency: 1, runFit, signal, log: console.error });
+ * await serveFits({ target, schedules, concurrency: 1, runJob, signal, log: console.error });
  */
 export async function serveFits(opts: ServeFitsOptions): Promise<ServeSummary> {
   const cronSeconds = opts.cronSeconds ?? 30;
@@ -74,10 +143,13 @@ export async function serveFits(opts: ServeFitsOptions): Promise<ServeSummary> {
     max: opts.concurrency + 3,
     cronMonitorIntervalSeconds: cronSeconds,
     cronWorkerIntervalSeconds: Math.min(cronSeconds, 5),
+    ...(opts.maintenanceSeconds === undefined ? {} : { maintenanceIntervalSeconds: opts.maintenanceSeconds }),
   });
   boss.on('error', (e: Error) => opts.log(`queue error: ${e.message}`));
-  const counts = { succeeded: 0, failed: 0, skipped: 0 };
-  const byQueue = new Map<string, FitSchedule>();
+  const counts: Counts = { succeeded: 0, failed: 0, skipped: 0, released: 0 };
+  const routes = new Map<string, QueueRoute>();
+  const fitQueues = opts.schedules.map((s) => fitQueueName(s.spec.schema, s.spec.name));
+  let registry: ServeRegistry | undefined;
   // pg-boss's start (schema, internal queues) and createQueue (a table per queue) deadlock when
   // two processes run them at the same moment: servers starting together take turns here.
   const lock = new pg.Client(opts.target.config);
@@ -86,9 +158,12 @@ export async function serveFits(opts: ServeFitsOptions): Promise<ServeSummary> {
   try {
     await lock.query('select pg_advisory_lock($1::bigint)', [REGISTER_LOCK_KEY]);
     await boss.start();
+    registry = await ServeRegistry.open(opts.target.config);
+    // The heartbeat first: a fit whose schedule is being registered is never taken for stale.
+    await registry.heartbeat(fitQueues);
     for (const s of opts.schedules) {
       const queue = fitQueueName(s.spec.schema, s.spec.name);
-      byQueue.set(queue, s);
+      routes.set(queue, { kind: 'fit', schedule: s });
       await boss.createQueue(queue, {
         name: queue,
         policy: 'standard',
@@ -96,83 +171,224 @@ export async function serveFits(opts: ServeFitsOptions): Promise<ServeSummary> {
         retryDelay: 60,
         expireInSeconds: opts.jobTimeoutSeconds ?? 3600,
       });
+      if (s.spec.split !== null) {
+        for (const [kind, name] of [
+          ['partition', partitionQueueName(s.spec.schema, s.spec.name)],
+          ['merge', mergeQueueName(s.spec.schema, s.spec.name)],
+        ] as const) {
+          routes.set(name, { kind, schedule: s });
+          await boss.createQueue(name, {
+            name,
+            policy: 'standard',
+            retryLimit: SPLIT_RETRY_LIMIT,
+            retryDelay: SPLIT_RETRY_DELAY,
+            expireInSeconds: s.spec.split.jobTimeoutSeconds,
+          });
+        }
+      }
       const data: FitJobData = { fit: s.spec.name, schema: s.spec.schema };
       await boss.schedule(queue, s.cron, data, { tz: 'UTC' });
-      opts.log(`fit ${s.spec.name}: schedule "${s.cron}" (UTC) registered from ${s.specPath}`);
+      const split = s.spec.split === null ? '' : `, split into ${s.spec.split.partitions} partition jobs`;
+      opts.log(`fit ${s.spec.name}: schedule "${s.cron}" (UTC) registered from ${s.specPath}${split}`);
     }
   } catch (e) {
+    await registry?.abandon();
     await boss.stop({ graceful: false, close: true }).catch(() => undefined);
     throw e;
   } finally {
     await lock.end().catch(() => undefined);
   }
+  const reg = registry;
+  const sender = jobSender(boss);
+  const active = new Map<string, ActiveJob>();
+  const sweeping = new AbortController();
+  const sweeper = sweepLoop(boss, reg, fitQueues, opts, sweeping.signal);
+  let stoppedNow = false;
   try {
     opts.onReady?.();
-    await workLoop(boss, byQueue, opts, counts);
+    stoppedNow = await workLoop(boss, reg, routes, sender, active, opts, counts);
   } finally {
-    await boss.stop({ graceful: true, wait: true, close: true, timeout: 10_000 });
+    sweeping.abort();
+    await sweeper;
+    if (stoppedNow) {
+      await reg.abandon();
+      await boss.stop({ graceful: false, close: true, timeout: 2000 }).catch(() => undefined);
+    } else {
+      await reg.close(fitQueues);
+      await boss.stop({ graceful: true, wait: true, close: true, timeout: 10_000 });
+    }
   }
   return counts;
 }
 
+function jobSender(boss: PgBoss): JobSender {
+  return {
+    async partitions(schedule, runId, partitions, timeoutSeconds) {
+      const queue = partitionQueueName(schedule.spec.schema, schedule.spec.name);
+      for (let partition = 0; partition < partitions; partition++) {
+        const data: PartitionJobData = { fit: schedule.spec.name, schema: schedule.spec.schema, runId, partition, partitions };
+        await boss.send(queue, data, { id: jobIdOf(queue, runId, partition), expireInSeconds: timeoutSeconds });
+      }
+    },
+    async merge(schedule, runId, timeoutSeconds) {
+      const queue = mergeQueueName(schedule.spec.schema, schedule.spec.name);
+      const data: MergeJobData = { fit: schedule.spec.name, schema: schedule.spec.schema, runId };
+      await boss.send(queue, data, { id: jobIdOf(queue, runId), expireInSeconds: timeoutSeconds });
+    },
+  };
+}
+
+async function sweepLoop(
+  boss: PgBoss,
+  registry: ServeRegistry,
+  fitQueues: readonly string[],
+  opts: ServeFitsOptions,
+  stop: AbortSignal,
+): Promise<void> {
+  const every = (opts.sweepSeconds ?? 10) * 1000;
+  const forget = opts.forgetAfterSeconds ?? 86_400;
+  while (!stop.aborted) {
+    await sleep(every, undefined, { signal: stop }).catch(() => undefined);
+    if (stop.aborted) break;
+    try {
+      await registry.heartbeat(fitQueues);
+      for (const claim of await registry.lostClaims()) {
+        const done = await registry.releaseJob(claim.queue, claim.jobId, () =>
+          boss.fail(claim.queue, claim.jobId, { message: `the serve process ${claim.serverId} working it stopped` }),
+        );
+        await registry.dropClaim(claim);
+        if (done !== null) {
+          opts.log(`job ${claim.jobId} of ${claim.queue}: the serve process ${claim.serverId} working it stopped; ${done === 'retry' ? 'back on the queue' : 'failed (no retries left)'}`);
+        }
+      }
+      for (const queue of await registry.unscheduleStale(forget)) {
+        opts.log(`${queue}: schedule removed: no serve process has served this fit for ${forget} s`);
+      }
+    } catch (e) {
+      opts.log(`sweep failed: ${e instanceof Error ? e.message : String(e)}`);
+    }
+  }
+}
+
+/** Works jobs until `signal` (true: ended by `stopNow`, with the running jobs handed back). */
 async function workLoop(
   boss: PgBoss,
-  byQueue: ReadonlyMap<string, FitSchedule>,
+  registry: ServeRegistry,
+  routes: ReadonlyMap<string, QueueRoute>,
+  sender: JobSender,
+  active: Map<string, ActiveJob>,
   opts: ServeFitsOptions,
-  counts: { succeeded: number; failed: number; skipped: number },
-): Promise<void> {
+  counts: Counts,
+): Promise<boolean> {
   const running = new Set<Promise<void>>();
-  const queues = [...byQueue.keys()];
+  const queues = [...routes.keys()];
+  const stopNow = opts.stopNow;
+  const now = stopNow === undefined ? new Promise<never>(() => undefined) : aborted(stopNow);
   let next = 0;
-  while (!opts.signal.aborted) {
+  while (!opts.signal.aborted && !(stopNow?.aborted ?? false)) {
     let took = false;
     // Round robin: one look at each queue while there is a free slot.
     for (let i = 0; i < queues.length && running.size < opts.concurrency && !opts.signal.aborted; i++) {
       const queue = queues[next]!;
       next = (next + 1) % queues.length;
       // A database that is briefly away makes a poll fail: say so and poll again later.
-      const job = await boss.fetch<FitJobData>(queue, { batchSize: 1 }).then(
+      const job = await boss.fetch<FitJobData & Partial<PartitionJobData>>(queue, { batchSize: 1, includeMetadata: true }).then(
         (jobs) => jobs[0],
         (e: unknown) => void opts.log(`cannot poll ${queue}: ${e instanceof Error ? e.message : String(e)}`),
       );
       if (job === undefined) continue;
       took = true;
-      const work = workOne(boss, queue, job.id, byQueue.get(queue)!, opts, counts).finally(() => running.delete(work));
+      const entry: ActiveJob = { queue, id: job.id, undo: [], dropped: false };
+      active.set(job.id, entry);
+      await registry.claim(job.id, queue).catch((e: unknown) => opts.log(`cannot record job ${job.id}: ${e instanceof Error ? e.message : String(e)}`));
+      const served: ServedJob = {
+        kind: routes.get(queue)!.kind,
+        queue,
+        id: job.id,
+        schedule: routes.get(queue)!.schedule,
+        data: job.data,
+        final: job.retryCount >= job.retryLimit,
+        onDrop: (undo) => void entry.undo.push(undo),
+      };
+      const work = workOne(boss, registry, served, entry, sender, opts, counts).finally(() => {
+        running.delete(work);
+        active.delete(job.id);
+      });
       running.add(work);
     }
     if (took && running.size < opts.concurrency) continue;
-    const wake = running.size >= opts.concurrency ? Promise.race(running) : sleep((opts.pollSeconds ?? 2) * 1000, undefined, { signal: opts.signal }).catch(() => undefined);
-    await wake;
+    const wake =
+      running.size >= opts.concurrency
+        ? Promise.race(running)
+        : sleep((opts.pollSeconds ?? 2) * 1000, undefined, { signal: opts.signal }).catch(() => undefined);
+    await Promise.race([wake, now]);
   }
-  if (running.size > 0) opts.log(`stopping: waiting for ${running.size} running fit${running.size === 1 ? '' : 's'} to finish`);
-  await Promise.all(running);
+  if (stopNow?.aborted) {
+    await dropAll(boss, registry, active, opts, counts);
+    return true;
+  }
+  if (running.size > 0) opts.log(`stopping: waiting for ${running.size} running job${running.size === 1 ? '' : 's'} to finish`);
+  const finished = await Promise.race([Promise.all(running).then(() => true), now.then(() => false)]);
+  if (finished) return false;
+  await dropAll(boss, registry, active, opts, counts);
+  return true;
+}
+
+function aborted(signal: AbortSignal): Promise<void> {
+  return new Promise((resolve) => (signal.aborted ? resolve() : signal.addEventListener('abort', () => resolve(), { once: true })));
+}
+
+/** Drops every running job: its undo hooks run (a few seconds at most), then it goes back on the queue. */
+async function dropAll(boss: PgBoss, registry: ServeRegistry, active: Map<string, ActiveJob>, opts: ServeFitsOptions, counts: Counts): Promise<void> {
+  await Promise.all(
+    [...active.values()].map(async (entry) => {
+      entry.dropped = true;
+      for (const undo of entry.undo) {
+        await Promise.race([undo(), sleep(5000)]).catch((e: unknown) =>
+          opts.log(`job ${entry.id}: cannot undo: ${e instanceof Error ? e.message : String(e)}`),
+        );
+      }
+      const done = await registry
+        .releaseJob(entry.queue, entry.id, () => boss.fail(entry.queue, entry.id, { message: 'serve stopped at once (a second signal)' }))
+        .catch((e: unknown) => void opts.log(`job ${entry.id}: cannot hand back: ${e instanceof Error ? e.message : String(e)}`));
+      await registry.unclaim(entry.id).catch(() => undefined);
+      counts.released++;
+      opts.log(`job ${entry.id} of ${entry.queue}: dropped; ${done === 'retry' ? 'back on the queue for another worker' : done === 'failed' ? 'failed (no retries left)' : 'it had already ended'}`);
+    }),
+  );
 }
 
 async function workOne(
   boss: PgBoss,
-  queue: string,
-  jobId: string,
-  schedule: FitSchedule,
+  registry: ServeRegistry,
+  job: ServedJob,
+  entry: ActiveJob,
+  sender: JobSender,
   opts: ServeFitsOptions,
-  counts: { succeeded: number; failed: number; skipped: number },
+  counts: Counts,
 ): Promise<void> {
-  const name = schedule.spec.name;
-  opts.log(`fit ${name}: job ${jobId} started`);
+  const name = job.schedule.spec.name;
+  const what = job.kind === 'fit' ? 'job' : job.kind === 'partition' ? `partition ${job.data.partition} job` : 'merge job';
+  opts.log(`fit ${name}: ${what} ${job.id} started`);
   try {
-    const output = await opts.runFit(schedule);
-    await boss.complete(queue, jobId, output);
+    const output = await opts.runJob(job, sender);
+    if (entry.dropped) return;
+    await boss.complete(job.queue, job.id, output);
     counts.succeeded++;
-    opts.log(`fit ${name}: job ${jobId} succeeded ${JSON.stringify(output)}`);
+    opts.log(`fit ${name}: ${what} ${job.id} succeeded ${JSON.stringify(output)}`);
   } catch (e) {
+    if (entry.dropped) return;
     const message = e instanceof Error ? e.message : String(e);
     if (isBusy(e)) {
-      await boss.complete(queue, jobId, { skipped: message }).catch(() => undefined);
+      await boss.complete(job.queue, job.id, { skipped: message }).catch(() => undefined);
       counts.skipped++;
-      opts.log(`fit ${name}: job ${jobId} skipped: ${message}`);
+      opts.log(`fit ${name}: ${what} ${job.id} skipped: ${message}`);
       return;
     }
-    await boss.fail(queue, jobId, { message }).catch(() => undefined);
+    await boss.fail(job.queue, job.id, { message }).catch(() => undefined);
     counts.failed++;
-    opts.log(`fit ${name}: job ${jobId} failed: ${message}`);
+    opts.log(`fit ${name}: ${what} ${job.id} failed${job.final ? '' : ' (it will be retried)'}: ${message}`);
+  } finally {
+    if (!entry.dropped) await registry.unclaim(job.id).catch(() => undefined);
   }
 }

@@ -1,0 +1,97 @@
+import { SegmentedFit } from '../fit/segmented-fit.js';
+import { designPlanFromJson } from '../plan/design-plan-json.js';
+import type { ConnectionTarget } from '../source/connection-target.js';
+import type { DesignReadCounts } from '../source/read-design.js';
+import { openServerDatabase } from '../source/server-database.js';
+import { createStoreDb, deletePartials, failRun, loadPartialFactors, loadSplitRun, writeRunResult } from '../store/index.js';
+import type { ModelRecord } from '../store/index.js';
+import { passesOf, readAndSolve } from './run-fit.js';
+import { keepSplitRunAlive } from './split-lease.js';
+import { splitRunSpec } from './split-partition.js';
+
+/** The merge job of a split run. */
+export interface MergeRequest {
+  readonly target: ConnectionTarget;
+  readonly schema: string;
+  readonly runId: number;
+  /** pg-boss will not try this job again: a failure now fails the run. */
+  readonly final: boolean;
+}
+
+/** What a merge job did. */
+export interface MergeOutcome {
+  readonly outcome: 'published' | 'already-published' | 'run-ended' | 'no-such-run';
+  readonly rowsRead: number;
+  readonly segments: number;
+}
+
+/**
+ * Merges the partial factors of a split run and publishes it, exactly once: the factors of
+ * every partition are merged segment by segment (in partition order), solved as `rowfold fit`
+ * would (with the double-double pass `accuracy` may ask for, over every partition), and the
+ * models, the run's counts and the removal of the partials are written in one transaction that
+ * first locks the run row and checks it is still running. A retried merge of a published run
+ * changes nothing. A merge that fails for the last time marks the run failed and removes its
+ * partials.
+ *
+ * @throws Error when a partition is missing (the job is retried), or the fit fails.
+ * @example
+ * await mergeSplitRun({ target, schema: 'rowfold', runId, final: false });
+ */
+export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
+  const probe = openServerDatabase(req.target, 1);
+  const first = createStoreDb(probe.dialect());
+  const run = await loadSplitRun(first, req.schema, req.runId).finally(async () => {
+    await first.destroy();
+    await probe.close();
+  });
+  if (run === null) return { outcome: 'no-such-run', rowsRead: 0, segments: 0 };
+  if (run.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
+  if (run.status !== 'running') return { outcome: 'run-ended', rowsRead: 0, segments: 0 };
+
+  // The double-double pass, when one is due, reads the partitions over a few connections.
+  const database = openServerDatabase(req.target, Math.min(run.partitions, 4) + 1);
+  const store = createStoreDb(database.dialect());
+  try {
+    return await keepSplitRunAlive(store, req.schema, req.runId, async () => {
+      try {
+        const partials = await loadPartialFactors(store, req.schema, req.runId);
+        const missing = run.partitions - partials.partitions.length;
+        if (missing > 0) throw new Error(`run ${req.runId}: ${missing} of ${run.partitions} partitions are not written yet`);
+        const spec = splitRunSpec(run);
+        const plan = designPlanFromJson(run.plan);
+        const { firstPlan, firstOptions } = passesOf(spec, plan, {}, null);
+        const shape = { terms: firstPlan.columns, response: spec.response, weight: spec.weight ?? undefined, intercept: spec.intercept };
+        const fit = new SegmentedFit(shape, firstPlan.keyNames, firstOptions);
+        for (const f of partials.factors) fit.ensure(f.key).acc.mergeState(f.state);
+        const counts = partials.partitions.map((p) => p.counts as DesignReadCounts);
+        const out = await readAndSolve(database, spec, plan, { specPath: spec.origin }, null, { fit, counts });
+        const models = out.models.map(
+          (m): ModelRecord => ({ segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes }),
+        );
+        const result = { rowsRead: out.rowsRead, rowsUsed: out.rowsUsed, rowsSkipped: out.rowsSkipped, seconds: out.seconds, models };
+        try {
+          await store.transaction().execute(async (trx) => {
+            await writeRunResult(trx, req.schema, req.runId, result);
+            await deletePartials(trx, req.schema, req.runId);
+          });
+        } catch (e) {
+          // Another attempt of this merge (an expired job retried while this one ran) won.
+          const now = await loadSplitRun(store, req.schema, req.runId);
+          if (now?.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
+          throw e;
+        }
+        return { outcome: 'published', rowsRead: out.rowsRead, segments: models.length };
+      } catch (e) {
+        if (req.final) {
+          await failRun(store, req.schema, req.runId, e).catch(() => undefined);
+          await deletePartials(store, req.schema, req.runId).catch(() => undefined);
+        }
+        throw e;
+      }
+    });
+  } finally {
+    await store.destroy();
+    await database.close();
+  }
+}

@@ -1,0 +1,71 @@
+import { hostname } from 'node:os';
+import { runFitExclusive } from '../run/run-fit-exclusive.js';
+import { failRunAndPartials } from '../run/split-fail.js';
+import { mergeSplitRun } from '../run/split-merge.js';
+import { foldPartition } from '../run/split-partition.js';
+import { startSplitFit } from '../run/split-start.js';
+import type { ConnectionTarget } from '../source/connection-target.js';
+import type { RunServedJob } from './serve-fits.js';
+
+/** Where the runner's fits read and publish. */
+export interface FitJobRunnerOptions {
+  readonly target: ConnectionTarget;
+  /** `--db`, as given (runs resolve it as `rowfold fit` does). */
+  readonly db: string | undefined;
+  readonly env: NodeJS.ProcessEnv;
+}
+
+/** The error a run gets when `serve` drops it on a second signal. */
+export const DROPPED_RUN_MESSAGE = 'serve was stopped at once (a second SIGTERM or SIGINT) while this run was in progress; its job went back to the queue';
+
+/**
+ * What a `rowfold serve` worker does with each kind of job:
+ *
+ * - a fit job runs the fit whole (runFitExclusive) or, for a spec with `split:`, starts a split
+ *   run and sends its partition jobs;
+ * - a partition job folds its partition and writes the partial factors once; whichever
+ *   partition job finds every partition written sends the merge job (once: its id is fixed);
+ * - a merge job merges and publishes the run once.
+ *
+ * A run this worker started is marked failed if serve drops it (a second signal), so it leaves a
+ * failed `runs` row and no partial results; a partition or merge job that fails for the last
+ * time fails its run the same way.
+ *
+ * @example
+ * await serveFits({ ..., runJob: fitJobRunner({ target, db: args.db, env: process.env }) });
+ */
+export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
+  const worker = `${hostname()}:${process.pid}`;
+  return async (job, send) => {
+    const { spec, specPath } = job.schedule;
+    const dropRun = (runId: number) => job.onDrop(() => failRunAndPartials(opts.target, spec.schema, runId, new Error(DROPPED_RUN_MESSAGE)).then(() => undefined));
+    if (job.kind === 'fit') {
+      if (spec.split === null) {
+        const r = await runFitExclusive({ specPath, db: opts.db, env: opts.env, onRunStarted: dropRun });
+        return { run_id: r.runId, rows_read: r.rowsRead, rows_used: r.rowsUsed, segments: r.models.length, seconds: r.seconds };
+      }
+      const started = await startSplitFit({
+        specPath,
+        target: opts.target,
+        onRunStarted: dropRun,
+        enqueue: (s) => send.partitions(job.schedule, s.runId, s.partitions, s.jobTimeoutSeconds),
+      });
+      return { run_id: started.runId, partitions: started.partitions };
+    }
+    const runId = Number(job.data.runId);
+    const timeout = spec.split?.jobTimeoutSeconds ?? 3600;
+    try {
+      if (job.kind === 'partition') {
+        const partition = Number(job.data.partition);
+        const done = await foldPartition({ target: opts.target, schema: spec.schema, runId, partition, worker });
+        if (done.complete) await send.merge(job.schedule, runId, timeout);
+        return { run_id: runId, partition, outcome: done.outcome, rows_read: done.rowsRead, segments: done.segments, merge_sent: done.complete };
+      }
+      const merged = await mergeSplitRun({ target: opts.target, schema: spec.schema, runId, final: job.final });
+      return { run_id: runId, outcome: merged.outcome, rows_read: merged.rowsRead, segments: merged.segments };
+    } catch (e) {
+      if (job.final && job.kind === 'partition') await failRunAndPartials(opts.target, spec.schema, runId, e).catch(() => undefined);
+      throw e;
+    }
+  };
+}
