@@ -70,19 +70,17 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           (m): ModelRecord => ({ segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes }),
         );
         const result = { rowsRead: out.rowsRead, rowsUsed: out.rowsUsed, rowsSkipped: out.rowsSkipped, seconds: out.seconds, models };
-        try {
-          await store.transaction().execute(async (trx) => {
-            await writeRunResult(trx, req.schema, req.runId, result);
-            await deletePartials(trx, req.schema, req.runId);
-          });
-        } catch (e) {
-          // Another attempt of this merge (an expired job retried while this one ran) won.
-          const now = await loadSplitRun(store, req.schema, req.runId);
-          if (now?.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
-          throw e;
-        }
+        await store.transaction().execute(async (trx) => {
+          await writeRunResult(trx, req.schema, req.runId, result);
+          await deletePartials(trx, req.schema, req.runId);
+        });
         return { outcome: 'published', rowsRead: out.rowsRead, segments: models.length };
       } catch (e) {
+        // Another attempt of this merge (an expired job retried while this one ran) may have
+        // published, and removed the partials, in the meantime: then this one is done.
+        const now = await loadSplitRun(store, req.schema, req.runId);
+        if (now?.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
+        if (now !== null && now.status !== 'running') return { outcome: 'run-ended', rowsRead: 0, segments: 0 };
         if (req.final) {
           await failRun(store, req.schema, req.runId, e).catch(() => undefined);
           await deletePartials(store, req.schema, req.runId).catch(() => undefined);
