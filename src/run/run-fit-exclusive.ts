@@ -55,7 +55,7 @@ export const ABANDONED_RUN_MESSAGE =
  * @example
  * const result = await runFitExclusive({ specPath: 'config/feeder-load.yaml', db: url });
  */
-export async function runFitExclusive(req: RunFitRequest): Promise<RunFitResult> {
+export async function runFitExclusive(req: RunFitRequest, hooks: FitLockHooks = {}): Promise<RunFitResult> {
   const env = req.env ?? process.env;
   if (req.dryRun || (req.db !== undefined && req.db.startsWith(EMBEDDED_PREFIX))) return runFit(req);
   const target = resolveConnection({ db: req.db, env });
@@ -64,7 +64,27 @@ export async function runFitExclusive(req: RunFitRequest): Promise<RunFitResult>
     if (e instanceof SpecError) throw e;
     throw new SpecFileError(`cannot read the spec ${req.specPath}: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
   });
-  return withFitLock(target, spec, () => runFit(req));
+  return withFitLock(target, spec, () => runFit(req), hooks);
+}
+
+/** Hooks of {@link withFitLock}. */
+export interface FitLockHooks {
+  /** Called with the PostgreSQL backend that holds the lock, once it is taken (see {@link breakFitLock}). */
+  readonly onLocked?: (backendPid: number) => void;
+}
+
+/**
+ * Ends the session that holds a fit's lock (`pg_terminate_backend`), which releases the lock at
+ * once: for a process that drops a run it cannot wait for (serve stopping at once), so that the
+ * run's job can be taken by another worker without finding the fit busy.
+ */
+export async function breakFitLock(target: ConnectionTarget, backendPid: number): Promise<void> {
+  const db = openServerDatabase(target, 1);
+  try {
+    await db.withSession((s) => s.query('select pg_terminate_backend($1)', [backendPid]));
+  } finally {
+    await db.close();
+  }
 }
 
 /**
@@ -75,7 +95,12 @@ export async function runFitExclusive(req: RunFitRequest): Promise<RunFitResult>
  * @example
  * await withFitLock(target, spec, async () => startTheRun());
  */
-export async function withFitLock<T>(target: ConnectionTarget, spec: FitSpec, fn: () => Promise<T>): Promise<T> {
+export async function withFitLock<T>(
+  target: ConnectionTarget,
+  spec: FitSpec,
+  fn: () => Promise<T>,
+  hooks: FitLockHooks = {},
+): Promise<T> {
   const key = fitLockKey(spec.schema, spec.name);
   const lockDb = openServerDatabase(target, 2);
   const store = createStoreDb(lockDb.dialect());
@@ -96,6 +121,10 @@ export async function withFitLock<T>(target: ConnectionTarget, spec: FitSpec, fn
           spec.name,
           `fit ${spec.name} is already running (${who} holds its lock); this run did not start: wait for that run to end, or see \`rowfold runs ${spec.name}\``,
         );
+      }
+      if (hooks.onLocked !== undefined) {
+        const pid = await session.query('select pg_backend_pid()');
+        hooks.onLocked(Number(pid.rows[0]?.[0]));
       }
       try {
         const { live } = await failAbandonedRuns(store, spec.schema, spec.name, ABANDONED_RUN_MESSAGE);

@@ -31,6 +31,8 @@ export interface SplitStartRequest {
   readonly enqueue: (start: SplitStart) => Promise<void>;
   /** Called once the run's `runs` row is written. */
   readonly onRunStarted?: (runId: number) => void;
+  /** Called with the backend that holds the fit's lock while the run starts. */
+  readonly onLocked?: (backendPid: number) => void;
 }
 
 /**
@@ -84,5 +86,5 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
       await db.destroy();
       await database.close();
     }
-  });
+  }, { onLocked: req.onLocked });
 }

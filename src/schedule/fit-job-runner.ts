@@ -1,5 +1,5 @@
 import { hostname } from 'node:os';
-import { runFitExclusive } from '../run/run-fit-exclusive.js';
+import { breakFitLock, runFitExclusive } from '../run/run-fit-exclusive.js';
 import { failRunAndPartials } from '../run/split-fail.js';
 import { mergeSplitRun } from '../run/split-merge.js';
 import { foldPartition } from '../run/split-partition.js';
@@ -38,16 +38,19 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
   const worker = `${hostname()}:${process.pid}`;
   return async (job, send) => {
     const { spec, specPath } = job.schedule;
+    // Undone last first: the run is marked failed, then its lock is let go, then the job goes back.
     const dropRun = (runId: number) => job.onDrop(() => failRunAndPartials(opts.target, spec.schema, runId, new Error(DROPPED_RUN_MESSAGE)).then(() => undefined));
+    const dropLock = (backendPid: number) => job.onDrop(() => breakFitLock(opts.target, backendPid));
     if (job.kind === 'fit') {
       if (spec.split === null) {
-        const r = await runFitExclusive({ specPath, db: opts.db, env: opts.env, onRunStarted: dropRun });
+        const r = await runFitExclusive({ specPath, db: opts.db, env: opts.env, onRunStarted: dropRun }, { onLocked: dropLock });
         return { run_id: r.runId, rows_read: r.rowsRead, rows_used: r.rowsUsed, segments: r.models.length, seconds: r.seconds };
       }
       const started = await startSplitFit({
         specPath,
         target: opts.target,
         onRunStarted: dropRun,
+        onLocked: dropLock,
         enqueue: (s) => send.partitions(job.schedule, s.runId, s.partitions, s.jobTimeoutSeconds),
       });
       return { run_id: started.runId, partitions: started.partitions };

@@ -20,7 +20,10 @@ export interface ServedJob {
   readonly data: FitJobData & Partial<PartitionJobData>;
   /** pg-boss will not try this job again after this attempt. */
   readonly final: boolean;
-  /** Registers what to undo if serve must drop the job before it ends (a second signal). */
+  /**
+   * Registers what to undo if serve must drop the job before it ends (a second signal); undone
+   * in reverse order of registration, before the job goes back on the queue.
+   */
   onDrop(undo: () => Promise<void>): void;
 }
 
@@ -343,7 +346,8 @@ async function dropAll(boss: PgBoss, registry: ServeRegistry, active: Map<string
   await Promise.all(
     [...active.values()].map(async (entry) => {
       entry.dropped = true;
-      for (const undo of entry.undo) {
+      // Last registered, first undone (a run is failed before the lock it ran under is let go).
+      for (const undo of [...entry.undo].reverse()) {
         await Promise.race([undo(), sleep(5000)]).catch((e: unknown) =>
           opts.log(`job ${entry.id}: cannot undo: ${e instanceof Error ? e.message : String(e)}`),
         );
