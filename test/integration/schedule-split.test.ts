@@ -31,6 +31,16 @@ const splitSpec = {
   split: { partitions: 4, job_timeout_seconds: 60 },
 };
 
+/** A pg-boss client of the test (no clock, no maintenance), once serve has created the queue schema. */
+async function queue(): Promise<PgBoss> {
+  if (boss === undefined) {
+    boss = new PgBoss({ connectionString: tdb.url, schema: JOBS_SCHEMA, supervise: false, schedule: false, migrate: false });
+    boss.on('error', () => undefined);
+    await boss.start();
+  }
+  return boss;
+}
+
 interface ModelRow {
   run_id: string;
   segment_key: string;
@@ -76,11 +86,8 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
       await serve.until('both servers ready', () => /serving 1 fit/.test(a.log()) && /serving 1 fit/.test(b.log()), 90_000);
       expect(a.log()).toMatch(/split into 4 partition jobs/);
 
-      boss = new PgBoss({ connectionString: tdb.url, schema: JOBS_SCHEMA, supervise: false, schedule: false, migrate: false });
-      boss.on('error', () => undefined);
-      await boss.start();
       const started = Date.now();
-      await boss.send(fitQueueName('rowfold', FIT), { fit: FIT, schema: 'rowfold' });
+      await (await queue()).send(fitQueueName('rowfold', FIT), { fit: FIT, schema: 'rowfold' });
 
       // The first worker seen folding a partition is killed outright.
       const partitionStart = /partition (\d+) job (\S+) started/;
@@ -158,6 +165,43 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
       });
       expect(worst).toBeLessThan(1e-10);
       console.log(`split run published ${seconds.toFixed(1)} s after the job was sent, partition ${partition} lost and retried; largest relative difference from the unsplit fit ${worst.toExponential(1)}`);
+    },
+  );
+
+  it(
+    'a worker that hangs (SIGSTOP) keeps its lock, so its partition comes back when the job expires; when it wakes, it publishes nothing',
+    { timeout: 150_000 },
+    async () => {
+      const fit = 'split_hang';
+      const specPath = writeSpec({ ...splitSpec, name: fit, split: { partitions: 3, job_timeout_seconds: 6 } });
+      const a = serve.start([specPath, '--db', tdb.url, '--maintenance-seconds', '1']);
+      const b = serve.start([specPath, '--db', tdb.url, '--maintenance-seconds', '1']);
+      await serve.until('both servers ready', () => /serving 1 fit/.test(a.log()) && /serving 1 fit/.test(b.log()), 90_000);
+      await (await queue()).send(fitQueueName('rowfold', fit), { fit, schema: 'rowfold' });
+      const partitionStart = /partition (\d+) job (\S+) started/;
+      const hung = await serve.until('a partition job to start', () => [a, b].find((s) => partitionStart.test(s.log())));
+      hung.child.kill('SIGSTOP');
+      const [, partition, stuckJob] = partitionStart.exec(hung.log())!;
+      const awake = hung === a ? b : a;
+      try {
+        const runs = async () => (await tdb.query<{ run_id: string; status: string }>(`select run_id, status from rowfold.runs where fit_name = $1`, [fit])).rows;
+        await serve.until('the run to be published without the hung worker', async () => (await runs()).some((r) => r.status === 'succeeded'), 90_000);
+        // Not handed back as lost (the hung process still holds its presence lock): it expired.
+        expect(awake.log()).not.toMatch(new RegExp(`job ${stuckJob} of \\S+: the serve process`));
+        expect(awake.log()).toMatch(new RegExp(`partition ${partition} job ${stuckJob} succeeded .*"outcome":"written"`));
+        expect((await tdb.query(`select retry_count from ${JOBS_SCHEMA}.job where id = $1`, [stuckJob])).rows).toEqual([{ retry_count: 1 }]);
+        hung.child.kill('SIGCONT');
+        // Awake again, it finishes its fold, finds the run published and writes nothing.
+        await serve.until('the hung worker to finish its fold', () => new RegExp(`job ${stuckJob} succeeded`).test(hung.log()), 30_000);
+        expect(hung.log()).toMatch(new RegExp(`partition ${partition} job ${stuckJob} succeeded .*"outcome":"(run-ended|already-written)"`));
+        const published = await runs();
+        expect(published.map((r) => r.status)).toEqual(['succeeded']);
+        const models = await tdb.query(`select run_id, count(*)::int as n, sum(rows)::int as rows from rowfold.models where fit_name = $1 group by run_id`, [fit]);
+        expect(models.rows).toEqual([{ run_id: published[0]!.run_id, n: 3, rows: 6000 }]);
+        expect((await tdb.query(`select count(*)::int as n from ${JOBS_SCHEMA}.job where name = $1`, [mergeQueueName('rowfold', fit)])).rows).toEqual([{ n: 1 }]);
+      } finally {
+        hung.child.kill('SIGCONT');
+      }
     },
   );
 
