@@ -50,7 +50,10 @@ export function serveCommand(y: Argv): Argv {
         if (!Number.isFinite(value) || value < min) throw new CliError(`${flag} must be a number of seconds of at least ${min}, got ${value}`, ExitCode.usage);
       }
       if (args.sweepSeconds * 3 > args.forgetAfterSeconds) {
-        throw new CliError(`--forget-after-seconds (${args.forgetAfterSeconds}) must be at least three sweeps (--sweep-seconds ${args.sweepSeconds})`, ExitCode.usage);
+        throw new CliError(
+          `--forget-after-seconds must be at least ${args.sweepSeconds * 3} (three heartbeats, one every ${args.sweepSeconds} s), got ${args.forgetAfterSeconds}`,
+          ExitCode.usage,
+        );
       }
       const noServer =
         'rowfold serve needs a PostgreSQL server: the embedded database serves one process at a time, and serve ' +
