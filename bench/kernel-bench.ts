@@ -1,6 +1,7 @@
 import { Accumulator } from '../src/fit/accumulator.js';
 import { FoldWorkspace } from '../src/fit/fold-workspace.js';
 import { wasmFold } from '../src/fit/wasm-kernel.js';
+import { gramUpdate } from '../src/numeric/gram-update.js';
 import { householderFold } from '../src/numeric/householder-fold.js';
 import { packedLength } from '../src/numeric/packed.js';
 
@@ -63,26 +64,40 @@ export function benchKernels(p: number, repeats = 3): KernelFigure[] {
   ];
 }
 
-/** Raw fold kernels side by side: the WebAssembly SIMD kernel and the TypeScript one. */
-export function benchRawKernels(p: number): { p: number; wasm: number | null; js: number } {
+/** GFLOP/s of the raw kernels, WebAssembly SIMD beside TypeScript (null: not built). */
+export interface RawKernelFigure {
+  readonly p: number;
+  readonly wasm: number | null;
+  readonly js: number;
+  /** The XᵀX option's Gram update, counted as m·n·(n+1) flops per block. */
+  readonly gramWasm: number | null;
+  readonly gramJs: number;
+}
+
+/** Raw fold and Gram kernels side by side: the WebAssembly SIMD kernels and the TypeScript ones. */
+export function benchRawKernels(p: number): RawKernelFigure {
   const n = p + 2;
   const m = FoldWorkspace.rowsFor(n);
   const src = randomBlock(m, n).values;
   const blocks = Math.max(10, Math.round(2e9 / (2 * m * n * n)));
-  const time = (fn: () => void) => {
+  const time = (fn: () => void, flops = 2 * m * n * n) => {
     fn();
     const t0 = performance.now();
     for (let t = 0; t < blocks; t++) fn();
-    return (2 * m * n * n * blocks) / ((performance.now() - t0) / 1000) / 1e9;
+    return (flops * blocks) / ((performance.now() - t0) / 1000) / 1e9;
   };
+  const gramFlops = m * n * (n + 1);
   const r = new Float64Array(packedLength(n));
   const b = new Float64Array(m * n);
   const js = time(() => {
     b.set(src);
     householderFold(n, r, b, m, m);
   });
+  const g = new Float64Array(packedLength(n));
+  const gramJs = time(() => gramUpdate(n, g, src, m, m), gramFlops);
   const kernel = wasmFold();
   let wasm: number | null = null;
+  let gramWasm: number | null = null;
   if (kernel !== null) {
     const rw = new Float64Array(packedLength(n));
     wasm = time(() => {
@@ -90,6 +105,12 @@ export function benchRawKernels(p: number): { p: number; wasm: number | null; js
       staged.set(src);
       kernel.fold(n, rw, staged, m, m);
     });
+    const gw = new Float64Array(packedLength(n));
+    gramWasm = time(() => {
+      const staged = kernel.staging(n, m * n);
+      staged.set(src);
+      kernel.gram(n, gw, staged, m, m);
+    }, gramFlops);
   }
-  return { p, wasm, js };
+  return { p, wasm, js, gramWasm, gramJs };
 }

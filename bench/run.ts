@@ -23,7 +23,8 @@ for (const p of [20, 50, 200]) {
 const raw = [20, 50, 200].map((p) => benchRawKernels(p));
 for (const k of raw) {
   console.log(
-    `raw fold kernel p=${k.p}: WebAssembly SIMD ${k.wasm === null ? 'not built' : `${k.wasm.toFixed(2)} GFLOP/s`}, TypeScript ${k.js.toFixed(2)} GFLOP/s`,
+    `raw kernels p=${k.p}: fold WebAssembly SIMD ${k.wasm === null ? 'not built' : `${k.wasm.toFixed(2)} GFLOP/s`}, TypeScript ${k.js.toFixed(2)} GFLOP/s; ` +
+      `XᵀX WebAssembly SIMD ${k.gramWasm === null ? 'not built' : `${k.gramWasm.toFixed(2)} GFLOP/s`}, TypeScript ${k.gramJs.toFixed(2)} GFLOP/s`,
   );
 }
 const fold200 = kernels.find((k) => k.kernel === 'fold' && k.p === 200)!;
