@@ -105,6 +105,14 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
       const seconds = (Date.now() - started) / 1000;
       // Retries and merges that come late must not publish again: give them time to try.
       await new Promise((r) => setTimeout(r, 2000));
+      // Jobs are completed just after their work is done: wait for the last of them.
+      await serve.until('every partition and merge job to be completed', async () => {
+        const open = await tdb.query(`select count(*)::int as n from ${JOBS_SCHEMA}.job where name in ($1, $2) and state <> 'completed'`, [
+          partitionQueueName('rowfold', FIT),
+          mergeQueueName('rowfold', FIT),
+        ]);
+        return open.rows[0].n === 0;
+      });
 
       // Exactly one run, published once, with one model per feeder.
       const published = await runs();
@@ -186,6 +194,8 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
       try {
         const runs = async () => (await tdb.query<{ run_id: string; status: string }>(`select run_id, status from rowfold.runs where fit_name = $1`, [fit])).rows;
         await serve.until('the run to be published without the hung worker', async () => (await runs()).some((r) => r.status === 'succeeded'), 90_000);
+        // The partition job is completed (and says so) once its worker is back from sending the merge.
+        await serve.until('the partition job to be completed', () => new RegExp(`job ${stuckJob} succeeded`).test(awake.log()), 30_000);
         // Not handed back as lost (the hung process still holds its presence lock): it expired.
         expect(awake.log()).not.toMatch(new RegExp(`job ${stuckJob} of \\S+: the serve process`));
         expect(awake.log()).toMatch(new RegExp(`partition ${partition} job ${stuckJob} succeeded .*"outcome":"written"`));
