@@ -249,4 +249,41 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
     expect(models.rows).toEqual([{ n: 3, rows: 6000 }]);
     expect((await stored()).n).toBe(0);
   });
+
+  it.each([
+    ['accuracy: extended (double-double partial factors)', { accuracy: 'extended' }],
+    ['method: normal (Gram matrices)', { method: 'normal' }],
+  ])('a split run with %s equals the unsplit fit to 1e-10', async (label, extra) => {
+    const name = `split_${Object.values(extra)[0]}`;
+    const specPath = writeSpec({ ...splitSpec, ...extra, name, source: 'readings', split: { partitions: 2 } });
+    const target = resolveConnection({ db: tdb.url, env: {} });
+    const start = await startSplitFit({ specPath, target, enqueue: async () => undefined });
+    for (const partition of [0, 1]) await foldPartition({ target, schema: 'rowfold', runId: start.runId, partition, worker: 'test' });
+    if (label.startsWith('accuracy')) {
+      const low = await tdb.query(`select count(*)::int as n from rowfold.partial_factors where run_id = $1 and factor_low is not null`, [start.runId]);
+      expect(low.rows[0].n).toBe(6);
+    }
+    expect(await mergeSplitRun({ target, schema: 'rowfold', runId: start.runId, final: true })).toMatchObject({ outcome: 'published', segments: 3 });
+    const whole = await runCli(['fit', specPath, '--db', tdb.url, '--json']);
+    expect(whole.code, whole.stderr).toBe(0);
+    const wholeRun = (JSON.parse(whole.stdout) as { run: { id: number } }).run.id;
+    const coefficients = async (id: number) =>
+      (
+        await tdb.query<CoefficientRow & { accuracy: string }>(
+          `select m.segment_key, c.term, c.estimate, c.std_error, m.accuracy from rowfold.coefficients c join rowfold.models m using (model_id)
+            where c.run_id = $1 order by m.segment_key, c.term_index`,
+          [id],
+        )
+      ).rows;
+    const split = await coefficients(start.runId);
+    const unsplit = await coefficients(wholeRun);
+    expect(split).toHaveLength(12);
+    expect(split.map((c) => [c.segment_key, c.term, c.accuracy])).toEqual(unsplit.map((c) => [c.segment_key, c.term, c.accuracy]));
+    expect(split[0]!.accuracy).toBe(label.startsWith('accuracy') ? 'extended' : 'fast');
+    split.forEach((c, i) => {
+      const u = unsplit[i]!;
+      expect(Math.abs(c.estimate - u.estimate) / Math.abs(u.estimate)).toBeLessThan(1e-10);
+      expect(Math.abs(c.std_error - u.std_error) / Math.abs(u.std_error)).toBeLessThan(1e-10);
+    });
+  });
 });
