@@ -286,4 +286,32 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
       expect(Math.abs(c.std_error - u.std_error) / Math.abs(u.std_error)).toBeLessThan(1e-10);
     });
   });
+
+  it('with accuracy auto, the merge takes the double-double pass over every partition for models double precision cannot vouch for', async () => {
+    // A quartic in raw powers of x near 1000: the double-precision factor falls short of 13.5 digits.
+    await tdb.query(`create table quartic as select g as id, (array['A','B'])[1 + g % 2] as seg, (1000 + g / 100.0)::float8 as x,
+                       (3 + 2 * (1000 + g / 100.0) + 1e-3 * power(1000 + g / 100.0, 2) + sin(g))::float8 as y
+                     from generate_series(1, 3000) g`);
+    const specPath = writeSpec({ name: 'split_auto', source: 'quartic', segment_by: 'seg', response: 'y', terms: ['x', 'x*x', 'x*x*x', 'x*x*x*x'], split: { partitions: 3 } });
+    const target = resolveConnection({ db: tdb.url, env: {} });
+    const start = await startSplitFit({ specPath, target, enqueue: async () => undefined });
+    for (const partition of [0, 1, 2]) await foldPartition({ target, schema: 'rowfold', runId: start.runId, partition, worker: 'test' });
+    expect(await mergeSplitRun({ target, schema: 'rowfold', runId: start.runId, final: true })).toMatchObject({ outcome: 'published', rowsRead: 3000 });
+    const whole = await runCli(['fit', specPath, '--db', tdb.url, '--json']);
+    expect(whole.code, whole.stderr).toBe(0);
+    const wholeRun = (JSON.parse(whole.stdout) as { run: { id: number } }).run.id;
+    const models = async (id: number) =>
+      (await tdb.query(`select segment_key, passes, accuracy, rows from rowfold.models where run_id = $1 order by segment_key`, [id])).rows;
+    expect(await models(start.runId)).toEqual([
+      { segment_key: '["A"]', passes: 2, accuracy: 'extended', rows: '1500' },
+      { segment_key: '["B"]', passes: 2, accuracy: 'extended', rows: '1500' },
+    ]);
+    expect(await models(wholeRun)).toEqual(await models(start.runId));
+    const estimates = async (id: number) =>
+      (await tdb.query<{ estimate: number }>(`select estimate from rowfold.coefficients where run_id = $1 order by model_id, term_index`, [id])).rows.map((r) => r.estimate);
+    const split = await estimates(start.runId);
+    const unsplit = await estimates(wholeRun);
+    expect(split).toHaveLength(10);
+    split.forEach((e, i) => expect(Math.abs(e - unsplit[i]!) / Math.abs(unsplit[i]!)).toBeLessThan(1e-10));
+  });
 });
