@@ -4,9 +4,11 @@ import pg from 'pg';
 import PgBoss from 'pg-boss';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import type { FitSchedule } from './fit-schedule.js';
-import { fitQueueName, jobIdOf, JOBS_SCHEMA, mergeQueueName, partitionQueueName } from './fit-queue.js';
-import type { FitJobData, MergeJobData, PartitionJobData } from './fit-queue.js';
+import { fitQueueName, JOBS_SCHEMA, mergeQueueName, partitionQueueName } from './fit-queue.js';
+import type { FitJobData, PartitionJobData } from './fit-queue.js';
 import { ServeRegistry } from './serve-registry.js';
+import { sweepServe } from './serve-sweep.js';
+import { splitJobSender } from './split-job-sender.js';
 
 /** The three kinds of job of a fit: a (scheduled) run, a partition of a split run, its merge. */
 export type JobKind = 'fit' | 'partition' | 'merge';
@@ -202,10 +204,15 @@ export async function serveFits(opts: ServeFitsOptions): Promise<ServeSummary> {
     await lock.end().catch(() => undefined);
   }
   const reg = registry;
-  const sender = jobSender(boss);
+  const sender = splitJobSender(boss);
   const active = new Map<string, ActiveJob>();
   const sweeping = new AbortController();
-  const sweeper = sweepLoop(boss, reg, fitQueues, opts, sweeping.signal);
+  const sweeper = sweepServe(boss, reg, fitQueues, {
+    sweepSeconds: opts.sweepSeconds ?? 10,
+    forgetAfterSeconds: opts.forgetAfterSeconds ?? 86_400,
+    log: opts.log,
+    stop: sweeping.signal,
+  });
   let stoppedNow = false;
   try {
     opts.onReady?.();
@@ -222,55 +229,6 @@ export async function serveFits(opts: ServeFitsOptions): Promise<ServeSummary> {
     }
   }
   return counts;
-}
-
-function jobSender(boss: PgBoss): JobSender {
-  return {
-    async partitions(schedule, runId, partitions, timeoutSeconds) {
-      const queue = partitionQueueName(schedule.spec.schema, schedule.spec.name);
-      for (let partition = 0; partition < partitions; partition++) {
-        const data: PartitionJobData = { fit: schedule.spec.name, schema: schedule.spec.schema, runId, partition, partitions };
-        await boss.send(queue, data, { id: jobIdOf(queue, runId, partition), expireInSeconds: timeoutSeconds });
-      }
-    },
-    async merge(schedule, runId, timeoutSeconds) {
-      const queue = mergeQueueName(schedule.spec.schema, schedule.spec.name);
-      const data: MergeJobData = { fit: schedule.spec.name, schema: schedule.spec.schema, runId };
-      await boss.send(queue, data, { id: jobIdOf(queue, runId), expireInSeconds: timeoutSeconds });
-    },
-  };
-}
-
-async function sweepLoop(
-  boss: PgBoss,
-  registry: ServeRegistry,
-  fitQueues: readonly string[],
-  opts: ServeFitsOptions,
-  stop: AbortSignal,
-): Promise<void> {
-  const every = (opts.sweepSeconds ?? 10) * 1000;
-  const forget = opts.forgetAfterSeconds ?? 86_400;
-  while (!stop.aborted) {
-    await sleep(every, undefined, { signal: stop }).catch(() => undefined);
-    if (stop.aborted) break;
-    try {
-      await registry.heartbeat(fitQueues);
-      for (const claim of await registry.lostClaims()) {
-        const done = await registry.releaseJob(claim.queue, claim.jobId, () =>
-          boss.fail(claim.queue, claim.jobId, { message: `the serve process ${claim.serverId} working it stopped` }),
-        );
-        await registry.dropClaim(claim);
-        if (done !== null) {
-          opts.log(`job ${claim.jobId} of ${claim.queue}: the serve process ${claim.serverId} working it stopped; ${done === 'retry' ? 'back on the queue' : 'failed (no retries left)'}`);
-        }
-      }
-      for (const queue of await registry.unscheduleStale(forget)) {
-        opts.log(`${queue}: schedule removed: no serve process has served this fit for ${forget} s`);
-      }
-    } catch (e) {
-      opts.log(`sweep failed: ${e instanceof Error ? e.message : String(e)}`);
-    }
-  }
 }
 
 /** Works jobs until `signal` (true: ended by `stopNow`, with the running jobs handed back). */
