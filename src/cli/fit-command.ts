@@ -9,7 +9,7 @@ import type { RunFitResult } from '../run/run-fit.js';
 import { CliError, ExitCode } from './exit-codes.js';
 import { progressReporter } from './progress-reporter.js';
 
-/** `rowfold fit SPEC [--db URL] [--parallel N] [--read copy|rows] [--json] [--dry-run]`. */
+/** `rowfold fit SPEC [--db URL] [--parallel N] [--threads N] [--read copy|rows] [--json] [--dry-run]`. */
 export function fitCommand(y: Argv): Argv {
   return y.command(
     'fit <spec>',
@@ -23,6 +23,10 @@ export function fitCommand(y: Argv): Argv {
             'PostgreSQL URL, or embedded:FOLDER (default: DATABASE_URL, then the PG* variables, then the embedded database in .rowfold/db)',
         })
         .option('parallel', { type: 'number', default: 1, describe: 'read N disjoint partitions over N connections' })
+        .option('threads', {
+          type: 'number',
+          describe: 'threads folding rows beside the reading thread (0: none; default: 1 for 62 terms or more on a multi-core machine)',
+        })
         .option('read', { choices: ['copy', 'rows'] as const, describe: 'override the spec: binary COPY or row stream' })
         .option('accuracy', {
           choices: ['auto', 'fast', 'extended'] as const,
@@ -40,6 +44,10 @@ export function fitCommand(y: Argv): Argv {
       if (!Number.isInteger(parallel) || parallel < 1 || parallel > 64) {
         throw new CliError(`--parallel must be a whole number from 1 to 64, got ${parallel}`, ExitCode.usage);
       }
+      const threads = args.threads;
+      if (threads !== undefined && (!Number.isInteger(threads) || threads < 0 || threads > 64)) {
+        throw new CliError(`--threads must be a whole number from 0 to 64, got ${threads}`, ExitCode.usage);
+      }
       const progress = progressReporter();
       let result: RunFitResult;
       try {
@@ -47,6 +55,7 @@ export function fitCommand(y: Argv): Argv {
           specPath: args.spec,
           db: args.db,
           parallel,
+          threads,
           read: args.read,
           accuracy: args.accuracy,
           dryRun: args.dryRun,

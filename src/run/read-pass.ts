@@ -1,12 +1,19 @@
+import { autoFoldThreads, FoldPool } from '../fit/fold-pool.js';
 import { SegmentedFit } from '../fit/segmented-fit.js';
-import type { SegmentedFitOptions } from '../fit/segmented-fit.js';
+import type { KeyedBlock, SegmentedFitOptions } from '../fit/segmented-fit.js';
 import type { DesignPlan } from '../plan/design-plan.js';
 import type { Database } from '../source/database.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import type { RunFitRequest } from './run-fit.js';
 
-/** One streamed pass over the design query into per-segment accumulators. */
+/**
+ * One streamed pass over the design query into per-segment accumulators: each partition of
+ * the plan is read on its own connection, all at once. Blocks are folded on the reading
+ * thread, or, with fold threads (`req.threads`, by default one when the factor is large
+ * enough for the kernel to bound the read; see autoFoldThreads), handed to a FoldPool so
+ * that receiving and decoding overlap folding.
+ */
 export async function readPass(
   database: Database,
   plan: DesignPlan,
@@ -21,39 +28,56 @@ export async function readPass(
     weight: spec.weight ?? undefined,
     intercept: spec.intercept,
   };
-  const fits = plan.queries.map(() => new SegmentedFit(shape, plan.keyNames, options));
-  const counts = await Promise.all(
-    plan.queries.map((query, i) =>
-      // A session whose stream broke is discarded, not used again.
-      database.withSession((session) =>
-        session.readDesign(
-          {
-            query,
-            keyNames: plan.keyNames,
-            valueNames: plan.valueNames,
-            valueTypes: plan.valueTypes,
-            mode: req.read ?? spec.read,
-            nonFinite: spec.nonFinite === 'skip' ? 'skip' : 'pass',
-          },
-          (block, keyTable) => {
-            fits[i]!.consume(block, keyTable);
-            progress.rows += block.rows;
-            const now = performance.now();
-            if (req.onProgress && now - progress.last > 250) {
-              progress.last = now;
-              req.onProgress({
-                rowsRead: progress.rows,
-                segments: fits.reduce((n, f) => n + f.size, 0),
-                seconds: (now - progress.started) / 1000,
-              });
-            }
-          },
+  // Order of the augmented factor: terms, intercept, response.
+  const order = plan.columns.length + (spec.intercept ? 1 : 0) + 1;
+  const threads = req.threads ?? autoFoldThreads(order);
+  const pool = threads > 0 ? new FoldPool(threads, shape, plan.keyNames, options) : null;
+  const fits = pool === null ? plan.queries.map(() => new SegmentedFit(shape, plan.keyNames, options)) : [];
+  const keyTables: ReadonlyArray<ReadonlyArray<string | null>>[] = plan.queries.map(() => []);
+  const fold = (i: number, block: KeyedBlock, keyTable: ReadonlyArray<ReadonlyArray<string | null>>) => {
+    if (pool !== null) return pool.sink(i, block, keyTable);
+    fits[i]!.consume(block, keyTable);
+    return undefined;
+  };
+  try {
+    const counts = await Promise.all(
+      plan.queries.map((query, i) =>
+        // A session whose stream broke is discarded, not used again.
+        database.withSession((session) =>
+          session.readDesign(
+            {
+              query,
+              keyNames: plan.keyNames,
+              valueNames: plan.valueNames,
+              valueTypes: plan.valueTypes,
+              mode: req.read ?? spec.read,
+              nonFinite: spec.nonFinite === 'skip' ? 'skip' : 'pass',
+            },
+            (block, keyTable) => {
+              keyTables[i] = keyTable;
+              const wait = fold(i, block, keyTable);
+              progress.rows += block.rows;
+              const now = performance.now();
+              if (req.onProgress && now - progress.last > 250) {
+                progress.last = now;
+                req.onProgress({
+                  rowsRead: progress.rows,
+                  // Segments seen so far (a segment read by two partitions counts twice here).
+                  segments: pool === null ? fits.reduce((n, f) => n + f.size, 0) : keyTables.reduce((n, t) => n + t.length, 0),
+                  seconds: (now - progress.started) / 1000,
+                });
+              }
+              return wait;
+            },
+          ),
         ),
       ),
-    ),
-  );
-  const fit = fits[0]!;
-  for (const f of fits.slice(1)) fit.merge(f);
-  return { fit, counts };
+    );
+    if (pool !== null) return { fit: await pool.finish(), counts };
+    const fit = fits[0]!;
+    for (const f of fits.slice(1)) fit.merge(f);
+    return { fit, counts };
+  } finally {
+    await pool?.close();
+  }
 }
-

@@ -30,6 +30,11 @@ export interface RunFitRequest {
   readonly db?: string | undefined;
   readonly env?: NodeJS.ProcessEnv;
   readonly parallel?: number;
+  /**
+   * Threads that fold blocks beside the reading thread (0: fold on the reading thread).
+   * Unset: one when the factor's order is 64 or more and there is a second core.
+   */
+  readonly threads?: number | undefined;
   /** Overrides the spec's `read`. */
   readonly read?: 'copy' | 'rows' | undefined;
   /** Overrides the spec's `accuracy`. */

@@ -50,11 +50,14 @@ export interface DesignReadCounts {
 }
 
 /**
- * Receives each block, synchronously. The block's arrays and the key table belong to the
- * reader: the block is overwritten once the sink returns, the key table only grows.
- * An exception thrown by the sink stops the read and is rethrown unchanged.
+ * Receives each block. The block's arrays and the key table belong to the reader: the block
+ * is overwritten once the sink returns, the key table only grows. A sink that hands blocks
+ * on to another thread copies them first and may return a promise: the reader then reads no
+ * further bytes until it settles (backpressure), so memory stays bounded. An exception
+ * thrown by the sink, or a rejection of its promise, stops the read and is rethrown
+ * unchanged.
  */
-export type BlockSink = (block: DecodedBlock, keyTable: ReadonlyArray<ReadonlyArray<string | null>>) => void;
+export type BlockSink = (block: DecodedBlock, keyTable: ReadonlyArray<ReadonlyArray<string | null>>) => void | Promise<void>;
 
 const DEFAULT_BLOCK_ROWS = 4096;
 
@@ -144,9 +147,23 @@ export async function readDesignFrom(transport: DesignTransport, req: DesignRead
 
   // Marks the sink's own exceptions so that they pass through unwrapped.
   let sinkFailure: { error: unknown } | undefined;
+  let pending: Promise<void>[] = [];
   const onBlock = (block: DecodedBlock): void => {
     try {
-      sink(block, reader.keyTable);
+      const wait = sink(block, reader.keyTable);
+      if (wait !== undefined) pending.push(wait);
+    } catch (error) {
+      sinkFailure = { error };
+      throw error;
+    }
+  };
+  // Waits for the sink's promises of the chunk just decoded before the next is read.
+  const settle = async (): Promise<void> => {
+    if (pending.length === 0) return;
+    const waits = pending;
+    pending = [];
+    try {
+      await Promise.all(waits);
     } catch (error) {
       sinkFailure = { error };
       throw error;
@@ -158,11 +175,18 @@ export async function readDesignFrom(transport: DesignTransport, req: DesignRead
     await transport.exec(SESSION_SETUP);
     req.signal?.throwIfAborted();
     if (reader instanceof CopyBinaryDecoder) {
-      for await (const chunk of transport.copyChunks(req.query, req.signal)) reader.write(chunk, onBlock);
+      for await (const chunk of transport.copyChunks(req.query, req.signal)) {
+        reader.write(chunk, onBlock);
+        if (pending.length > 0) await settle();
+      }
     } else {
-      for await (const row of transport.rowArrays(req.query, req.signal)) reader.push(row, onBlock);
+      for await (const row of transport.rowArrays(req.query, req.signal)) {
+        reader.push(row, onBlock);
+        if (pending.length > 0) await settle();
+      }
     }
     reader.end(onBlock);
+    await settle();
   } catch (error) {
     if (sinkFailure !== undefined && error === sinkFailure.error) throw error;
     if (error instanceof CopyDecodeError) throw error;
