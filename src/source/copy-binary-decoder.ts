@@ -145,6 +145,12 @@ export class CopyBinaryDecoder {
   readonly #values: Float64Array;
   /** Per value column: true when it arrives as numeric (pairs mode). */
   readonly #numeric: readonly boolean[];
+  /** Where the last incomplete scan stopped (see #scanFields). */
+  #scanStopField = -1;
+  #scanStopAt = 0;
+  /** Where the scan of the carried partial tuple resumes. */
+  #carryScanField = -1;
+  #carryScanAt = 0;
   /** Values per column in the block: 2 in pairs mode, else 1. */
   readonly #stride: number;
   readonly #pair = dd();
@@ -361,7 +367,7 @@ export class CopyBinaryDecoder {
         }
         case Phase.Tuples: {
           if (this.#carryLength > 0) {
-            pos = this.#completeCarriedTuple(bytes, pos, end);
+            pos = this.#completeCarriedTuple(bytes, view, pos, end);
             if (!this.#carryComplete) break;
             this.#consumeTuple(this.#carryView, this.#carry, 0, onBlock);
             this.#carryLength = 0;
@@ -371,6 +377,8 @@ export class CopyBinaryDecoder {
             const tupleEnd = this.#scanTuple(view, pos, end);
             if (tupleEnd > end) {
               // Only the straddling tail (a prefix of one tuple) is copied.
+              this.#carryScanField = -1;
+              this.#carryScanAt = 0;
               pos = this.#appendToCarry(bytes, pos, end, end - pos);
               break;
             }
@@ -427,11 +435,31 @@ export class CopyBinaryDecoder {
    * (field count, length word, field body), never past the tuple's end. Returns the new chunk
    * position and sets {@link #carryComplete}; when the tuple is still incomplete the chunk is used up.
    */
-  #completeCarriedTuple(bytes: Buffer, pos: number, end: number): number {
+  #completeCarriedTuple(bytes: Buffer, view: DataView, pos: number, end: number): number {
     for (;;) {
-      const tupleEnd = this.#scanTuple(this.#carryView, 0, this.#carryLength);
+      // Resumes where the last look stopped: rescanning from the tuple's start after every
+      // piece would cost O(fields²) per tuple that straddles two chunks.
+      const tupleEnd = this.#scanFields(this.#carryView, 0, this.#carryLength, this.#carryScanField, this.#carryScanAt);
+      this.#carryScanField = this.#scanStopField;
+      this.#carryScanAt = this.#scanStopAt;
       this.#carryComplete = tupleEnd <= this.#carryLength;
       if (this.#carryComplete || pos === end) return pos;
+      if (this.#carryScanField >= 0 && this.#carryScanAt === this.#carryLength) {
+        // The carry ends on a field boundary: the rest of the tuple lies in this chunk from
+        // `pos`. Scan it there and copy it over in one piece.
+        const restEnd = this.#scanFields(view, pos, end, this.#carryScanField, pos);
+        const base = this.#carryLength - pos;
+        const stopField = this.#scanStopField;
+        const stopAt = this.#scanStopAt;
+        pos = this.#appendToCarry(bytes, pos, end, Math.min(restEnd, end) - pos);
+        if (restEnd <= end) {
+          this.#carryComplete = true;
+          return pos;
+        }
+        this.#carryScanField = stopField;
+        this.#carryScanAt = stopAt + base;
+        continue;
+      }
       pos = this.#appendToCarry(bytes, pos, end, tupleEnd - this.#carryLength);
     }
   }
@@ -442,21 +470,45 @@ export class CopyBinaryDecoder {
    * offset up to which bytes are needed to make progress (> `end`).
    */
   #scanTuple(view: DataView, pos: number, end: number): number {
-    if (pos + 2 > end) return pos + 2;
-    const fields = view.getInt16(pos);
-    // Field count −1 is the end-of-data trailer.
-    if (fields === -1) return pos + 2;
-    if (fields !== this.#fieldCount) {
-      throw new CopyDecodeError(
-        `tuple ${this.#rowsRead + 1} has ${fields} fields, expected K+V = ${this.#fieldCount} ` +
-          `(${this.#keyCount} key + ${this.#valueCount} value columns); the query's select list does not match`,
-      );
+    return this.#scanFields(view, pos, end, -1, pos);
+  }
+
+  /**
+   * {@link #scanTuple} from field `from` at offset `at` (`from` −1: from the field count at
+   * `pos`). When the tuple is incomplete, {@link #scanStopField} and {@link #scanStopAt} say
+   * where the next look can resume (the start of the first incomplete field).
+   */
+  #scanFields(view: DataView, pos: number, end: number, from: number, at: number): number {
+    const fields = this.#fieldCount;
+    let p = at;
+    if (from < 0) {
+      this.#scanStopField = -1;
+      this.#scanStopAt = pos;
+      if (pos + 2 > end) return pos + 2;
+      const count = view.getInt16(pos);
+      // Field count −1 is the end-of-data trailer.
+      if (count === -1) return pos + 2;
+      if (count !== fields) {
+        throw new CopyDecodeError(
+          `tuple ${this.#rowsRead + 1} has ${count} fields, expected K+V = ${this.#fieldCount} ` +
+            `(${this.#keyCount} key + ${this.#valueCount} value columns); the query's select list does not match`,
+        );
+      }
+      p = pos + 2;
+      from = 0;
     }
-    let p = pos + 2;
-    for (let f = 0; f < fields; f++) {
+    for (let f = from; f < fields; f++) {
+      this.#scanStopField = f;
+      this.#scanStopAt = p;
       if (p + 4 > end) return p + 4;
       const length = view.getInt32(p);
       p += 4;
+      // The common field, a float8 (or 8 bytes of key text), needs no further checks.
+      if (length === FLOAT8_BYTES) {
+        p += FLOAT8_BYTES;
+        if (p > end) return p;
+        continue;
+      }
       // Length −1 is a NULL with no body.
       if (length === -1) continue;
       if (length < 0) {
@@ -507,7 +559,24 @@ export class CopyBinaryDecoder {
     const base = this.#blockFill * v * stride;
     let hasNull = false;
     let hasNonFinite = false;
-    for (let j = 0; j < v; j++) {
+    if (stride === 1) {
+      // Only float8 columns (the common case): the loop without the numeric branch.
+      for (let j = 0; j < v; j++) {
+        const length = view.getInt32(p);
+        p += 4;
+        if (length === -1) {
+          hasNull = true;
+          this.#nullCounts[j]!++;
+          continue;
+        }
+        const x = view.getFloat64(p);
+        p += FLOAT8_BYTES;
+        values[base + j] = x;
+        // x − x is NaN exactly when x is NaN or ±Infinity.
+        if (x - x !== 0) hasNonFinite = true;
+      }
+    }
+    for (let j = stride === 1 ? v : 0; j < v; j++) {
       const length = view.getInt32(p);
       p += 4;
       if (length === -1) {
