@@ -1,3 +1,4 @@
+import pg from 'pg';
 import PgBoss from 'pg-boss';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { ABANDONED_RUN_MESSAGE } from '../../src/run/run-fit-exclusive.js';
@@ -13,14 +14,35 @@ let tdb: TestDatabase;
 let boss: PgBoss | undefined;
 const serve = new ServeProcesses();
 
-// The source sleeps 3 s once per read, long enough to stop a worker mid-run.
-const slowSpec = (name: string) => ({
+// The source waits for an advisory lock the test holds (the cross join's one row is made once per
+// read, after the run row is written), so a worker stays mid-run until the test lets it go.
+const GATE_KEY = 5_105_001;
+const gatedSpec = (name: string) => ({
   name,
-  source: 'select o.* from obs o cross join (select pg_sleep(3)) s',
+  source: `select o.* from obs o cross join (select pg_advisory_xact_lock_shared(${GATE_KEY})) s`,
   response: 'y',
   terms: ['x'],
   schedule: '0 5 * * *',
 });
+
+const gates: { open: () => Promise<void> }[] = [];
+
+/** Holds the gate's lock on a connection of its own until `open()` (or the end of the test). */
+async function closeGate(): Promise<{ open: () => Promise<void> }> {
+  const client = new pg.Client({ connectionString: tdb.url });
+  await client.connect();
+  await client.query('select pg_advisory_lock($1)', [GATE_KEY]);
+  let opened = false;
+  const gate = {
+    open: async () => {
+      if (opened) return;
+      opened = true;
+      await client.end();
+    },
+  };
+  gates.push(gate);
+  return gate;
+}
 
 async function queue(): Promise<PgBoss> {
   if (boss === undefined) {
@@ -49,21 +71,25 @@ describe.skipIf(ON_EMBEDDED)('serve stops, dies and forgets (server only: other 
     await tdb.query(`create table obs as select g::float8 as x, (2 * g + sin(g))::float8 as y from generate_series(1, 500) g`);
     await serve.warm();
   });
-  afterEach(() => serve.killAll());
+  afterEach(async () => {
+    await serve.killAll();
+    for (const gate of gates.splice(0)) await gate.open();
+  });
   afterAll(async () => {
     await boss?.stop({ graceful: false, close: true }).catch(() => undefined);
     await tdb?.drop();
   });
 
   it('a second SIGTERM drops the running fit at once: exit 1, a failed run and no results, and another worker takes the job promptly', { timeout: 120_000 }, async () => {
-    const spec = writeSpec(slowSpec('stop_twice'));
+    const spec = writeSpec(gatedSpec('stop_twice'));
+    const gate = await closeGate();
     const a = serve.start([spec, '--db', tdb.url]);
     const b = serve.start([spec, '--db', tdb.url]);
     await serve.until('both servers ready', () => /serving 1 fit/.test(a.log()) && /serving 1 fit/.test(b.log()), 90_000);
     const id = await (await queue()).send(fitQueueName('rowfold', 'stop_twice'), { fit: 'stop_twice', schema: 'rowfold' });
     const holder = await serve.until('the job to start', () => [a, b].find((s) => s.log().includes(`job ${id} started`)));
     const other = holder === a ? b : a;
-    // The run row is written before the source's 3 s sleep begins.
+    // The run row is written before the source waits at the gate.
     await serve.until('the run row', async () => (await runsOf('stop_twice')).length === 1);
 
     const signalled = Date.now();
@@ -76,6 +102,7 @@ describe.skipIf(ON_EMBEDDED)('serve stops, dies and forgets (server only: other 
     expect(holder.log()).toMatch(/SIGTERM again: stopping now/);
     expect(holder.log()).toMatch(new RegExp(`job ${id} of \\S+: dropped; back on the queue for another worker`));
     expect(holder.log()).not.toMatch(new RegExp(`job ${id} succeeded`));
+    await gate.open();
 
     // The other worker runs it again well before pg-boss's retry delay (60 s) or expiry (1 h).
     // (The job is completed, and says so, just after its run is published.)
@@ -93,7 +120,8 @@ describe.skipIf(ON_EMBEDDED)('serve stops, dies and forgets (server only: other 
   });
 
   it('a server killed during a run and started again: the run left running is marked failed with no results, and the job runs again', { timeout: 120_000 }, async () => {
-    const spec = writeSpec(slowSpec('restart'));
+    const spec = writeSpec(gatedSpec('restart'));
+    const gate = await closeGate();
     const first = serve.start([spec, '--db', tdb.url]);
     await serve.until('ready', () => /serving 1 fit/.test(first.log()), 90_000);
     const id = await (await queue()).send(fitQueueName('rowfold', 'restart'), { fit: 'restart', schema: 'rowfold' });
@@ -103,6 +131,7 @@ describe.skipIf(ON_EMBEDDED)('serve stops, dies and forgets (server only: other 
     expect(await first.exited).toBeNull();
     // Killed outright: nobody marked the run, which still says running.
     expect((await runsOf('restart')).map((r) => r.status)).toEqual(['running']);
+    await gate.open();
 
     const again = serve.start([spec, '--db', tdb.url]);
     await serve.until('the job run again', () => new RegExp(`job ${id} succeeded`).test(again.log()), 60_000);
@@ -121,9 +150,9 @@ describe.skipIf(ON_EMBEDDED)('serve stops, dies and forgets (server only: other 
   });
 
   it('the schedule of a fit no serve process serves any more is removed; fits still served keep theirs', { timeout: 120_000 }, async () => {
-    const kept = writeSpec({ ...slowSpec('still_served'), source: 'obs' });
-    const dropped = writeSpec({ ...slowSpec('no_longer_served'), source: 'obs' });
-    const forget = ['--forget-after-seconds', '3'];
+    const kept = writeSpec({ ...gatedSpec('still_served'), source: 'obs' });
+    const dropped = writeSpec({ ...gatedSpec('no_longer_served'), source: 'obs' });
+    const forget = ['--forget-after-seconds', '10'];
     const a = serve.start([kept, dropped, '--db', tdb.url, ...forget]);
     const b = serve.start([kept, '--db', tdb.url, ...forget]);
     await serve.until('both servers ready', () => /serving 2 fits/.test(a.log()) && /serving 1 fit/.test(b.log()), 90_000);
@@ -135,21 +164,21 @@ describe.skipIf(ON_EMBEDDED)('serve stops, dies and forgets (server only: other 
     const both = [fitQueueName('rowfold', 'no_longer_served'), fitQueueName('rowfold', 'still_served')];
     expect(await scheduled()).toEqual(both);
     // Longer than forget-after, with both alive: b serves only one fit, but a still serves the other.
-    await new Promise((r) => setTimeout(r, 5000));
+    await new Promise((r) => setTimeout(r, 12_000));
     expect(await scheduled()).toEqual(both);
 
     a.child.kill('SIGTERM');
     expect(await a.exited).toBe(0);
     const stopped = Date.now();
-    await serve.until('the unserved schedule to go', async () => (await scheduled()).length === 1, 30_000);
+    await serve.until('the unserved schedule to go', async () => (await scheduled()).length === 1, 40_000);
     const goneAfter = (Date.now() - stopped) / 1000;
     expect(await scheduled()).toEqual([fitQueueName('rowfold', 'still_served')]);
-    expect(b.log()).toMatch(/rowfold-fit\.rowfold\.no_longer_served: schedule removed: no serve process has served this fit for 3 s/);
+    expect(b.log()).toMatch(/rowfold-fit\.rowfold\.no_longer_served: schedule removed: no serve process has served this fit for 10 s/);
 
     // Served again, it is scheduled again.
     const c = serve.start([dropped, '--db', tdb.url, ...forget]);
     await serve.until('ready', () => /serving 1 fit/.test(c.log()), 90_000);
     expect(await scheduled()).toEqual(both);
-    console.log(`unserved schedule removed ${goneAfter.toFixed(1)} s after its last server stopped (forget after 3 s)`);
+    console.log(`unserved schedule removed ${goneAfter.toFixed(1)} s after its last server stopped (forget after 10 s)`);
   });
 });
