@@ -181,7 +181,7 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
     { timeout: 150_000 },
     async () => {
       const fit = 'split_hang';
-      const specPath = writeSpec({ ...splitSpec, name: fit, split: { partitions: 3, job_timeout_seconds: 6 } });
+      const specPath = writeSpec({ ...splitSpec, name: fit, split: { partitions: 3, job_timeout_seconds: 20 } });
       const a = serve.start([specPath, '--db', tdb.url, '--maintenance-seconds', '1']);
       const b = serve.start([specPath, '--db', tdb.url, '--maintenance-seconds', '1']);
       await serve.until('both servers ready', () => /serving 1 fit/.test(a.log()) && /serving 1 fit/.test(b.log()), 90_000);
