@@ -163,7 +163,7 @@ export async function serveFits(opts: ServeFitsOptions): Promise<ServeSummary> {
   try {
     await lock.query('select pg_advisory_lock($1::bigint)', [REGISTER_LOCK_KEY]);
     await boss.start();
-    registry = await ServeRegistry.open(opts.target.config);
+    registry = await ServeRegistry.open(opts.target.config, opts.log);
     // The heartbeat first: a fit whose schedule is being registered is never taken for stale.
     await registry.heartbeat(fitQueues);
     for (const s of opts.schedules) {

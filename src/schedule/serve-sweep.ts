@@ -2,6 +2,13 @@ import { setTimeout as sleep } from 'node:timers/promises';
 import type PgBoss from 'pg-boss';
 import type { ServeRegistry } from './serve-registry.js';
 
+/**
+ * Milliseconds a claim's process must stay without its presence lock before its job is handed
+ * back: longer than a process takes to reconnect and take the lock again (it tries every half
+ * second), short beside the time a killed worker's job can wait.
+ */
+export const PRESENCE_GRACE_MS = 2000;
+
 /** How often and how {@link sweepServe} sweeps. */
 export interface SweepOptions {
   readonly sweepSeconds: number;
@@ -15,7 +22,8 @@ export interface SweepOptions {
 /**
  * The housekeeping loop of one serve process, every `sweepSeconds` until `stop`: its heartbeat
  * (it is alive and serves `fitQueues`), the jobs of processes that died put back on the queue
- * (or failed when they have no retries left), and the schedules of fits nobody serves removed.
+ * (or failed when they have no retries left; a process counts as dead when its presence lock
+ * is missing on two looks {@link PRESENCE_GRACE_MS} apart), and the schedules of fits nobody serves removed.
  * A failed sweep is logged and the next one tries again.
  */
 export async function sweepServe(boss: PgBoss, registry: ServeRegistry, fitQueues: readonly string[], opts: SweepOptions): Promise<void> {
@@ -27,13 +35,20 @@ export async function sweepServe(boss: PgBoss, registry: ServeRegistry, fitQueue
     if (stop.aborted) break;
     try {
       await registry.heartbeat(fitQueues);
-      for (const claim of await registry.lostClaims()) {
-        const done = await registry.releaseJob(claim.queue, claim.jobId, () =>
-          boss.fail(claim.queue, claim.jobId, { message: `the serve process ${claim.serverId} working it stopped` }),
-        );
-        await registry.dropClaim(claim);
-        if (done !== null) {
-          opts.log(`job ${claim.jobId} of ${claim.queue}: the serve process ${claim.serverId} working it stopped; ${done === 'retry' ? 'back on the queue' : 'failed (no retries left)'}`);
+      const lost = await registry.lostClaims();
+      if (lost.length > 0) {
+        // A presence lock missing for a moment is a process taking it again on a new connection
+        // (the database restarted or ended the old one), not a dead process: look again later.
+        await sleep(PRESENCE_GRACE_MS, undefined, { signal: stop }).catch(() => undefined);
+        if (stop.aborted) break;
+        const still = new Set((await registry.lostClaims()).map((c) => `${c.jobId} ${c.serverId}`));
+        for (const claim of lost.filter((c) => still.has(`${c.jobId} ${c.serverId}`))) {
+          const done = await registry.handBackLost(claim, () =>
+            boss.fail(claim.queue, claim.jobId, { message: `the serve process ${claim.serverId} working it stopped` }),
+          );
+          if (done !== null) {
+            opts.log(`job ${claim.jobId} of ${claim.queue}: the serve process ${claim.serverId} working it stopped; ${done === 'retry' ? 'back on the queue' : 'failed (no retries left)'}`);
+          }
         }
       }
       for (const queue of await registry.unscheduleStale(forget)) {

@@ -119,6 +119,49 @@ describe.skipIf(ON_EMBEDDED)('serve stops, dies and forgets (server only: other 
     console.log(`second SIGTERM: exit after ${exitSeconds.toFixed(1)} s; the job ran again and succeeded ${retriedAfter.toFixed(1)} s after the first signal`);
   });
 
+  it('a presence connection ended by the database is taken again: the running job stays with its worker and no peer hands it back', { timeout: 120_000 }, async () => {
+    const spec = writeSpec(gatedSpec('presence'));
+    const gate = await closeGate();
+    const a = serve.start([spec, '--db', tdb.url]);
+    const b = serve.start([spec, '--db', tdb.url]);
+    await serve.until('both servers ready', () => /serving 1 fit/.test(a.log()) && /serving 1 fit/.test(b.log()), 90_000);
+    const id = await (await queue()).send(fitQueueName('rowfold', 'presence'), { fit: 'presence', schema: 'rowfold' });
+    const holder = await serve.until('the job to start', () => [a, b].find((s) => s.log().includes(`job ${id} started`)));
+    const other = holder === a ? b : a;
+    await serve.until('the run row', async () => (await runsOf('presence')).length === 1);
+
+    // The backend holding the holder's presence lock, as a database restart would end it.
+    const presenceOf = async () =>
+      (
+        await tdb.query<{ pid: number }>(
+          `select l.pid from ${JOBS_SCHEMA}.rowfold_servers s
+             join pg_locks l on l.locktype = 'advisory' and l.granted and l.objsubid = 1
+                            and ((l.classid::bigint << 32) | l.objid::bigint) = s.lock_key
+             join pg_stat_activity a on a.pid = l.pid and a.application_name = 'rowfold serve presence'
+            where s.pid = $1`,
+          [holder.child.pid],
+        )
+      ).rows.map((r) => r.pid);
+    const [before] = await presenceOf();
+    expect(before).toBeDefined();
+    expect((await tdb.query('select pg_terminate_backend($1) as ok', [before])).rows).toEqual([{ ok: true }]);
+    await serve.until('the presence lock taken again', async () => {
+      const now = await presenceOf();
+      return now.length === 1 && now[0] !== before;
+    });
+    expect(holder.log()).toMatch(/presence lock taken again/);
+    // Several of the peer's sweeps (every 0.5 s, each waiting 2 s before handing back), job still running.
+    await new Promise((r) => setTimeout(r, 4000));
+    expect(other.log()).not.toMatch(/working it stopped/);
+    expect(holder.log()).not.toMatch(new RegExp(`job ${id} (succeeded|skipped|failed)`));
+
+    await gate.open();
+    await serve.until('the job to succeed on its worker', () => new RegExp(`job ${id} succeeded`).test(holder.log()), 30_000);
+    expect(other.log()).not.toMatch(new RegExp(`job ${id} `));
+    expect((await tdb.query(`select state, retry_count from ${JOBS_SCHEMA}.job where id = $1`, [id])).rows).toEqual([{ state: 'completed', retry_count: 0 }]);
+    expect((await runsOf('presence')).map((r) => r.status)).toEqual(['succeeded']);
+  });
+
   it('a server killed during a run and started again: the run left running is marked failed with no results, and the job runs again', { timeout: 120_000 }, async () => {
     const spec = writeSpec(gatedSpec('restart'));
     const gate = await closeGate();
