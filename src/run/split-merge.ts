@@ -30,7 +30,9 @@ export interface MergeOutcome {
  * every partition are merged segment by segment (in partition order), solved as `rowfold fit`
  * would (with the double-double pass `accuracy` may ask for, over every partition), and the
  * models, the run's counts and the removal of the partials are written in one transaction that
- * first locks the run row and checks it is still running. A retried merge of a published run
+ * first locks the run row and checks it is still running. The partials are read before that
+ * transaction, once every partition is written: a partition is written once and never changed,
+ * so nothing read can change before the publish. A retried merge of a published run
  * changes nothing. A merge that fails for the last time marks the run failed and removes its
  * partials.
  *
@@ -39,57 +41,64 @@ export interface MergeOutcome {
  * await mergeSplitRun({ target, schema: 'rowfold', runId, final: false });
  */
 export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
-  const probe = openServerDatabase(req.target, 1);
-  const first = createStoreDb(probe.dialect());
-  const run = await loadSplitRun(first, req.schema, req.runId).finally(async () => {
-    await first.destroy();
-    await probe.close();
-  });
-  if (run === null) return { outcome: 'no-such-run', rowsRead: 0, segments: 0 };
-  if (run.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
-  if (run.status !== 'running') return { outcome: 'run-ended', rowsRead: 0, segments: 0 };
-
-  // The double-double pass, when one is due, reads the partitions over a few connections.
-  const database = openServerDatabase(req.target, Math.min(run.partitions, 4) + 1);
-  const store = createStoreDb(database.dialect());
+  // The store (the run row, the lease, the partials, the publishing transaction) has a
+  // connection of its own: the double-double pass opens every partition query at once on the
+  // reading pool, and a lease extension queued behind those could wait until the lease ran out.
+  const storeDatabase = openServerDatabase(req.target, 1);
+  const store = createStoreDb(storeDatabase.dialect());
   try {
-    return await keepSplitRunAlive(store, req.schema, req.runId, async () => {
-      try {
-        const partials = await loadPartialFactors(store, req.schema, req.runId);
-        const missing = run.partitions - partials.partitions.length;
-        if (missing > 0) throw new Error(`run ${req.runId}: ${missing} of ${run.partitions} partitions are not written yet`);
-        const spec = splitRunSpec(run);
-        const plan = designPlanFromJson(run.plan);
-        const { firstPlan, firstOptions } = passesOf(spec, plan, {}, null);
-        const shape = { terms: firstPlan.columns, response: spec.response, weight: spec.weight ?? undefined, intercept: spec.intercept };
-        const fit = new SegmentedFit(shape, firstPlan.keyNames, firstOptions);
-        for (const f of partials.factors) fit.ensure(f.key).acc.mergeState(f.state);
-        const counts = partials.partitions.map((p) => p.counts as DesignReadCounts);
-        const out = await readAndSolve(database, spec, plan, { specPath: spec.origin }, null, { fit, counts });
-        const models = out.models.map(
-          (m): ModelRecord => ({ segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes }),
-        );
-        const result = { rowsRead: out.rowsRead, rowsUsed: out.rowsUsed, rowsSkipped: out.rowsSkipped, seconds: out.seconds, models };
-        await store.transaction().execute(async (trx) => {
-          await writeRunResult(trx, req.schema, req.runId, result);
-          await deletePartials(trx, req.schema, req.runId);
-        });
-        return { outcome: 'published', rowsRead: out.rowsRead, segments: models.length };
-      } catch (e) {
-        // Another attempt of this merge (an expired job retried while this one ran) may have
-        // published, and removed the partials, in the meantime: then this one is done.
-        const now = await loadSplitRun(store, req.schema, req.runId);
-        if (now?.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
-        if (now !== null && now.status !== 'running') return { outcome: 'run-ended', rowsRead: 0, segments: 0 };
-        if (req.final) {
-          await failRun(store, req.schema, req.runId, e).catch(() => undefined);
-          await deletePartials(store, req.schema, req.runId).catch(() => undefined);
+    const run = await loadSplitRun(store, req.schema, req.runId);
+    if (run === null) return { outcome: 'no-such-run', rowsRead: 0, segments: 0 };
+    if (run.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
+    if (run.status !== 'running') return { outcome: 'run-ended', rowsRead: 0, segments: 0 };
+    // The double-double pass, when one is due, reads the partitions over a few connections.
+    const database = openServerDatabase(req.target, Math.min(run.partitions, 4) + 1);
+    try {
+      return await keepSplitRunAlive(store, req.schema, req.runId, async () => {
+        try {
+          const partials = await loadPartialFactors(store, req.schema, req.runId);
+          const written = new Set(partials.partitions.map((p) => p.partition));
+          const missing = Array.from({ length: run.partitions }, (_, i) => i).filter((i) => !written.has(i));
+          if (missing.length > 0) {
+            throw new Error(
+              `run ${req.runId}: ${missing.length} of ${run.partitions} partitions are not written yet (partition${missing.length === 1 ? '' : 's'} ${missing.join(', ')}); the merge job is retried`,
+            );
+          }
+          const spec = splitRunSpec(run);
+          const plan = designPlanFromJson(run.plan);
+          const { firstPlan, firstOptions } = passesOf(spec, plan, {}, null);
+          const shape = { terms: firstPlan.columns, response: spec.response, weight: spec.weight ?? undefined, intercept: spec.intercept };
+          const fit = new SegmentedFit(shape, firstPlan.keyNames, firstOptions);
+          for (const f of partials.factors) fit.ensure(f.key).acc.mergeState(f.state);
+          const counts = partials.partitions.map((p) => p.counts as DesignReadCounts);
+          const out = await readAndSolve(database, spec, plan, { specPath: spec.origin }, null, { fit, counts });
+          const models = out.models.map(
+            (m): ModelRecord => ({ segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes }),
+          );
+          const result = { rowsRead: out.rowsRead, rowsUsed: out.rowsUsed, rowsSkipped: out.rowsSkipped, seconds: out.seconds, models };
+          await store.transaction().execute(async (trx) => {
+            await writeRunResult(trx, req.schema, req.runId, result);
+            await deletePartials(trx, req.schema, req.runId);
+          });
+          return { outcome: 'published', rowsRead: out.rowsRead, segments: models.length };
+        } catch (e) {
+          // Another attempt of this merge (an expired job retried while this one ran) may have
+          // published, and removed the partials, in the meantime: then this one is done.
+          const now = await loadSplitRun(store, req.schema, req.runId);
+          if (now?.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
+          if (now !== null && now.status !== 'running') return { outcome: 'run-ended', rowsRead: 0, segments: 0 };
+          if (req.final) {
+            await failRun(store, req.schema, req.runId, e).catch(() => undefined);
+            await deletePartials(store, req.schema, req.runId).catch(() => undefined);
+          }
+          throw e;
         }
-        throw e;
-      }
-    });
+      });
+    } finally {
+      await database.close();
+    }
   } finally {
     await store.destroy();
-    await database.close();
+    await storeDatabase.close();
   }
 }

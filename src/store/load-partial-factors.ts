@@ -15,8 +15,9 @@ export interface SplitPartials {
 }
 
 /**
- * Reads what the partition jobs of a split run wrote. Run it in the transaction that merges
- * and publishes, after locking the run row, so no partition is written in between.
+ * Reads what the partition jobs of a split run wrote. The merge reads it before its publishing
+ * transaction, and merges only when every partition is there: a partition is written once and
+ * never changed, so what was read still holds when the transaction locks the run row.
  *
  * @example
  * const partials = await loadPartialFactors(trx, 'rowfold', runId);

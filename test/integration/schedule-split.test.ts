@@ -232,7 +232,7 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
     const after = await stored();
     expect(await job(0)).toMatchObject({ outcome: 'already-written', rowsRead: 0, complete: false });
     expect(await stored()).toEqual(after);
-    await expect(mergeSplitRun({ target, schema: 'rowfold', runId: start.runId, final: false })).rejects.toThrow(/2 of 3 partitions are not written yet/);
+    await expect(mergeSplitRun({ target, schema: 'rowfold', runId: start.runId, final: false })).rejects.toThrow(/2 of 3 partitions are not written yet \(partitions 1, 2\)/);
     expect((await tdb.query(`select status from rowfold.runs where run_id = $1`, [start.runId])).rows).toEqual([{ status: 'running' }]);
     await expect(job(3)).rejects.toThrow(/partitions 0 to 2; there is no partition 3/);
 
