@@ -304,7 +304,13 @@ export class Accumulator {
     return this.label === undefined ? '' : ` in segment ${this.label}`;
   }
 
-  private check(block: RowBlock, from: number, to: number): void {
+  /**
+   * Checks rows `from … to-1` as {@link fold} does before folding them (finite values, a
+   * finite non-negative weight), for a caller that holds rows back to fold them later.
+   *
+   * @throws FitInputError naming the column and segment of the first bad value.
+   */
+  check(block: RowBlock, from: number, to: number): void {
     const width = block.width;
     const v = block.values;
     const stride = this.pairs ? 2 : 1;

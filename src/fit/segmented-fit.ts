@@ -42,6 +42,13 @@ export class SegmentedFit {
   private byId: (SegmentState | null | undefined)[] = [];
   private order = new Int32Array(0);
   private reordered = new Float64Array(0);
+  /**
+   * Rows held back per segment: when segments interleave (many segments, rows in no
+   * particular order) a block brings each segment a row or two, and one kernel call per row
+   * costs more than the row's arithmetic. Short runs are checked at once, copied here, and
+   * folded a few dozen at a time; {@link states} and {@link merge} fold what is left.
+   */
+  private readonly held = new Map<SegmentState, { values: Float64Array; rows: number }>();
 
   constructor(shape: DesignShape, keyNames: readonly string[] = [], options: SegmentedFitOptions = {}) {
     this.shape = shape;
@@ -54,8 +61,9 @@ export class SegmentedFit {
     return this.segments.size;
   }
 
-  /** Segments in order of their key text. */
+  /** Segments in order of their key text (rows held back are folded first). */
   states(): SegmentState[] {
+    this.flush();
     return [...this.segments.values()].sort((a, b) => (a.keyText < b.keyText ? -1 : a.keyText > b.keyText ? 1 : 0));
   }
 
@@ -73,7 +81,8 @@ export class SegmentedFit {
       let start = 0;
       for (let i = 1; i <= n; i++) {
         if (i === n || keys[i] !== keys[start]) {
-          this.segment(keys[start]!, keyTable)?.acc.fold(block, start, i);
+          const s = this.segment(keys[start]!, keyTable);
+          if (s !== null) this.foldRun(s, block, start, i);
           start = i;
         }
       }
@@ -88,20 +97,63 @@ export class SegmentedFit {
     if (this.order.length < n) this.order = new Int32Array(n);
     if (this.reordered.length < n * width) this.reordered = new Float64Array(n * width);
     const starts = counts.slice(0, ids);
+    const src = block.values;
+    const dst = this.reordered;
     for (let i = 0; i < n; i++) {
-      const pos = starts[keys[i]!]!++;
-      this.reordered.set(block.values.subarray(i * width, (i + 1) * width), pos * width);
+      const to = starts[keys[i]!]!++ * width;
+      const from = i * width;
+      for (let j = 0; j < width; j++) dst[to + j] = src[from + j]!;
     }
     const sorted: RowBlock = { rows: n, width, values: this.reordered };
     for (let k = 0; k < ids; k++) {
       const from = counts[k]!;
       const to = counts[k + 1]!;
-      if (to > from) this.segment(k, keyTable)?.acc.fold(sorted, from, to);
+      if (to > from) {
+        const s = this.segment(k, keyTable);
+        if (s !== null) this.foldRun(s, sorted, from, to);
+      }
     }
+  }
+
+  /** Folds a run of one segment's rows, or holds it back when it is short (see {@link held}). */
+  private foldRun(s: SegmentState, block: RowBlock, from: number, to: number): void {
+    const width = block.width;
+    const cap = Math.max(4, Math.min(32, Math.floor(2048 / width)));
+    if (to - from >= cap || width !== s.acc.blockWidth) {
+      s.acc.fold(block, from, to);
+      return;
+    }
+    s.acc.check(block, from, to);
+    let h = this.held.get(s);
+    if (h === undefined) {
+      h = { values: new Float64Array(cap * width), rows: 0 };
+      this.held.set(s, h);
+    }
+    const src = block.values;
+    const dst = h.values;
+    for (let row = from; row < to; row++) {
+      const a = row * width;
+      const b = h.rows * width;
+      for (let j = 0; j < width; j++) dst[b + j] = src[a + j]!;
+      if (++h.rows === cap) {
+        s.acc.fold({ rows: cap, width, values: h.values });
+        h.rows = 0;
+      }
+    }
+  }
+
+  /** Folds the rows held back. */
+  private flush(): void {
+    for (const [s, h] of this.held) {
+      if (h.rows > 0) s.acc.fold({ rows: h.rows, width: s.acc.blockWidth, values: h.values });
+    }
+    this.held.clear();
   }
 
   /** Merges another instance (another partition) into this one, segment by segment. */
   merge(other: SegmentedFit): void {
+    this.flush();
+    other.flush();
     for (const s of other.segments.values()) {
       const mine = this.segments.get(s.keyText);
       if (mine) mine.acc.merge(s.acc);

@@ -157,7 +157,10 @@ export class CopyBinaryDecoder {
   readonly #keys: Int32Array;
   #blockFill = 0;
 
-  readonly #keyIds = new Map<string, number>();
+  /** Key ids by a 32-bit hash of the key's raw bytes; collisions are told apart by the bytes. */
+  readonly #keyIds = new Map<number, number | number[]>();
+  /** Per key id, its raw bytes (length words and bodies). */
+  readonly #keyRaw: Uint8Array[] = [];
   readonly #keyTable: (readonly (string | null)[])[] = [];
   // Raw bytes of the previous emitted row's key fields, so runs of one segment skip the Map.
   #lastKey: Buffer = Buffer.alloc(0);
@@ -619,21 +622,42 @@ export class CopyBinaryDecoder {
    */
   #keyId(view: DataView, bytes: Buffer, start: number, end: number): number {
     const length = end - start;
-    if (length === this.#lastKeyLength && this.#lastKey.compare(bytes, start, end, 0, length) === 0) {
-      return this.#lastKeyId;
+    if (length === this.#lastKeyLength && sameBytes(this.#lastKey, 0, bytes, start, length)) return this.#lastKeyId;
+    // FNV-1a over the raw bytes: no string is made per row (rows of interleaved segments
+    // change key on almost every row).
+    let h = 0x811c9dc5;
+    for (let i = start; i < end; i++) h = Math.imul(h ^ bytes[i]!, 0x01000193);
+    h >>>= 0;
+    let id = -1;
+    const found = this.#keyIds.get(h);
+    if (typeof found === 'number') {
+      if (this.#isKey(found, bytes, start, length)) id = found;
+    } else if (found !== undefined) {
+      for (const candidate of found) {
+        if (this.#isKey(candidate, bytes, start, length)) {
+          id = candidate;
+          break;
+        }
+      }
     }
-    const raw = bytes.toString('latin1', start, end);
-    let id = this.#keyIds.get(raw);
-    if (id === undefined) {
+    if (id < 0) {
       id = this.#keyTable.length;
       this.#keyTable.push(this.#decodeKey(view, bytes, start));
-      this.#keyIds.set(raw, id);
+      this.#keyRaw.push(Uint8Array.prototype.slice.call(bytes, start, end));
+      if (found === undefined) this.#keyIds.set(h, id);
+      else if (typeof found === 'number') this.#keyIds.set(h, [found, id]);
+      else found.push(id);
     }
     if (this.#lastKey.byteLength < length) this.#lastKey = Buffer.alloc(Math.max(length, 2 * this.#lastKey.byteLength));
     bytes.copy(this.#lastKey, 0, start, end);
     this.#lastKeyLength = length;
     this.#lastKeyId = id;
     return id;
+  }
+
+  #isKey(id: number, bytes: Uint8Array, start: number, length: number): boolean {
+    const raw = this.#keyRaw[id]!;
+    return raw.length === length && sameBytes(raw, 0, bytes, start, length);
   }
 
   #decodeKey(view: DataView, bytes: Buffer, start: number): (string | null)[] {
@@ -667,4 +691,10 @@ export class CopyBinaryDecoder {
     this.#rowsEmitted += rows;
     onBlock({ rows, width: this.#valueCount * this.#stride, values: this.#values, keys: this.#keys });
   }
+}
+
+/** Whether a[aStart … aStart+length) equals b[bStart … bStart+length). */
+function sameBytes(a: Uint8Array, aStart: number, b: Uint8Array, bStart: number, length: number): boolean {
+  for (let i = 0; i < length; i++) if (a[aStart + i] !== b[bStart + i]) return false;
+  return true;
 }
