@@ -5,19 +5,6 @@ import { join } from 'node:path';
 import pg from 'pg';
 import { runFit } from '../src/run/run-fit.js';
 
-/** Figures of one end-to-end workload. */
-export interface EndToEndFigure {
-  readonly workload: string;
-  readonly rows: number;
-  readonly terms: number;
-  readonly parallel: number;
-  /** psql running the same design query as COPY … TO STDOUT (FORMAT binary) into /dev/null. */
-  readonly copyFloorSeconds: number;
-  readonly fitSeconds: number;
-  readonly ratio: number;
-  readonly peakRssMb: number;
-}
-
 const HOST = process.env['PGHOST'] ?? '127.0.0.1';
 const USER = process.env['PGUSER'] ?? 'postgres';
 const DB = 'rowfold_bench';
@@ -59,50 +46,6 @@ async function ensureTable(rows: number, terms: number, signal = false): Promise
 function median(xs: number[]): number {
   const s = [...xs].sort((a, b) => a - b);
   return s[Math.floor(s.length / 2)]!;
-}
-
-/**
- * Fit time of `rows × terms` from PostgreSQL against the floor measured in the same run:
- * psql streaming the very design query as binary COPY into /dev/null.
- */
-export async function benchEndToEnd(rows: number, terms: number, parallel: number, repeats = 3): Promise<EndToEndFigure> {
-  const table = await ensureTable(rows, terms);
-  const dir = mkdtempSync(join(tmpdir(), 'rowfold-bench-'));
-  const spec = join(dir, 'bench.yaml');
-  writeFileSync(
-    spec,
-    `name: bench_${table}\nsource: ${table}\nresponse: y\nterms: [${Array.from({ length: terms }, (_, j) => `x${j + 1}`).join(', ')}]\n`,
-  );
-  const dry = await runFit({ specPath: spec, db: url(DB), dryRun: true });
-  const query = dry.plan.queries[0]!.toBound().text;
-  const floor: number[] = [];
-  const fit: number[] = [];
-  for (let r = 0; r < repeats; r++) {
-    const t0 = performance.now();
-    const p = spawnSync('psql', ['-X', '-q', '-d', url(DB), '-c', `COPY (${query}) TO STDOUT (FORMAT binary)`], {
-      stdio: ['ignore', 'ignore', 'inherit'],
-    });
-    if (p.status !== 0) throw new Error('psql COPY failed');
-    floor.push((performance.now() - t0) / 1000);
-    const t1 = performance.now();
-    // One pass, as the floor is one pass: y here is pure noise, so every slope is ~0 and has
-    // few correct relative digits; accuracy auto would add a double-double pass for them
-    // (measured separately below, on data whose coefficients are determined).
-    await runFit({ specPath: spec, db: url(DB), parallel, accuracy: 'fast' });
-    fit.push((performance.now() - t1) / 1000);
-  }
-  const f = median(floor);
-  const s = median(fit);
-  return {
-    workload: `${table} QR`,
-    rows,
-    terms,
-    parallel,
-    copyFloorSeconds: f,
-    fitSeconds: s,
-    ratio: s / f,
-    peakRssMb: process.resourceUsage().maxRSS / 1024,
-  };
 }
 
 /** Figures of `accuracy: auto` against `fast` on well-conditioned data. */

@@ -1,9 +1,11 @@
 import { writeFileSync } from 'node:fs';
 import os from 'node:os';
-import { benchAccuracy, benchEndToEnd } from './e2e-bench.js';
-import type { AccuracyFigure, EndToEndFigure } from './e2e-bench.js';
+import { benchAccuracy } from './e2e-bench.js';
+import type { AccuracyFigure } from './e2e-bench.js';
 import { benchKernels, benchRawKernels } from './kernel-bench.js';
 import type { KernelFigure } from './kernel-bench.js';
+import { measureWorkload, WORKLOADS } from './workloads.js';
+import type { WorkloadFigure } from './workloads.js';
 
 // `npm run bench`: prints figures and writes bench/results.json. Targets live here, not
 // in timed unit tests: the plain-JavaScript fold must reach 2.9 GFLOP/s at p = 200 (the
@@ -29,19 +31,22 @@ for (const k of raw) {
 }
 const fold200 = kernels.find((k) => k.kernel === 'fold' && k.p === 200)!;
 console.log(`fold at p = 200: ${fold200.gflops.toFixed(2)} GFLOP/s (target ≥ 2.9: ratio ${(fold200.gflops / 2.9).toFixed(2)})`);
-const e2e: EndToEndFigure[] = [];
-console.log('\nend to end from PostgreSQL (medians of 3; floor: psql COPY of the same design query to /dev/null)');
-for (const parallel of [1, 2]) {
+const workloads: WorkloadFigure[] = [];
+console.log('\nend to end from PostgreSQL (medians of 3; floors measured in the same run)');
+console.log('workload              rows        terms  conns  psql COPY  receive  fit     fit/COPY (target)  fit/receive  peak RSS  fit CPU  server CPU  GFLOP/s');
+const only = process.env['ROWFOLD_BENCH_ONLY'];
+for (const w of WORKLOADS.filter((x) => only === undefined || x.name.includes(only))) {
   try {
-    const e = await benchEndToEnd(1_000_000, 50, parallel);
-    e2e.push(e);
+    const f = await measureWorkload(w);
+    workloads.push(f);
     console.log(
-      `${e.workload} · ${e.rows.toLocaleString('en-US')} rows × ${e.terms} terms · ${parallel} connection(s): ` +
-        `fit ${e.fitSeconds.toFixed(2)} s, COPY floor ${e.copyFloorSeconds.toFixed(2)} s, ratio ${e.ratio.toFixed(2)}, peak RSS ${e.peakRssMb.toFixed(0)} MB`,
+      `${f.name.padEnd(20)}  ${f.rows.toLocaleString('en-US').padStart(10)}  ${String(f.terms).padStart(5)}  ${String(f.parallel).padStart(5)}  ` +
+        `${f.copyFloorSeconds.toFixed(2).padStart(8)}s  ${f.receiveFloorSeconds.toFixed(2).padStart(6)}s  ${f.fitSeconds.toFixed(2).padStart(5)}s  ` +
+        `${f.ratioToCopy.toFixed(2).padStart(8)} (≤ ${f.target})  ${f.ratioToReceive.toFixed(2).padStart(11)}  ${f.peakRssMb.toFixed(0).padStart(5)} MB  ` +
+        `${f.fitCpuSeconds.toFixed(1).padStart(6)}s  ${f.serverCpuSeconds === null ? '     n/a' : `${f.serverCpuSeconds.toFixed(1).padStart(8)}s`}  ${f.gflops.toFixed(1).padStart(6)}`,
     );
   } catch (err) {
-    console.log(`end-to-end case skipped: ${err instanceof Error ? err.message : String(err)}`);
-    break;
+    console.log(`${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
   }
 }
 let accuracy: AccuracyFigure | null = null;
@@ -57,5 +62,5 @@ try {
 }
 writeFileSync(
   new URL('../../bench/results.json', import.meta.url),
-  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, e2e, accuracy }, null, 2) + '\n',
+  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, workloads, accuracy }, null, 2) + '\n',
 );

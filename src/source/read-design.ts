@@ -88,6 +88,16 @@ const SESSION_SETUP = "SET client_encoding TO 'UTF8'; SET extra_float_digits TO 
 const SERVER_ALLOCATOR_WARMUP = "SELECT length(repeat('x', 4000000))";
 
 /**
+ * Prepares a server session for a design read: the session settings (see SESSION_SETUP)
+ * and the allocator warm-up (see SERVER_ALLOCATOR_WARMUP). readDesign calls it; so does
+ * the benchmark's receive-only floor, so that both read under the same conditions.
+ */
+export async function prepareReadSession(client: pg.ClientBase): Promise<void> {
+  await client.query(SESSION_SETUP);
+  await client.query(SERVER_ALLOCATOR_WARMUP);
+}
+
+/**
  * Streams the rows of a design query into `sink` as {@link DecodedBlock}s: key ids into a
  * key table plus float8 values row-major. Rows with a NULL value are skipped and counted per
  * column; NaN/±Infinity are passed on or skipped and counted, as `req.nonFinite` says. Both
@@ -113,11 +123,8 @@ const SERVER_ALLOCATOR_WARMUP = "SELECT length(repeat('x', 4000000))";
 export function readDesign(client: pg.ClientBase, req: DesignReadRequest, sink: BlockSink): Promise<DesignReadCounts> {
   return readDesignFrom(
     {
-      exec: async (sql) => {
-        await client.query(sql);
-        // exec runs the session setup, once per read.
-        await client.query(SERVER_ALLOCATOR_WARMUP);
-      },
+      // exec runs the session setup, once per read.
+      exec: () => prepareReadSession(client),
       copyChunks: (query, signal) => streamCopyChunks(client, query, signal),
       rowArrays: (query, signal) => streamRowArrays(client, query, signal),
     },

@@ -1,0 +1,161 @@
+import { spawnSync } from 'node:child_process';
+import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import pg from 'pg';
+import { runFit } from '../src/run/run-fit.js';
+
+/** One end-to-end workload of the speed targets. */
+export interface Workload {
+  readonly name: string;
+  readonly table: string;
+  readonly rows: number;
+  readonly terms: number;
+  readonly segments: number;
+  readonly method: 'qr' | 'normal';
+  readonly parallel: number;
+  /** Target for fit time / psql binary COPY into /dev/null. */
+  readonly target: number;
+}
+
+/** What was measured for a workload (medians of the repeats; floors measured in the same run). */
+export interface WorkloadFigure extends Workload {
+  readonly copyFloorSeconds: number;
+  readonly receiveFloorSeconds: number;
+  readonly fitSeconds: number;
+  readonly ratioToCopy: number;
+  readonly ratioToReceive: number;
+  readonly peakRssMb: number;
+  /** Client CPU of the fit process (user + system, all threads), seconds. */
+  readonly fitCpuSeconds: number;
+  /** CPU of the server's backends during the fit (null where the postmaster is not readable). */
+  readonly serverCpuSeconds: number | null;
+  /** Kernel flops of the fit (QR 2·m·n², XᵀX m·n·(n+1), n the factor order) over fit seconds. */
+  readonly gflops: number;
+}
+
+/** The workloads of the speed targets (issue 6). */
+export const WORKLOADS: readonly Workload[] = [
+  { name: 'T200 QR', table: 't1000000x200', rows: 1_000_000, terms: 200, segments: 1, method: 'qr', parallel: 1, target: 0.65 },
+  { name: 'T20 QR', table: 't10000000x20', rows: 10_000_000, terms: 20, segments: 1, method: 'qr', parallel: 2, target: 0.65 },
+  { name: '10,000 segments QR', table: 's10000x1000x10', rows: 10_000_000, terms: 10, segments: 10_000, method: 'qr', parallel: 2, target: 0.8 },
+  { name: 'T200 XᵀX', table: 't1000000x200', rows: 1_000_000, terms: 200, segments: 1, method: 'normal', parallel: 2, target: 0.55 },
+];
+
+const HOST = process.env['PGHOST'] ?? '127.0.0.1';
+const USER = process.env['PGUSER'] ?? 'postgres';
+const DB = 'rowfold_bench';
+
+export function benchUrl(db = DB): string {
+  return `postgres://${encodeURIComponent(USER)}@${HOST}:${process.env['PGPORT'] ?? 5432}/${db}`;
+}
+
+/** Creates the bench database and a workload's table when missing (random uniform columns). */
+export async function ensureWorkloadTable(w: Workload): Promise<void> {
+  const admin = new pg.Client({ connectionString: benchUrl('postgres') });
+  await admin.connect();
+  const exists = await admin.query('select 1 from pg_database where datname = $1', [DB]);
+  if (exists.rowCount === 0) await admin.query(`create database ${DB}`);
+  await admin.end();
+  const c = new pg.Client({ connectionString: benchUrl() });
+  await c.connect();
+  try {
+    const have = await c.query('select 1 from pg_class where relname = $1', [w.table]);
+    if (have.rowCount !== 0) return;
+    console.log(`creating ${w.table} (${w.rows.toLocaleString('en-US')} rows × ${w.terms} terms) …`);
+    const cols = Array.from({ length: w.terms }, (_, j) => `random() as x${j + 1}`).join(', ');
+    const seg = w.segments > 1 ? `g % ${w.segments} as s, ` : '';
+    await c.query(`create table ${w.table} as select ${seg}${cols}, random() as y from generate_series(1, ${w.rows}) g`);
+    await c.query(`vacuum analyze ${w.table}`);
+  } finally {
+    await c.end();
+  }
+}
+
+function median(xs: number[]): number {
+  const s = [...xs].sort((a, b) => a - b);
+  return s[Math.floor(s.length / 2)]!;
+}
+
+/** CPU seconds of the server's exited backends so far (the postmaster's children), or null. */
+function serverChildCpu(): number | null {
+  for (const file of ['/var/run/postgresql/15-main.pid', '/var/lib/postgresql/15/main/postmaster.pid']) {
+    try {
+      if (!existsSync(file)) continue;
+      const pid = readFileSync(file, 'utf8').split('\n')[0]!.trim();
+      const fields = readFileSync(`/proc/${pid}/stat`, 'utf8').split(') ')[1]!.split(' ');
+      // cutime and cstime: fields 16 and 17 of /proc/PID/stat, in clock ticks (100 per second).
+      return (Number(fields[13]) + Number(fields[14])) / 100;
+    } catch {
+      // not readable here
+    }
+  }
+  return null;
+}
+
+/** Runs a command under /usr/bin/time: wall seconds, peak RSS (MB), user + system CPU. */
+function timed(cmd: string, args: string[]): { seconds: number; rssMb: number; cpu: number; stdout: string } {
+  const t0 = performance.now();
+  const p = spawnSync('/usr/bin/time', ['-f', 'ROWFOLD_TIME %M %U %S', cmd, ...args], { encoding: 'utf8', maxBuffer: 1 << 20 });
+  const seconds = (performance.now() - t0) / 1000;
+  if (p.status !== 0) throw new Error(`${cmd} ${args.slice(0, 2).join(' ')} failed: ${p.stderr.slice(-500)}`);
+  const line = p.stderr.split('\n').find((l) => l.startsWith('ROWFOLD_TIME '));
+  const [, rss, user, sys] = (line ?? 'ROWFOLD_TIME 0 0 0').split(' ');
+  return { seconds, rssMb: Number(rss) / 1024, cpu: Number(user) + Number(sys), stdout: p.stdout };
+}
+
+/**
+ * Measures a workload `repeats` times, each time: psql streaming the fit's design query as
+ * binary COPY into /dev/null (one connection, as the issue's anchor), a process that only
+ * receives the same bytes over the same connections, and the fit in a process of its own.
+ */
+export async function measureWorkload(w: Workload, repeats = 3): Promise<WorkloadFigure> {
+  await ensureWorkloadTable(w);
+  const dir = mkdtempSync(join(tmpdir(), 'rowfold-bench-'));
+  const spec = join(dir, 'workload.yaml');
+  const terms = Array.from({ length: w.terms }, (_, j) => `x${j + 1}`).join(', ');
+  writeFileSync(
+    spec,
+    `name: bench_${w.table}_${w.method}\nsource: ${w.table}\nresponse: y\nterms: [${terms}]\nmethod: ${w.method}\n` +
+      (w.segments > 1 ? 'segment_by: [s]\n' : ''),
+  );
+  const dry = await runFit({ specPath: spec, db: benchUrl(), dryRun: true });
+  const query = dry.plan.queries[0]!.toBound().text;
+  const dist = new URL('.', import.meta.url);
+  const copy: number[] = [];
+  const receive: number[] = [];
+  const fit: number[] = [];
+  const rss: number[] = [];
+  const cpu: number[] = [];
+  const server: number[] = [];
+  for (let r = 0; r < repeats; r++) {
+    copy.push(timed('psql', ['-X', '-q', '-o', '/dev/null', '-d', benchUrl(), '-c', `COPY (${query}) TO STDOUT (FORMAT binary)`]).seconds);
+    receive.push(timed(process.execPath, [new URL('receive-only.js', dist).pathname, spec, benchUrl(), String(w.parallel)]).seconds);
+    const s0 = serverChildCpu();
+    const f = timed(process.execPath, [new URL('fit-once.js', dist).pathname, spec, benchUrl(), String(w.parallel)]);
+    const s1 = serverChildCpu();
+    const out = JSON.parse(f.stdout) as { seconds: number; rows: number };
+    if (out.rows !== w.rows) throw new Error(`${w.name}: the fit read ${out.rows} rows, expected ${w.rows}`);
+    fit.push(f.seconds);
+    rss.push(f.rssMb);
+    cpu.push(f.cpu);
+    if (s0 !== null && s1 !== null) server.push(s1 - s0);
+  }
+  const n = w.terms + 2;
+  const flops = w.method === 'qr' ? 2 * w.rows * n * n : w.rows * n * (n + 1);
+  const fitSeconds = median(fit);
+  const copyFloorSeconds = median(copy);
+  const receiveFloorSeconds = median(receive);
+  return {
+    ...w,
+    copyFloorSeconds,
+    receiveFloorSeconds,
+    fitSeconds,
+    ratioToCopy: fitSeconds / copyFloorSeconds,
+    ratioToReceive: fitSeconds / receiveFloorSeconds,
+    peakRssMb: Math.max(...rss),
+    fitCpuSeconds: median(cpu),
+    serverCpuSeconds: server.length === 0 ? null : median(server),
+    gflops: flops / fitSeconds / 1e9,
+  };
+}
