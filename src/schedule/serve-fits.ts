@@ -299,14 +299,19 @@ function aborted(signal: AbortSignal): Promise<void> {
   return new Promise((resolve) => (signal.aborted ? resolve() : signal.addEventListener('abort', () => resolve(), { once: true })));
 }
 
-/** Drops every running job: its undo hooks run (a few seconds at most), then it goes back on the queue. */
+/**
+ * Drops every running job: its undo hooks run to their end, then it goes back on the queue. A job
+ * is never handed back while its undo (failing the run, letting go of the fit's lock) may still
+ * be under way; should an undo hang, the process exits after a bound (serve's exit guard) with
+ * the job unreleased, and peers hand it back once its presence lock is gone.
+ */
 async function dropAll(boss: PgBoss, registry: ServeRegistry, active: Map<string, ActiveJob>, opts: ServeFitsOptions, counts: Counts): Promise<void> {
   await Promise.all(
     [...active.values()].map(async (entry) => {
       entry.dropped = true;
       // Last registered, first undone (a run is failed before the lock it ran under is let go).
       for (const undo of [...entry.undo].reverse()) {
-        await Promise.race([undo(), sleep(5000)]).catch((e: unknown) =>
+        await undo().catch((e: unknown) =>
           opts.log(`job ${entry.id}: cannot undo: ${e instanceof Error ? e.message : String(e)}`),
         );
       }
