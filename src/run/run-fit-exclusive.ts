@@ -76,12 +76,24 @@ export interface FitLockHooks {
 /**
  * Ends the session that holds a fit's lock (`pg_terminate_backend`), which releases the lock at
  * once: for a process that drops a run it cannot wait for (serve stopping at once), so that the
- * run's job can be taken by another worker without finding the fit busy.
+ * run's job can be taken by another worker without finding the fit busy. Only backend
+ * `backendPid` is ended, and only while it still holds the lock of fit `schema`.`name`: a
+ * backend id can be reused by another session once the run's own has ended. Returns whether a
+ * backend was ended.
  */
-export async function breakFitLock(target: ConnectionTarget, backendPid: number): Promise<void> {
+export async function breakFitLock(target: ConnectionTarget, backendPid: number, schema: string, name: string): Promise<boolean> {
   const db = openServerDatabase(target, 1);
   try {
-    await db.withSession((s) => s.query('select pg_terminate_backend($1)', [backendPid]));
+    const r = await db.withSession((s) =>
+      s.query(
+        `select pg_terminate_backend(l.pid) from pg_locks l
+          where l.pid = $1 and l.locktype = 'advisory' and l.granted and l.objsubid = 1
+            and l.database = (select oid from pg_database where datname = current_database())
+            and ((l.classid::bigint << 32) | l.objid::bigint) = $2::bigint`,
+        [backendPid, fitLockKey(schema, name)],
+      ),
+    );
+    return r.rows.length > 0 && r.rows[0]?.[0] === true;
   } finally {
     await db.close();
   }

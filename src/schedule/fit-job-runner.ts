@@ -40,7 +40,7 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
     const { spec, specPath } = job.schedule;
     // Undone last first: the run is marked failed, then its lock is let go, then the job goes back.
     const dropRun = (runId: number) => job.onDrop(() => failRunAndPartials(opts.target, spec.schema, runId, new Error(DROPPED_RUN_MESSAGE)).then(() => undefined));
-    const dropLock = (backendPid: number) => job.onDrop(() => breakFitLock(opts.target, backendPid));
+    const dropLock = (backendPid: number) => job.onDrop(() => breakFitLock(opts.target, backendPid, spec.schema, spec.name).then(() => undefined));
     if (job.kind === 'fit') {
       if (spec.split === null) {
         const r = await runFitExclusive({ specPath, db: opts.db, env: opts.env, onRunStarted: dropRun }, { onLocked: dropLock });
