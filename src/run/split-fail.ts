@@ -1,10 +1,11 @@
 import type { ConnectionTarget } from '../source/connection-target.js';
 import { openServerDatabase } from '../source/server-database.js';
-import { createStoreDb, deletePartials, failRun } from '../store/index.js';
+import { createStoreDb, failRunsAndPartials } from '../store/index.js';
 
 /**
  * Marks a run failed with `error` (if it is still running) and removes any partial factors it
- * has, so that nothing of it is left but its failed `runs` row. Used when a split run's job fails
+ * has, in one transaction ({@link failRunsAndPartials}), so that nothing of it is left but its
+ * failed `runs` row. Used when a split run's job fails
  * for the last time, and when `rowfold serve` must drop a run it was working.
  *
  * @returns whether the run was running (and is now failed).
@@ -15,12 +16,7 @@ export async function failRunAndPartials(target: ConnectionTarget, schema: strin
   const database = openServerDatabase(target, 1);
   const db = createStoreDb(database.dialect());
   try {
-    const failed = await failRun(db, schema, runId, error);
-    await deletePartials(db, schema, runId).catch((e: unknown) => {
-      // A result schema from before split runs has no partials to remove.
-      if ((e as { code?: unknown }).code !== '42P01') throw e;
-    });
-    return failed;
+    return (await failRunsAndPartials(db, schema, [runId], error)).length > 0;
   } finally {
     await db.destroy();
     await database.close();

@@ -3,7 +3,7 @@ import { designPlanFromJson } from '../plan/design-plan-json.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { openServerDatabase } from '../source/server-database.js';
-import { createStoreDb, deletePartials, failRun, loadPartialFactors, loadSplitRun, writeRunResult } from '../store/index.js';
+import { createStoreDb, deletePartials, failRunsAndPartials, loadPartialFactors, loadSplitRun, writeRunResult } from '../store/index.js';
 import type { ModelRecord } from '../store/index.js';
 import { passesOf, readAndSolve } from './run-fit.js';
 import { keepSplitRunAlive } from './split-lease.js';
@@ -88,8 +88,7 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           if (now?.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
           if (now !== null && now.status !== 'running') return { outcome: 'run-ended', rowsRead: 0, segments: 0 };
           if (req.final) {
-            await failRun(store, req.schema, req.runId, e).catch(() => undefined);
-            await deletePartials(store, req.schema, req.runId).catch(() => undefined);
+            await failRunsAndPartials(store, req.schema, [req.runId], e).catch(() => undefined);
           }
           throw e;
         }

@@ -3,7 +3,7 @@ import type { ConnectionTarget } from '../source/connection-target.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
-import { createStoreDb, deletePartials, failRun, migrate, startRun, startSplitRun } from '../store/index.js';
+import { createStoreDb, failRunsAndPartials, migrate, startRun, startSplitRun } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { withFitLock } from './run-fit-exclusive.js';
 import { SpecFileError } from './run-fit.js';
@@ -78,8 +78,7 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
         await req.enqueue(start);
         return start;
       } catch (e) {
-        await failRun(db, spec.schema, runId, e).catch(() => undefined);
-        await deletePartials(db, spec.schema, runId).catch(() => undefined);
+        await failRunsAndPartials(db, spec.schema, [runId], e).catch(() => undefined);
         throw e;
       }
     } finally {

@@ -7,7 +7,8 @@ import type { StoreDatabase } from './store-database.js';
 /**
  * Removes the partial factors of a split run (its `split_partitions` rows and, by cascade,
  * `partial_factors`); the `split_runs` row stays as the record that the run was split. Called
- * in the transaction that publishes the run, and when the run fails.
+ * in the transaction that publishes the run; a run that fails loses its partials in the
+ * transaction that marks it failed (`failRunsAndPartials`).
  *
  * @example
  * await deletePartials(trx, 'rowfold', runId);

@@ -1,6 +1,6 @@
 import { sql } from 'kysely';
 import type { Kysely } from 'kysely';
-import { describeError } from './describe-error.js';
+import { failRunsAndPartials } from './fail-runs-and-partials.js';
 import { checkSchemaName } from './schema-name.js';
 import type { StoreDatabase } from './store-database.js';
 
@@ -42,16 +42,10 @@ export async function failAbandonedRuns(
            where r.fit_name = ${fitName} and r.status = 'running' and s.alive_until > clock_timestamp()`.execute(db)
       ).rows.map((r) => Number(r.run_id))
     : [];
-  const failed = await sql<{ run_id: string }>`
-    update ${sql.id(schema, 'runs')}
-       set status = 'failed', ended_at = clock_timestamp(), error_message = ${describeError(reason)}
-     where fit_name = ${fitName} and status = 'running'
-       and run_id <> all(${live.map(String)}::bigint[])
-    returning run_id`.execute(db);
-  const ids = failed.rows.map((r) => Number(r.run_id));
-  if (ids.length > 0 && split) {
-    await sql`delete from ${sql.id(schema, 'split_partitions')} where run_id = any(${ids.map(String)}::bigint[])`.execute(db);
-  }
+  const abandoned = await sql<{ run_id: string }>`
+    select run_id from ${sql.id(schema, 'runs')}
+     where fit_name = ${fitName} and status = 'running' and run_id <> all(${live.map(String)}::bigint[])`.execute(db);
+  const ids = await failRunsAndPartials(db, schema, abandoned.rows.map((r) => Number(r.run_id)), reason);
   return { failed: ids, live };
 }
 

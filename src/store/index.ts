@@ -22,6 +22,7 @@ export { writeRefitRecord } from './write-refit-record.js';
 export type { DriftRecord, RefitRecord } from './write-refit-record.js';
 export { deletePartials } from './delete-partials.js';
 export { failAbandonedRuns } from './fail-abandoned-runs.js';
+export { failRunsAndPartials } from './fail-runs-and-partials.js';
 export type { AbandonedRuns } from './fail-abandoned-runs.js';
 export { float8ArrayText, parseFloat8Array } from './float8-array.js';
 export { loadPartialFactors } from './load-partial-factors.js';
