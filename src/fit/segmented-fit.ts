@@ -40,8 +40,10 @@ export class SegmentedFit {
   /** Key id → segment, for the key table of the reader feeding this instance. */
   /** Key id → segment, or null for a segment this instance passes over. */
   private byId: (SegmentState | null | undefined)[] = [];
-  private order = new Int32Array(0);
-  private reordered = new Float64Array(0);
+  /** Held rows by key id of the reader feeding this instance. */
+  private heldById: ({ values: Float64Array; rows: number } | undefined)[] = [];
+  /** Distance of the weight from the end of a row (1, or 2 with pairs), or −1 unweighted. */
+  private readonly weightOffset: number;
   /**
    * Rows held back per segment: when segments interleave (many segments, rows in no
    * particular order) a block brings each segment a row or two, and one kernel call per row
@@ -54,6 +56,7 @@ export class SegmentedFit {
     this.shape = shape;
     this.keyNames = keyNames;
     this.options = options;
+    this.weightOffset = shape.weight === undefined ? -1 : options.pairs === true ? 2 : 1;
   }
 
   /** Number of segments seen so far. */
@@ -68,8 +71,8 @@ export class SegmentedFit {
   }
 
   /**
-   * Folds a block: rows are grouped by segment (contiguous runs are folded in place; a
-   * block that interleaves many segments is first sorted by key with a counting sort).
+   * Folds a block: contiguous runs of a segment's rows are folded in place; rows of
+   * segments that interleave are held per segment and folded in batches.
    */
   consume(block: KeyedBlock, keyTable: ReadonlyArray<ReadonlyArray<string | null>>): void {
     const n = block.rows;
@@ -88,29 +91,33 @@ export class SegmentedFit {
       }
       return;
     }
-    // Counting sort of the rows by key id into a reused buffer.
-    const ids = keyTable.length;
-    const counts = new Int32Array(ids + 1);
-    for (let i = 0; i < n; i++) counts[keys[i]! + 1]!++;
-    for (let k = 0; k < ids; k++) counts[k + 1]! += counts[k]!;
+    // Interleaved segments: each row goes straight to its segment's held rows.
     const width = block.width;
-    if (this.order.length < n) this.order = new Int32Array(n);
-    if (this.reordered.length < n * width) this.reordered = new Float64Array(n * width);
-    const starts = counts.slice(0, ids);
-    const src = block.values;
-    const dst = this.reordered;
+    const v = block.values;
     for (let i = 0; i < n; i++) {
-      const to = starts[keys[i]!]!++ * width;
-      const from = i * width;
-      for (let j = 0; j < width; j++) dst[to + j] = src[from + j]!;
-    }
-    const sorted: RowBlock = { rows: n, width, values: this.reordered };
-    for (let k = 0; k < ids; k++) {
-      const from = counts[k]!;
-      const to = counts[k + 1]!;
-      if (to > from) {
-        const s = this.segment(k, keyTable);
-        if (s !== null) this.foldRun(s, sorted, from, to);
+      const id = keys[i]!;
+      const s = this.segment(id, keyTable);
+      if (s === null) continue;
+      let h = this.heldById[id];
+      if (h === undefined || width !== s.acc.blockWidth) {
+        this.foldRun(s, block, i, i + 1);
+        this.heldById[id] = this.held.get(s);
+        continue;
+      }
+      const a = i * width;
+      const b = h.rows * width;
+      // x − x is NaN exactly when x is NaN or ±Infinity; a suspect row gets the full check,
+      // which throws naming the column and segment (and a negative weight too).
+      let probe = 0;
+      for (let j = 0; j < width; j++) {
+        const x = v[a + j]!;
+        probe += x - x;
+        h.values[b + j] = x;
+      }
+      if (probe !== 0 || (this.weightOffset >= 0 && !(v[a + width - this.weightOffset]! >= 0))) s.acc.check(block, i, i + 1);
+      if (++h.rows * width === h.values.length) {
+        s.acc.fold({ rows: h.rows, width, values: h.values });
+        h.rows = 0;
       }
     }
   }
@@ -148,6 +155,7 @@ export class SegmentedFit {
       if (h.rows > 0) s.acc.fold({ rows: h.rows, width: s.acc.blockWidth, values: h.values });
     }
     this.held.clear();
+    this.heldById = [];
   }
 
   /** Merges another instance (another partition) into this one, segment by segment. */

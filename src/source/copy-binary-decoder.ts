@@ -649,7 +649,8 @@ export class CopyBinaryDecoder {
       else found.push(id);
     }
     if (this.#lastKey.byteLength < length) this.#lastKey = Buffer.alloc(Math.max(length, 2 * this.#lastKey.byteLength));
-    bytes.copy(this.#lastKey, 0, start, end);
+    const last = this.#lastKey;
+    for (let i = 0; i < length; i++) last[i] = bytes[start + i]!;
     this.#lastKeyLength = length;
     this.#lastKeyId = id;
     return id;

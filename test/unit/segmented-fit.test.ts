@@ -66,4 +66,20 @@ describe('SegmentedFit with interleaved segments', () => {
     expect((error as FitInputError).column).toBe('x3');
     expect((error as Error).message).toContain(`s=${seg}`);
   });
+
+  it('a negative weight in a held-back row fails when its block arrives, naming the weight and segment', () => {
+    const weighted = { ...shape, weight: 'w' };
+    const [block] = interleavedBlocks(1, 500, 11);
+    // Append a weight column of ones, then make one weight negative.
+    const values = new Float64Array(500 * 5);
+    for (let i = 0; i < 500; i++) {
+      values.set(block!.values.subarray(i * 4, i * 4 + 4), i * 5);
+      values[i * 5 + 4] = 1;
+    }
+    values[321 * 5 + 4] = -2;
+    const fit = new SegmentedFit(weighted, ['s']);
+    expect(() => fit.consume({ rows: 500, width: 5, values, keys: block!.keys }, keyTable)).toThrow(
+      new RegExp(`weight w is negative \\(-2\\).*s=${block!.keys[321]}`),
+    );
+  });
 });
