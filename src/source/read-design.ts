@@ -85,7 +85,7 @@ const SESSION_SETUP = "SET client_encoding TO 'UTF8'; SET extra_float_digits TO 
  * one 4 MB allocation freed at the end of this statement lifts the trim threshold to 8 MB,
  * and the per-row blocks are then reused instead of returned. Harmless elsewhere.
  */
-const SERVER_ALLOCATOR_WARMUP = "SELECT length(repeat('x', 4000000))";
+export const SERVER_ALLOCATOR_WARMUP = "SELECT length(repeat('x', 4000000))";
 
 /**
  * Prepares a server session for a design read: the session settings (see SESSION_SETUP)
