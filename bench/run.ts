@@ -30,7 +30,11 @@ for (const k of raw) {
   );
 }
 const fold200 = kernels.find((k) => k.kernel === 'fold' && k.p === 200)!;
-console.log(`fold at p = 200: ${fold200.gflops.toFixed(2)} GFLOP/s (target ≥ 2.9: ratio ${(fold200.gflops / 2.9).toFixed(2)})`);
+const ts200 = raw.find((k) => k.p === 200)!.js;
+console.log(
+  `accumulator fold at p = 200: ${fold200.gflops.toFixed(2)} GFLOP/s; ` +
+    `plain TypeScript kernel ${ts200.toFixed(2)} GFLOP/s (target ≥ 2.9: ratio ${(ts200 / 2.9).toFixed(2)})`,
+);
 const workloads: WorkloadFigure[] = [];
 console.log('\nend to end from PostgreSQL (medians of 3; floors measured in the same run)');
 console.log('workload              rows        terms  conns  psql COPY  receive  fit     fit/COPY (target)  fit/receive  peak RSS  fit CPU  server CPU  GFLOP/s');

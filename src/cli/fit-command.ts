@@ -25,7 +25,7 @@ export function fitCommand(y: Argv): Argv {
         .option('parallel', { type: 'number', default: 1, describe: 'read N disjoint partitions over N connections' })
         .option('threads', {
           type: 'number',
-          describe: 'threads folding rows beside the reading thread (0: none; default: 1 for 62 terms or more on a multi-core machine)',
+          describe: 'threads folding rows beside the reading thread (0: none; default: 1 when the model has 63 or more columns with the intercept, on a multi-core machine)',
         })
         .option('read', { choices: ['copy', 'rows'] as const, describe: 'override the spec: binary COPY or row stream' })
         .option('accuracy', {

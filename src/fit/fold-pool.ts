@@ -51,7 +51,7 @@ interface Slot {
  * Folds blocks on worker threads while the calling thread goes on receiving and decoding.
  * Each block is copied into a buffer of the pool (the buffers travel to a thread and back,
  * so none is allocated once the pool is warm), blocks go to the threads in turn, and the
- * reader waits (the promise the sink returns) while every thread has its share queued.
+ * reader waits (the promise the sink returns) while any thread has its share queued.
  * At the end each thread sends its segments' states and {@link finish} merges them.
  *
  * Rows of one segment may fold on different threads: the merged factor equals a
@@ -72,7 +72,10 @@ export class FoldPool {
   private next = 0;
   private failure: Error | undefined;
   private waiters: (() => void)[] = [];
-  private finishing: ((reply: FoldWorkerReply & { type: 'states' }) => void)[] = [];
+  /** Per thread, the promise of its final states while {@link finish} waits for them. */
+  private readonly finishing = new Map<Slot, { resolve: (r: FoldWorkerReply & { type: 'states' }) => void; reject: (e: Error) => void }>();
+  /** Set by {@link close}: the threads' exits are then expected. */
+  private closing = false;
 
   constructor(threads: number, shape: DesignShape, keyNames: readonly string[], options: SegmentedFitOptions) {
     if (!Number.isInteger(threads) || threads < 1) throw new RangeError(`a fold pool needs at least one thread, got ${threads}`);
@@ -96,7 +99,7 @@ export class FoldPool {
       slot.worker.on('message', (reply: FoldWorkerReply) => this.onReply(slot, reply));
       slot.worker.on('error', (e: Error) => this.fail(e));
       slot.worker.on('exit', (code) => {
-        if (code !== 0) this.fail(new Error(`a fold thread stopped with exit code ${code}`));
+        if (!this.closing) this.fail(new Error(`a fold thread stopped${code === 0 ? '' : ` with exit code ${code}`} before the read finished`));
       });
       return slot;
     });
@@ -108,8 +111,8 @@ export class FoldPool {
   }
 
   /**
-   * Hands a block of reader `reader` to a thread. Returns a promise when every thread has
-   * its share of blocks queued (wait for it before decoding more), undefined otherwise.
+   * Hands a block of reader `reader` to a thread. Returns a promise when a thread has its
+   * share of blocks queued (wait for it before decoding more), undefined otherwise.
    * Throws the first error a thread met (a FitInputError keeps its column and segment).
    */
   sink(reader: number, block: KeyedBlock, keyTable: ReadonlyArray<ReadonlyArray<string | null>>): Promise<void> | undefined {
@@ -157,8 +160,7 @@ export class FoldPool {
                 reject(this.failure);
                 return;
               }
-              this.finishing.push((r) => (this.failure === undefined ? resolve(r) : reject(this.failure)));
-              slot.worker.once('error', reject);
+              this.finishing.set(slot, { resolve, reject });
               slot.worker.postMessage({ type: 'finish' } satisfies FoldWorkerRequest);
             }),
         ),
@@ -174,6 +176,7 @@ export class FoldPool {
 
   /** Stops the threads (also after a failed read). */
   async close(): Promise<void> {
+    this.closing = true;
     await Promise.all(this.slots.map((s) => s.worker.terminate()));
     this.release();
   }
@@ -192,13 +195,17 @@ export class FoldPool {
       if (reply.name !== 'FitInputError') e.name = reply.name;
       this.fail(e);
     } else {
-      this.finishing.shift()?.(reply);
+      const waiting = this.finishing.get(slot);
+      this.finishing.delete(slot);
+      waiting?.resolve(reply);
     }
   }
 
   private fail(e: Error): void {
     this.failure ??= e;
     this.release();
+    for (const waiting of this.finishing.values()) waiting.reject(this.failure);
+    this.finishing.clear();
   }
 
   /** Lets a waiting reader go on (it then sees any failure at its next block). */

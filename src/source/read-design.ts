@@ -123,8 +123,12 @@ export async function prepareReadSession(client: pg.ClientBase): Promise<void> {
 export function readDesign(client: pg.ClientBase, req: DesignReadRequest, sink: BlockSink): Promise<DesignReadCounts> {
   return readDesignFrom(
     {
-      // exec runs the session setup, once per read.
-      exec: () => prepareReadSession(client),
+      // exec runs the session setup, once per read; the warm-up only helps COPY, and as a
+      // speed-up only it never fails a read.
+      exec: async (sql) => {
+        await client.query(sql);
+        if (req.mode === 'copy') await client.query(SERVER_ALLOCATOR_WARMUP).catch(() => undefined);
+      },
       copyChunks: (query, signal) => streamCopyChunks(client, query, signal),
       rowArrays: (query, signal) => streamRowArrays(client, query, signal),
     },

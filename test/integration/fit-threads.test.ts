@@ -87,6 +87,22 @@ describe.skipIf(!built && !required)('connections, fold threads and kernels give
     expect(worst).toBeLessThan(1e-12);
   }, 120_000);
 
+  it('segments that first appear in later blocks (rows sorted by segment) reach every thread: equal to 1e-12 relative', async () => {
+    await tdb.exec('create table wide_sorted as select * from wide order by s');
+    const sorted = writeSpec({ name: 'wide_sorted', source: 'wide_sorted', response: 'y', terms: xs, segment_by: ['s'], accuracy: 'fast' });
+    const run = async (threads: number) => {
+      const res = await runCli(['fit', sorted, '--db', tdb.url, '--json', '--threads', String(threads)]);
+      expect(res.code).toBe(0);
+      return JSON.parse(res.stdout) as Doc;
+    };
+    const inline = await run(0);
+    const threaded = await run(3);
+    expect(threaded.models).toHaveLength(3);
+    const worst = worstDifference(inline, threaded);
+    console.log(`sorted segments, 3 threads: worst relative difference ${worst.toExponential(2)}`);
+    expect(worst).toBeLessThan(1e-12);
+  }, 120_000);
+
   // Server only: another process cannot open the embedded database this one holds.
   it.skipIf(ON_EMBEDDED)('the TypeScript kernel (ROWFOLD_KERNEL=js, another process) gives the same fit to 1e-12 relative', () => {
     const run = spawnSync(process.execPath, [cli, 'fit', spec, '--db', tdb.url, '--json', '--threads', '2'], {

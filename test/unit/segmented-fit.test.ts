@@ -26,6 +26,16 @@ function interleavedBlocks(blocks: number, rows: number, seed: number) {
   });
 }
 
+/** The first row (after row 100) whose segment already appeared earlier in the block. */
+function laterRowOfSeenSegment(keys: Int32Array): number {
+  const seen = new Set<number>();
+  for (let i = 0; i < keys.length; i++) {
+    if (i > 100 && seen.has(keys[i]!)) return i;
+    seen.add(keys[i]!);
+  }
+  throw new Error('no such row');
+}
+
 const keyTable = Array.from({ length: SEGMENTS }, (_, k) => [String(k)]);
 
 describe('SegmentedFit with interleaved segments', () => {
@@ -54,8 +64,10 @@ describe('SegmentedFit with interleaved segments', () => {
   it('a bad value in a held-back row fails when its block arrives, naming column and segment', () => {
     const [block] = interleavedBlocks(1, 500, 9);
     const fit = new SegmentedFit(shape, ['s']);
-    block!.values[123 * 4 + 2] = Number.NaN;
-    const seg = block!.keys[123];
+    // A row whose segment already had a row in this block: it takes the inline check.
+    const bad = laterRowOfSeenSegment(block!.keys);
+    block!.values[bad * 4 + 2] = Number.NaN;
+    const seg = block!.keys[bad];
     let error: unknown;
     try {
       fit.consume(block!, keyTable);
@@ -76,10 +88,11 @@ describe('SegmentedFit with interleaved segments', () => {
       values.set(block!.values.subarray(i * 4, i * 4 + 4), i * 5);
       values[i * 5 + 4] = 1;
     }
-    values[321 * 5 + 4] = -2;
+    const bad = laterRowOfSeenSegment(block!.keys);
+    values[bad * 5 + 4] = -2;
     const fit = new SegmentedFit(weighted, ['s']);
     expect(() => fit.consume({ rows: 500, width: 5, values, keys: block!.keys }, keyTable)).toThrow(
-      new RegExp(`weight w is negative \\(-2\\).*s=${block!.keys[321]}`),
+      new RegExp(`weight w is negative \\(-2\\).*s=${block!.keys[bad]}`),
     );
   });
 });
