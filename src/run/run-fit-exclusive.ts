@@ -3,11 +3,9 @@ import { resolveConnection } from '../source/connection-target.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import { EMBEDDED_PREFIX } from '../source/open-database.js';
 import { openServerDatabase } from '../source/server-database.js';
-import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
-import { SpecError } from '../spec/spec-error.js';
 import { createStoreDb, failAbandonedRuns } from '../store/index.js';
-import { runFit, SpecFileError } from './run-fit.js';
+import { loadSpecFile, runFit } from './run-fit.js';
 import type { RunFitRequest, RunFitResult } from './run-fit.js';
 
 /** Another run of the same fit holds its lock: this one did not start. */
@@ -60,10 +58,7 @@ export async function runFitExclusive(req: RunFitRequest, hooks: FitLockHooks = 
   if (req.dryRun || (req.db !== undefined && req.db.startsWith(EMBEDDED_PREFIX))) return runFit(req);
   const target = resolveConnection({ db: req.db, env });
   if (target.from === 'defaults') return runFit(req);
-  const spec = await loadFitSpec(req.specPath).catch((e: unknown) => {
-    if (e instanceof SpecError) throw e;
-    throw new SpecFileError(`cannot read the spec ${req.specPath}: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
-  });
+  const spec = await loadSpecFile(req.specPath);
   return withFitLock(target, spec, () => runFit(req), hooks);
 }
 

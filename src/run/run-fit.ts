@@ -1,3 +1,4 @@
+import type { Kysely } from 'kysely';
 import { normalEquationsProblem } from '../fit/check-normal-equations.js';
 import type { FitSolution } from '../fit/fit-solution.js';
 import type { SegmentState, SegmentedFit, SegmentedFitOptions } from '../fit/segmented-fit.js';
@@ -11,7 +12,7 @@ import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
 import { createStoreDb, failRun, migrate, publishRun, startRun, writeFitStates, writeRefitRecord, writeRunResult } from '../store/index.js';
-import type { ModelRecord } from '../store/index.js';
+import type { ModelRecord, StoreDatabase } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { finishRefit, startRefit, storedStates } from './refit.js';
 import type { RefitOutcome, RefitStart } from './refit.js';
@@ -75,15 +76,34 @@ export interface RunFitResult {
 const TOOL_VERSION = toolVersion();
 
 /**
+ * Loads a spec file: a SpecError (a bad spec) passes through; a file that cannot be read
+ * becomes a SpecFileError (a usage error, not a failed fit).
+ */
+export function loadSpecFile(specPath: string): Promise<FitSpec> {
+  return loadFitSpec(specPath).catch((e: unknown) => {
+    if (e instanceof SpecError) throw e;
+    throw new SpecFileError(`cannot read the spec ${specPath}: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
+  });
+}
+
+/** Writes the `runs` row of a run about to read `plan`: the audit trail of what it will fit. */
+export function startFitRun(db: Kysely<StoreDatabase>, spec: FitSpec, plan: DesignPlan): Promise<number> {
+  return startRun(db, spec.schema, {
+    fitName: spec.name,
+    specHash: spec.hash,
+    specText: spec.text,
+    designQuery: plan.queries.map((q) => q.toBound().text).join('\n-- next partition --\n'),
+    toolVersion: TOOL_VERSION,
+  });
+}
+
+/**
  * The flow of one fit: spec → plan → read (N partitions over N connections) → fold →
  * solve → publish in one transaction. A failure after the run has started leaves only
  * its `runs` row, marked failed with the error.
  */
 export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
-  const spec = await loadFitSpec(req.specPath).catch((e: unknown) => {
-    if (e instanceof SpecError) throw e;
-    throw new SpecFileError(`cannot read the spec ${req.specPath}: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
-  });
+  const spec = await loadSpecFile(req.specPath);
   const parallel = req.parallel ?? 1;
   const database = await openDatabase({ db: req.db, env: req.env ?? process.env, sessions: parallel + 1 });
   const db = createStoreDb(database.dialect());
@@ -105,13 +125,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
     }
     await migrate(db, spec.schema);
-    const runId = await startRun(db, spec.schema, {
-      fitName: spec.name,
-      specHash: spec.hash,
-      specText: spec.text,
-      designQuery: plan.queries.map((q) => q.toBound().text).join('\n-- next partition --\n'),
-      toolVersion: TOOL_VERSION,
-    });
+    const runId = await startFitRun(db, spec, plan);
     req.onRunStarted?.(runId);
     try {
       const out = await readAndSolve(database, spec, plan, req, refit);

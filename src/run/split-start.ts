@@ -1,14 +1,11 @@
 import { designPlanToJson } from '../plan/design-plan-json.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import { openServerDatabase } from '../source/server-database.js';
-import { loadFitSpec } from '../spec/load-fit-spec.js';
-import { SpecError } from '../spec/spec-error.js';
-import { createStoreDb, failRunsAndPartials, migrate, startRun, startSplitRun } from '../store/index.js';
+import { createStoreDb, failRunsAndPartials, migrate, startSplitRun } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { withFitLock } from './run-fit-exclusive.js';
-import { SpecFileError } from './run-fit.js';
+import { loadSpecFile, startFitRun } from './run-fit.js';
 import { SPLIT_LEASE_SECONDS } from './split-lease.js';
-import { toolVersion } from './tool-version.js';
 
 /** A split run that has started: its id and the partition jobs it was cut into. */
 export interface SplitStart {
@@ -46,10 +43,7 @@ export interface SplitStartRequest {
  * const start = await startSplitFit({ specPath, target, enqueue: (s) => sendPartitionJobs(s) });
  */
 export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart> {
-  const spec = await loadFitSpec(req.specPath).catch((e: unknown) => {
-    if (e instanceof SpecError) throw e;
-    throw new SpecFileError(`cannot read the spec ${req.specPath}: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
-  });
+  const spec = await loadSpecFile(req.specPath);
   const split = spec.split;
   if (split === null) throw new TypeError(`fit ${spec.name} has no split: key; run it whole`);
   return withFitLock(req.target, spec, async () => {
@@ -58,13 +52,7 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
     try {
       const plan = await database.withSession((session) => planFit(session, spec, split.partitions));
       await migrate(db, spec.schema);
-      const runId = await startRun(db, spec.schema, {
-        fitName: spec.name,
-        specHash: spec.hash,
-        specText: spec.text,
-        designQuery: plan.queries.map((q) => q.toBound().text).join('\n-- next partition --\n'),
-        toolVersion: toolVersion(),
-      });
+      const runId = await startFitRun(db, spec, plan);
       req.onRunStarted?.(runId);
       try {
         await startSplitRun(db, spec.schema, runId, spec.name, plan.queries.length, designPlanToJson(plan), SPLIT_LEASE_SECONDS);
