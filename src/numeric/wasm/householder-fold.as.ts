@@ -57,6 +57,51 @@
   return s;
 }
 
+// The four dot products of columns a0, a1 with columns x0, x1 (m doubles each), in one
+// pass that loads each column once: d00 = a0·x0, d01 = a0·x1, d10 = a1·x0, d11 = a1·x1.
+// Shared by the fold's paired reflectors and the Gram update's 2×2 blocks.
+let d00: f64 = 0;
+let d01: f64 = 0;
+let d10: f64 = 0;
+let d11: f64 = 0;
+@inline function dots2x2(a0: usize, a1: usize, x0: usize, x1: usize, m: i32): void {
+  const m2 = m & ~1;
+  let s00 = f64x2.splat(0);
+  let s01 = f64x2.splat(0);
+  let s10 = f64x2.splat(0);
+  let s11 = f64x2.splat(0);
+  for (let i = 0; i < m2; i += 2) {
+    const o = <usize>i << 3;
+    const u0 = v128.load(a0 + o);
+    const u1 = v128.load(a1 + o);
+    const y0 = v128.load(x0 + o);
+    const y1 = v128.load(x1 + o);
+    s00 = f64x2.add(s00, f64x2.mul(u0, y0));
+    s01 = f64x2.add(s01, f64x2.mul(u0, y1));
+    s10 = f64x2.add(s10, f64x2.mul(u1, y0));
+    s11 = f64x2.add(s11, f64x2.mul(u1, y1));
+  }
+  let t00 = f64x2.extract_lane(s00, 0) + f64x2.extract_lane(s00, 1);
+  let t01 = f64x2.extract_lane(s01, 0) + f64x2.extract_lane(s01, 1);
+  let t10 = f64x2.extract_lane(s10, 0) + f64x2.extract_lane(s10, 1);
+  let t11 = f64x2.extract_lane(s11, 0) + f64x2.extract_lane(s11, 1);
+  for (let i = m2; i < m; i++) {
+    const o = <usize>i << 3;
+    const u0 = load<f64>(a0 + o);
+    const u1 = load<f64>(a1 + o);
+    const y0 = load<f64>(x0 + o);
+    const y1 = load<f64>(x1 + o);
+    t00 += u0 * y0;
+    t01 += u0 * y1;
+    t10 += u1 * y0;
+    t11 += u1 * y1;
+  }
+  d00 = t00;
+  d01 = t01;
+  d10 = t10;
+  d11 = t11;
+}
+
 // Applies one reflector (vector at cj, tau, R row entry at rk) to the column at ck.
 @inline function applyOne(cj: usize, tau: f64, rk: usize, ck: usize, m: i32): void {
   const s = tau * (load<f64>(rk) + dot(cj, ck, m));
@@ -94,36 +139,11 @@ export function fold(n: i32, r: usize, b: usize, m: i32, ld: i32): void {
     for (; k + 1 < n; k += 2) {
       const c0 = b + (<usize>(k * ld) << 3);
       const c1 = c0 + (<usize>ld << 3);
-      let a0 = f64x2.splat(0);
-      let b0 = f64x2.splat(0);
-      let a1 = f64x2.splat(0);
-      let b1 = f64x2.splat(0);
-      for (let i = 0; i < m2; i += 2) {
-        const o = <usize>i << 3;
-        const va = v128.load(ca + o);
-        const vb = v128.load(cb + o);
-        const x0 = v128.load(c0 + o);
-        const x1 = v128.load(c1 + o);
-        a0 = f64x2.add(a0, f64x2.mul(va, x0));
-        b0 = f64x2.add(b0, f64x2.mul(vb, x0));
-        a1 = f64x2.add(a1, f64x2.mul(va, x1));
-        b1 = f64x2.add(b1, f64x2.mul(vb, x1));
-      }
-      let da0 = f64x2.extract_lane(a0, 0) + f64x2.extract_lane(a0, 1);
-      let db0 = f64x2.extract_lane(b0, 0) + f64x2.extract_lane(b0, 1);
-      let da1 = f64x2.extract_lane(a1, 0) + f64x2.extract_lane(a1, 1);
-      let db1 = f64x2.extract_lane(b1, 0) + f64x2.extract_lane(b1, 1);
-      for (let i = m2; i < m; i++) {
-        const o = <usize>i << 3;
-        const va = load<f64>(ca + o);
-        const vb = load<f64>(cb + o);
-        const x0 = load<f64>(c0 + o);
-        const x1 = load<f64>(c1 + o);
-        da0 += va * x0;
-        db0 += vb * x0;
-        da1 += va * x1;
-        db1 += vb * x1;
-      }
+      dots2x2(ca, cb, c0, c1, m);
+      const da0 = d00;
+      const da1 = d01;
+      const db0 = d10;
+      const db1 = d11;
       const pa = ra + (<usize>(k - j) << 3);
       const pb = rb + (<usize>(k - j - 1) << 3);
       const sa0 = tauA * (load<f64>(pa) + da0);
@@ -183,41 +203,11 @@ export function gram(n: i32, g: usize, b: usize, m: i32, ld: i32): void {
     for (; j + 1 < n; j += 2) {
       const d0 = b + (<usize>(j * ld) << 3);
       const d1 = d0 + (<usize>ld << 3);
-      const m2 = m & ~1;
-      let s00 = f64x2.splat(0);
-      let s01 = f64x2.splat(0);
-      let s10 = f64x2.splat(0);
-      let s11 = f64x2.splat(0);
-      for (let r = 0; r < m2; r += 2) {
-        const o = <usize>r << 3;
-        const a0 = v128.load(c0 + o);
-        const a1 = v128.load(c1 + o);
-        const x0 = v128.load(d0 + o);
-        const x1 = v128.load(d1 + o);
-        s00 = f64x2.add(s00, f64x2.mul(a0, x0));
-        s01 = f64x2.add(s01, f64x2.mul(a0, x1));
-        s10 = f64x2.add(s10, f64x2.mul(a1, x0));
-        s11 = f64x2.add(s11, f64x2.mul(a1, x1));
-      }
-      let t00 = f64x2.extract_lane(s00, 0) + f64x2.extract_lane(s00, 1);
-      let t01 = f64x2.extract_lane(s01, 0) + f64x2.extract_lane(s01, 1);
-      let t10 = f64x2.extract_lane(s10, 0) + f64x2.extract_lane(s10, 1);
-      let t11 = f64x2.extract_lane(s11, 0) + f64x2.extract_lane(s11, 1);
-      for (let r = m2; r < m; r++) {
-        const o = <usize>r << 3;
-        const a0 = load<f64>(c0 + o);
-        const a1 = load<f64>(c1 + o);
-        const x0 = load<f64>(d0 + o);
-        const x1 = load<f64>(d1 + o);
-        t00 += a0 * x0;
-        t01 += a0 * x1;
-        t10 += a1 * x0;
-        t11 += a1 * x1;
-      }
-      addTo(g0 + (<usize>(j - i) << 3), t00);
-      addTo(g0 + (<usize>(j + 1 - i) << 3), t01);
-      addTo(g1 + (<usize>(j - i - 1) << 3), t10);
-      addTo(g1 + (<usize>(j - i) << 3), t11);
+      dots2x2(c0, c1, d0, d1, m);
+      addTo(g0 + (<usize>(j - i) << 3), d00);
+      addTo(g0 + (<usize>(j + 1 - i) << 3), d01);
+      addTo(g1 + (<usize>(j - i - 1) << 3), d10);
+      addTo(g1 + (<usize>(j - i) << 3), d11);
     }
     if (j < n) {
       const d = b + (<usize>(j * ld) << 3);
