@@ -562,24 +562,8 @@ export class CopyBinaryDecoder {
     const base = this.#blockFill * v * stride;
     let hasNull = false;
     let hasNonFinite = false;
-    if (stride === 1) {
-      // Only float8 columns (the common case): the loop without the numeric branch.
-      for (let j = 0; j < v; j++) {
-        const length = view.getInt32(p);
-        p += 4;
-        if (length === -1) {
-          hasNull = true;
-          this.#nullCounts[j]!++;
-          continue;
-        }
-        const x = view.getFloat64(p);
-        p += FLOAT8_BYTES;
-        values[base + j] = x;
-        // x − x is NaN exactly when x is NaN or ±Infinity.
-        if (x - x !== 0) hasNonFinite = true;
-      }
-    }
-    for (let j = stride === 1 ? v : 0; j < v; j++) {
+    const numeric = this.#numeric;
+    for (let j = 0; j < v; j++) {
       const length = view.getInt32(p);
       p += 4;
       if (length === -1) {
@@ -588,17 +572,20 @@ export class CopyBinaryDecoder {
         continue;
       }
       let x: number;
-      if (this.#numeric[j]) {
+      if (stride === 1) {
+        x = view.getFloat64(p);
+      } else if (numeric[j]) {
         decodeNumericDD(view, p, length, this.#pair);
         x = this.#pair.hi;
         values[base + 2 * j + 1] = this.#pair.lo;
       } else {
         x = view.getFloat64(p);
-        if (stride === 2) values[base + 2 * j + 1] = 0;
+        values[base + 2 * j + 1] = 0;
       }
       p += length;
       values[base + j * stride] = x;
-      if (!Number.isFinite(x)) hasNonFinite = true;
+      // x − x is NaN exactly when x is NaN or ±Infinity.
+      if (x - x !== 0) hasNonFinite = true;
     }
     if (hasNull) {
       this.#rowsSkippedNull++;
