@@ -21,6 +21,17 @@ export interface SegmentState {
   readonly acc: Accumulator;
 }
 
+/** Rows of one segment held back to be folded together (see SegmentedFit's `held`). */
+interface Held {
+  readonly values: Float64Array;
+  rows: number;
+}
+
+/** How many rows a segment holds back at most: a few kB of them. */
+function heldRows(width: number): number {
+  return Math.max(4, Math.min(32, Math.floor(2048 / width)));
+}
+
 /** A block whose rows carry a segment key id (as a decoded COPY block does). */
 export interface KeyedBlock extends RowBlock {
   readonly keys: Int32Array;
@@ -40,23 +51,20 @@ export class SegmentedFit {
   /** Key id → segment, for the key table of the reader feeding this instance. */
   /** Key id → segment, or null for a segment this instance passes over. */
   private byId: (SegmentState | null | undefined)[] = [];
-  /** Held rows by key id of the reader feeding this instance. */
-  private heldById: ({ values: Float64Array; rows: number } | undefined)[] = [];
-  /** Distance of the weight from the end of a row (1, or 2 with pairs), or −1 unweighted. */
-  private readonly weightOffset: number;
+  /** The held rows of {@link held}, by key id of the reader feeding this instance. */
+  private heldById: (Held | undefined)[] = [];
   /**
    * Rows held back per segment: when segments interleave (many segments, rows in no
    * particular order) a block brings each segment a row or two, and one kernel call per row
    * costs more than the row's arithmetic. Short runs are checked at once, copied here, and
    * folded a few dozen at a time; {@link states} and {@link merge} fold what is left.
    */
-  private readonly held = new Map<SegmentState, { values: Float64Array; rows: number }>();
+  private readonly held = new Map<SegmentState, Held>();
 
   constructor(shape: DesignShape, keyNames: readonly string[] = [], options: SegmentedFitOptions = {}) {
     this.shape = shape;
     this.keyNames = keyNames;
     this.options = options;
-    this.weightOffset = shape.weight === undefined ? -1 : options.pairs === true ? 2 : 1;
   }
 
   /** Number of segments seen so far. */
@@ -91,59 +99,50 @@ export class SegmentedFit {
       }
       return;
     }
-    // Interleaved segments: each row goes straight to its segment's held rows.
+    // Interleaved segments: each row is checked and goes straight to its segment's held rows.
     const width = block.width;
-    const v = block.values;
     for (let i = 0; i < n; i++) {
       const id = keys[i]!;
       const s = this.segment(id, keyTable);
       if (s === null) continue;
-      let h = this.heldById[id];
-      if (h === undefined || width !== s.acc.blockWidth) {
-        this.foldRun(s, block, i, i + 1);
-        this.heldById[id] = this.held.get(s);
-        continue;
-      }
-      const a = i * width;
-      const b = h.rows * width;
-      // x − x is NaN exactly when x is NaN or ±Infinity; a suspect row gets the full check,
-      // which throws naming the column and segment (and a negative weight too).
-      let probe = 0;
-      for (let j = 0; j < width; j++) {
-        const x = v[a + j]!;
-        probe += x - x;
-        h.values[b + j] = x;
-      }
-      if (probe !== 0 || (this.weightOffset >= 0 && !(v[a + width - this.weightOffset]! >= 0))) s.acc.check(block, i, i + 1);
-      if (++h.rows * width === h.values.length) {
-        s.acc.fold({ rows: h.rows, width, values: h.values });
-        h.rows = 0;
-      }
+      if (width !== s.acc.blockWidth) s.acc.fold(block, i, i + 1); // throws, naming the columns
+      s.acc.check(block, i, i + 1);
+      this.hold(s, (this.heldById[id] ??= this.heldFor(s, width)), block, i, i + 1);
     }
   }
 
   /** Folds a run of one segment's rows, or holds it back when it is short (see {@link held}). */
   private foldRun(s: SegmentState, block: RowBlock, from: number, to: number): void {
     const width = block.width;
-    const cap = Math.max(4, Math.min(32, Math.floor(2048 / width)));
-    if (to - from >= cap || width !== s.acc.blockWidth) {
+    if (to - from >= heldRows(width) || width !== s.acc.blockWidth) {
       s.acc.fold(block, from, to);
       return;
     }
     s.acc.check(block, from, to);
+    this.hold(s, this.heldFor(s, width), block, from, to);
+  }
+
+  /** The held rows of a segment, made on first use. */
+  private heldFor(s: SegmentState, width: number): Held {
     let h = this.held.get(s);
     if (h === undefined) {
-      h = { values: new Float64Array(cap * width), rows: 0 };
+      h = { values: new Float64Array(heldRows(width) * width), rows: 0 };
       this.held.set(s, h);
     }
+    return h;
+  }
+
+  /** Copies checked rows into a segment's held rows, folding them whenever they fill up. */
+  private hold(s: SegmentState, h: Held, block: RowBlock, from: number, to: number): void {
+    const width = block.width;
     const src = block.values;
     const dst = h.values;
     for (let row = from; row < to; row++) {
       const a = row * width;
       const b = h.rows * width;
       for (let j = 0; j < width; j++) dst[b + j] = src[a + j]!;
-      if (++h.rows === cap) {
-        s.acc.fold({ rows: cap, width, values: h.values });
+      if (++h.rows * width === dst.length) {
+        s.acc.fold({ rows: h.rows, width, values: dst });
         h.rows = 0;
       }
     }
