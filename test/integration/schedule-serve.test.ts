@@ -1,6 +1,3 @@
-import { spawn } from 'node:child_process';
-import type { ChildProcess } from 'node:child_process';
-import { join } from 'node:path';
 import PgBoss from 'pg-boss';
 import pg from 'pg';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
@@ -9,6 +6,7 @@ import { fitQueueName, JOBS_SCHEMA } from '../../src/schedule/fit-queue.js';
 import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
+import { ServeProcesses } from '../support/serve-process.js';
 
 // pg-boss's clock (Timekeeper, pg-boss 10.4) turns each tick of a schedule into this job in its
 // internal queue, with the schedule's queue name as singleton key and a 60-second singleton
@@ -16,48 +14,10 @@ import { runCli, writeSpec } from '../support/run-cli.js';
 // the tick becomes one job whatever the number of serve processes.
 const PGBOSS_SEND_IT_QUEUE = '__pgboss__send-it';
 
-const ROOT = join(import.meta.dirname, '..', '..');
-
 let tdb: TestDatabase;
 let boss: PgBoss | undefined;
 
-/** A `rowfold serve` child process running the sources, with its stderr collected. */
-interface Server {
-  readonly child: ChildProcess;
-  readonly log: () => string;
-  readonly exited: Promise<number | null>;
-}
-const servers: Server[] = [];
-
-function startServe(args: string[]): Server {
-  const child = spawn(
-    process.execPath,
-    ['--import', './test/support/register-typescript.mjs', 'src/cli/main.ts', 'serve', ...args, '--poll-seconds', '0.2', '--cron-seconds', '1'],
-    { cwd: ROOT, stdio: ['ignore', 'pipe', 'pipe'], env: { ...process.env } },
-  );
-  let text = '';
-  child.stderr!.on('data', (b: Buffer) => (text += b.toString()));
-  child.stdout!.on('data', (b: Buffer) => (text += b.toString()));
-  const exited = new Promise<number | null>((resolve) => child.on('exit', (code) => resolve(code)));
-  const server = { child, log: () => text, exited };
-  servers.push(server);
-  return server;
-}
-
-async function until<T>(
-  what: string,
-  probe: () => Promise<T | undefined | false> | T | undefined | false,
-  ms = 30_000,
-  show: readonly Server[] = servers,
-): Promise<T> {
-  const end = Date.now() + ms;
-  for (;;) {
-    const v = await probe();
-    if (v !== undefined && v !== false) return v;
-    if (Date.now() > end) throw new Error(`timed out waiting for ${what}; serve said:\n${show.map((s) => s.log()).join('\n---\n')}`);
-    await new Promise((r) => setTimeout(r, 100));
-  }
-}
+const serve = new ServeProcesses();
 
 async function runsOf(fit: string): Promise<{ run_id: string; status: string; error_message: string | null }[]> {
   const r = await tdb.query(`select run_id, status, error_message from rowfold.runs where fit_name = $1 order by run_id`, [fit]).catch(() => ({ rows: [] }));
@@ -79,9 +39,7 @@ describe.skipIf(ON_EMBEDDED)('rowfold serve, schedules and runs (needs a server:
     slowPath = writeSpec(slowSpec);
     // The children run the sources through a transpiling hook that caches by content: warm the
     // cache once here, so that two servers starting at once do not both compile everything.
-    const warm = startServe(['--help']);
-    expect(await warm.exited, warm.log()).toBe(0);
-    servers.splice(servers.indexOf(warm), 1);
+    await serve.warm();
   });
   /** A pg-boss client of the test (no clock, no maintenance), once serve has created the queue schema. */
   async function testBoss(): Promise<PgBoss> {
@@ -92,21 +50,16 @@ describe.skipIf(ON_EMBEDDED)('rowfold serve, schedules and runs (needs a server:
     }
     return boss;
   }
-  afterEach(async () => {
-    for (const s of servers.splice(0)) {
-      if (s.child.exitCode === null && s.child.signalCode === null) s.child.kill('SIGKILL');
-      await s.exited;
-    }
-  });
+  afterEach(() => serve.killAll());
   afterAll(async () => {
     await boss?.stop({ graceful: false, close: true }).catch(() => undefined);
     await tdb?.drop();
   });
 
   it('two serve processes register one schedule per fit, and a tick fired by two clocks runs the fit once', { timeout: 180_000 }, async () => {
-    const a = startServe([fastPath, slowPath, '--db', tdb.url]);
-    const b = startServe([fastPath, slowPath, '--db', tdb.url, '--concurrency', '2']);
-    await until('both servers ready', () => /serving 2 fits/.test(a.log()) && /serving 2 fits/.test(b.log()), 120_000, [a, b]);
+    const a = serve.start([fastPath, slowPath, '--db', tdb.url]);
+    const b = serve.start([fastPath, slowPath, '--db', tdb.url, '--concurrency', '2']);
+    await serve.until('both servers ready', () => /serving 2 fits/.test(a.log()) && /serving 2 fits/.test(b.log()), 120_000);
 
     const queue = fitQueueName('rowfold', 'sched_fast');
     const schedules = await tdb.query(`select name, cron, timezone from ${JOBS_SCHEMA}.schedule order by name`);
@@ -119,7 +72,7 @@ describe.skipIf(ON_EMBEDDED)('rowfold serve, schedules and runs (needs a server:
     await (await testBoss()).insert([tick]);
     await (await testBoss()).insert([tick]);
 
-    await until('the scheduled run', async () => (await runsOf('sched_fast')).some((r) => r.status === 'succeeded'));
+    await serve.until('the scheduled run', async () => (await runsOf('sched_fast')).some((r) => r.status === 'succeeded'), 30_000);
     // Give both workers many more polls (0.2 s each) to take a second job, were there one.
     await new Promise((r) => setTimeout(r, 2500));
     const runs = await runsOf('sched_fast');
@@ -131,7 +84,7 @@ describe.skipIf(ON_EMBEDDED)('rowfold serve, schedules and runs (needs a server:
 
     // A job sent straight to the fit's queue: both workers poll it, one runs it.
     await (await testBoss()).send(queue, { fit: 'sched_fast', schema: 'rowfold' });
-    await until('the second run', async () => (await runsOf('sched_fast')).filter((r) => r.status === 'succeeded').length === 2);
+    await serve.until('the second run', async () => (await runsOf('sched_fast')).filter((r) => r.status === 'succeeded').length === 2, 30_000);
     await new Promise((r) => setTimeout(r, 1500));
     expect((await runsOf('sched_fast')).map((r) => r.status)).toEqual(['succeeded', 'succeeded']);
 
@@ -143,11 +96,11 @@ describe.skipIf(ON_EMBEDDED)('rowfold serve, schedules and runs (needs a server:
   // opt in with ROWFOLD_REAL_TICK=1. The tests above fire the tick's job directly instead.
   it.runIf(process.env['ROWFOLD_REAL_TICK'] === '1')('a real tick of "* * * * *" runs once with two serve processes', { timeout: 240_000 }, async () => {
     const every = writeSpec({ ...fastSpec, name: 'sched_every', schedule: '* * * * *' });
-    const a = startServe([every, '--db', tdb.url]);
-    const b = startServe([every, '--db', tdb.url]);
-    await until('both servers ready', () => /serving 1 fit/.test(a.log()) && /serving 1 fit/.test(b.log()), 120_000, [a, b]);
+    const a = serve.start([every, '--db', tdb.url]);
+    const b = serve.start([every, '--db', tdb.url]);
+    await serve.until('both servers ready', () => /serving 1 fit/.test(a.log()) && /serving 1 fit/.test(b.log()), 120_000);
     const ready = Date.now();
-    await until('a tick', async () => (await runsOf('sched_every')).some((r) => r.status === 'succeeded'), 75_000, [a, b]);
+    await serve.until('a tick', async () => (await runsOf('sched_every')).some((r) => r.status === 'succeeded'), 75_000);
     const firstAfter = (Date.now() - ready) / 1000;
     // Then through the next minute boundary, so that at least two ticks were served.
     await new Promise((r) => setTimeout(r, 60_000 - (Date.now() % 60_000) + 10_000));
@@ -167,12 +120,12 @@ describe.skipIf(ON_EMBEDDED)('rowfold serve, schedules and runs (needs a server:
   });
 
   it('SIGTERM lets the running fit finish and complete its job, then exits 0', { timeout: 180_000 }, async () => {
-    const s = startServe([slowPath, '--db', tdb.url]);
-    await until('ready', () => /serving 1 fit/.test(s.log()), 120_000);
+    const s = serve.start([slowPath, '--db', tdb.url]);
+    await serve.until('ready', () => /serving 1 fit/.test(s.log()), 120_000);
     const queue = fitQueueName('rowfold', 'sched_slow');
     const before = (await runsOf('sched_slow')).length;
     const id = await (await testBoss()).send(queue, { fit: 'sched_slow', schema: 'rowfold' });
-    await until('the job to start', () => s.log().includes(`job ${id} started`));
+    await serve.until('the job to start', () => s.log().includes(`job ${id} started`), 30_000);
     s.child.kill('SIGTERM');
     expect(await s.exited).toBe(0);
     expect(s.log()).toMatch(/SIGTERM: taking no more jobs; running fits finish first/);
