@@ -1,13 +1,13 @@
-import { fUpper, tQuantile, tTwoSided } from '../numeric/distributions.js';
+import { tQuantile } from '../numeric/distributions.js';
 import { dd, ddAdd, ddDiv, ddMul } from '../numeric/double-double.js';
 import { packedIndex } from '../numeric/packed.js';
 import { solveUpper } from '../numeric/triangular.js';
 import type { Accumulator } from './accumulator.js';
 import type { CoefficientResult, FitSolution } from './fit-solution.js';
+import { coefficientInference, modelStatistics } from './fit-statistics.js';
 import { solve } from './solve.js';
 import type { SolveOptions } from './solve.js';
 
-const LN_2PI = Math.log(2 * Math.PI);
 const T = dd();
 const S = dd();
 
@@ -126,52 +126,21 @@ export function solveExtended(acc: Accumulator, options: SolveOptions = {}): Fit
   ddDiv(rssH, rssL, df, 0, S);
   const s2h = S.hi;
   const s2l = S.lo;
-  const sigma = Math.sqrt(s2h) + s2l / (2 * Math.sqrt(s2h) || 1);
   const q = tQuantile(1 - (1 - base.confidence) / 2, df);
   const coefficients: CoefficientResult[] = base.coefficients.map((c, j) => {
     ddMul(s2h, s2l, invSq[2 * j]!, invSq[2 * j + 1]!, T);
     const v = T.hi;
     const se = Math.sqrt(v) + (v > 0 ? T.lo / (2 * Math.sqrt(v)) : 0);
-    const estimate = betaH[j]!;
-    const t = estimate / se;
-    return {
-      ...c,
-      estimate,
-      stdError: se,
-      t,
-      p: tTwoSided(t, df),
-      ciLow: estimate - q * se,
-      ciHigh: estimate + q * se,
-    };
+    return coefficientInference(c, betaH[j]!, se, q, df);
   });
-  const ratio = (ah: number, al: number, bh: number, bl: number) => ddDiv(ah, al, bh, bl, S).hi;
-  const r2 = tssH > 0 ? (icpt === 1 && pd === 1 ? 0 : ddAdd(1, 0, -ratio(rssH, rssL, tssH, tssL), 0, T).hi) : null;
-  const fDf1 = pd - icpt;
-  let f: number | null = null;
-  let fP: number | null = null;
-  if (fDf1 > 0) {
-    ddDiv(essH, essL, fDf1, 0, T);
-    const numH = T.hi;
-    const numL = T.lo;
-    f = rssH > 0 ? ratio(numH, numL, s2h, s2l) : Number.POSITIVE_INFINITY;
-    fP = fUpper(f, fDf1, df);
-  }
   const rss = rssH + rssL;
-  const logLik = (-rows / 2) * (LN_2PI + Math.log(rss / rows) + 1) + acc.sumLogWeights / 2;
   return {
     ...base,
     notes,
     accuracy: 'extended',
     estimatedDigits: extendedDigits(base),
     rss,
-    sigma,
-    r2,
-    r2Adjusted: r2 === null ? null : 1 - ((1 - r2) * (rows - icpt)) / df,
-    f,
-    fP,
-    logLik,
-    aic: -2 * logLik + 2 * (pd + 1),
-    bic: -2 * logLik + Math.log(rows) * (pd + 1),
+    ...modelStatistics({ rss, ess: essH + essL, tss: tssH + tssL, rows, rank: pd, intercept: icpt === 1, sumLogWeights: acc.sumLogWeights }),
     coefficients,
   };
 }

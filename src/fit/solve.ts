@@ -1,4 +1,4 @@
-import { tQuantile, tTwoSided, fUpper } from '../numeric/distributions.js';
+import { tQuantile } from '../numeric/distributions.js';
 import { singularValues } from '../numeric/jacobi-svd.js';
 import { norm2 } from '../numeric/norm.js';
 import { orderedRankQr } from '../numeric/ordered-rank-qr.js';
@@ -8,6 +8,7 @@ import { invertUpper, solveUpper, upperTimesTranspose } from '../numeric/triangu
 import type { Accumulator } from './accumulator.js';
 import { INTERCEPT_TERM } from './fit-solution.js';
 import type { CoefficientResult, FitSolution, FitStatus } from './fit-solution.js';
+import { coefficientInference, modelStatistics } from './fit-statistics.js';
 
 /** Options of {@link solve}. */
 export interface SolveOptions {
@@ -20,8 +21,6 @@ export interface SolveOptions {
    */
   readonly rankTolerance?: number;
 }
-
-const LN_2PI = Math.log(2 * Math.PI);
 
 /**
  * Solves the model held by an accumulator: rank decision on the column-scaled factor,
@@ -105,8 +104,6 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
 
   const sv = singularValues(k, k, qr.r11);
   const condition = k > 0 ? sv[0]! / sv[k - 1]! : null;
-  // An intercept-only model explains nothing by definition; say 0, not rounding noise.
-  const r2 = !(tss > 0) ? null : intercept && k === 1 ? 0 : 1 - rss / tss;
 
   const rInv = invertUpper(k, qr.r11, k);
   const cScaled = upperTimesTranspose(k, rInv);
@@ -119,7 +116,6 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
 
   const inference = status === 'ok';
   const sigma2 = inference ? rss / dfResidual : Number.NaN;
-  const sigma = inference ? Math.sqrt(sigma2) : null;
   const q = inference ? tQuantile(1 - (1 - confidence) / 2, dfResidual) : Number.NaN;
 
   const coefficients: CoefficientResult[] = [];
@@ -140,19 +136,7 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
       coefficients.push({ ...nullCoefficient(names[j]!, false), estimate, vif });
       continue;
     }
-    const stdError = Math.sqrt(sigma2 * cjj) / d;
-    const t = estimate / stdError;
-    coefficients.push({
-      term: names[j]!,
-      aliased: false,
-      estimate,
-      stdError,
-      t,
-      p: tTwoSided(t, dfResidual),
-      ciLow: estimate - q * stdError,
-      ciHigh: estimate + q * stdError,
-      vif,
-    });
+    coefficients.push(coefficientInference({ term: names[j]!, vif }, estimate, Math.sqrt(sigma2 * cjj) / d, q, dfResidual));
   }
 
   let covariance: Float64Array | null = null;
@@ -181,28 +165,6 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
         }
       : undefined;
 
-  const fDf1 = k - icpt;
-  let f: number | null = null;
-  let fP: number | null = null;
-  if (inference && fDf1 > 0) {
-    f = ess / fDf1 / (rss / dfResidual);
-    fP = fUpper(f, fDf1, dfResidual);
-  }
-  let r2Adjusted: number | null = null;
-  if (inference && r2 !== null) {
-    r2Adjusted = 1 - ((1 - r2) * (rows - icpt)) / dfResidual;
-  }
-  let logLik: number | null = null;
-  let aic: number | null = null;
-  let bic: number | null = null;
-  if (inference) {
-    // Gaussian log-likelihood at the ML variance RSS/n; a weighted fit adds ½ Σ ln w.
-    logLik = (-rows / 2) * (LN_2PI + Math.log(rss / rows) + 1) + acc.sumLogWeights / 2;
-    // k coefficients plus the error variance.
-    aic = -2 * logLik + 2 * (k + 1);
-    bic = -2 * logLik + Math.log(rows) * (k + 1);
-  }
-
   return {
     ...base,
     status,
@@ -212,16 +174,7 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
     rank: k,
     dfResidual,
     rss,
-    sigma,
-    r2,
-    r2Adjusted,
-    f,
-    fDf1: inference && fDf1 > 0 ? fDf1 : null,
-    fDf2: inference && fDf1 > 0 ? dfResidual : null,
-    fP,
-    logLik,
-    aic,
-    bic,
+    ...modelStatistics({ rss, ess, tss, rows, rank: k, intercept, sumLogWeights: acc.sumLogWeights }),
     condition,
     rankTolerance: tol,
     aliased,
@@ -343,17 +296,7 @@ function unshiftIntercept(
     covariance[i * k] = cg[i]!;
   }
   covariance[0] = variance;
-  const stdError = Math.sqrt(variance);
-  const t = estimate / stdError;
-  coefficients[0] = {
-    ...c0,
-    estimate,
-    stdError,
-    t,
-    p: tTwoSided(t, df),
-    ciLow: estimate - q * stdError,
-    ciHigh: estimate + q * stdError,
-  };
+  coefficients[0] = coefficientInference(c0, estimate, Math.sqrt(variance), q, df);
 }
 
 function nullCoefficient(term: string, aliased: boolean): CoefficientResult {
