@@ -1,16 +1,26 @@
 import { choleskyPacked } from '../numeric/gram-update.js';
 import { packedLength } from '../numeric/packed.js';
+import { mergeResidualSums, residualSumsLength } from '../numeric/residual-sums.js';
 import type { RowBlock } from '../numeric/row-block.js';
 import { blockColumnNames, checkBlockRows, fitErrorContext } from './accumulator-check.js';
 import { foldRowsDD, mergeFactorDD } from './accumulator-fold-dd.js';
 import { foldRowsNormal, mergeGram } from './accumulator-fold-normal.js';
 import { foldRowsQr, mergeFactorQr } from './accumulator-fold-qr.js';
+import { foldRowsResiduals } from './accumulator-fold-residuals.js';
 import { firstRowShift, moveToShift } from './accumulator-shift.js';
-import type { AccumulatorState, DesignShape, FoldCounts, FoldLayout, FoldMethod, FoldPrecision } from './accumulator-state.js';
+import type {
+  AccumulatorState,
+  DesignShape,
+  FoldCounts,
+  FoldLayout,
+  FoldMethod,
+  FoldPrecision,
+  RefinementAnchor,
+} from './accumulator-state.js';
 import { FitInputError } from './fit-input-error.js';
 import { FoldWorkspace, sharedWorkspace } from './fold-workspace.js';
 
-export type { AccumulatorState, DesignShape, FoldMethod, FoldPrecision } from './accumulator-state.js';
+export type { AccumulatorState, DesignShape, FoldMethod, FoldPrecision, RefinementAnchor } from './accumulator-state.js';
 
 /**
  * The running least-squares state of one model: the R factor of the augmented weighted
@@ -23,8 +33,10 @@ export type { AccumulatorState, DesignShape, FoldMethod, FoldPrecision } from '.
  *
  * This class checks, counts, shifts and serialises; the fold algorithms live one per file:
  * Householder QR in double (accumulator-fold-qr.ts), the Gram update of the normal
- * equations (accumulator-fold-normal.ts) and Householder QR in double-double
- * (accumulator-fold-dd.ts).
+ * equations (accumulator-fold-normal.ts), Householder QR in double-double
+ * (accumulator-fold-dd.ts); given an `anchor` it also sums, in compensated arithmetic, the
+ * residuals against the anchor's coefficients (accumulator-fold-residuals.ts) — with
+ * `factor: false`, as a refinement pass does, instead of folding a factor.
  *
  * @example
  * const acc = new Accumulator({ terms: ['x'], response: 'y', intercept: true });
@@ -47,6 +59,10 @@ export class Accumulator {
   /** Low parts of R when the precision is double-double. */
   private readonly rLow: Float64Array | undefined;
   private cholesky: Float64Array | undefined;
+  /** Residual sums against `anchor`, when there is one. */
+  private readonly sums: Float64Array | undefined;
+  /** The coefficients a refinement pass forms residuals against, or undefined. */
+  readonly anchor: RefinementAnchor | undefined;
   private readonly workspace: FoldWorkspace;
   private shiftBy: Float64Array | undefined;
   private readonly counts: FoldCounts = { rows: 0, zeroWeightRows: 0, sumWeights: 0, sumLogWeights: 0 };
@@ -63,6 +79,10 @@ export class Accumulator {
        * more than double precision (numeric columns) reach a double-double fold intact.
        */
       pairs?: boolean;
+      /** Sum residuals against these coefficients (see RefinementAnchor). */
+      anchor?: RefinementAnchor | undefined;
+      /** Fold the factor (default true); false with an anchor: residual sums only. */
+      factor?: boolean;
     } = {},
   ) {
     this.shape = shape;
@@ -72,14 +92,26 @@ export class Accumulator {
       throw new RangeError('double-double precision is available for the qr method only');
     }
     this.pairs = options.pairs ?? false;
-    if (this.pairs && this.precision !== 'double-double') {
-      throw new RangeError('values in high/low pairs need double-double precision');
+    this.anchor = options.anchor;
+    const folds = options.factor ?? true;
+    if (!folds && this.anchor === undefined) throw new RangeError('an accumulator without a factor needs an anchor');
+    if (this.pairs && this.precision !== 'double-double' && folds) {
+      throw new RangeError('values in high/low pairs need double-double precision or residual sums only');
     }
     this.order = shape.terms.length + (shape.intercept ? 1 : 0) + 1;
+    if (this.anchor !== undefined && this.anchor.coefficients.length !== this.order - 1) {
+      throw new RangeError(`an anchor needs ${this.order - 1} coefficients, got ${this.anchor.coefficients.length}`);
+    }
     this.label = options.label;
     this.workspace = options.workspace ?? sharedWorkspace;
-    this.r = new Float64Array(packedLength(this.order));
+    this.r = new Float64Array(folds ? packedLength(this.order) : 0);
     this.rLow = this.precision === 'double-double' ? new Float64Array(this.r.length) : undefined;
+    this.sums = this.anchor === undefined ? undefined : new Float64Array(residualSumsLength(this.order - 1));
+  }
+
+  /** The residual sums of a refinement pass (undefined otherwise; read-only view). */
+  get residuals(): Float64Array | undefined {
+    return this.sums;
   }
 
   /** Low parts of the double-double factor (undefined in double precision). */
@@ -167,14 +199,15 @@ export class Accumulator {
       other.order !== this.order ||
       other.shape.intercept !== this.shape.intercept ||
       other.method !== this.method ||
-      other.precision !== this.precision
+      other.precision !== this.precision ||
+      other.anchor !== this.anchor
     ) {
       throw new FitInputError(
         `cannot merge a factor of order ${other.order} into one of order ${this.order}: the models differ`,
         fitErrorContext(this.label),
       );
     }
-    this.absorb(other.r, other.rLow, other.shiftBy, other.counts);
+    this.absorb(other.r, other.rLow, other.shiftBy, other.counts, other.sums);
   }
 
   /** A copy of the state, for storage or transfer to another thread. */
@@ -189,6 +222,7 @@ export class Accumulator {
       zeroWeightRows: this.counts.zeroWeightRows,
       sumWeights: this.counts.sumWeights,
       sumLogWeights: this.counts.sumLogWeights,
+      ...(this.sums === undefined ? {} : { residuals: this.sums.slice() }),
     };
   }
 
@@ -200,7 +234,10 @@ export class Accumulator {
     if ((state.factorLow === undefined) !== (this.rLow === undefined)) {
       throw new FitInputError('cannot merge factors of different precision', fitErrorContext(this.label));
     }
-    this.absorb(state.factor, state.factorLow, state.shift, state);
+    if ((state.residuals === undefined) !== (this.sums === undefined) || (state.residuals !== undefined && state.residuals.length !== this.sums!.length)) {
+      throw new FitInputError('cannot merge residual sums with a state that has none', fitErrorContext(this.label));
+    }
+    this.absorb(state.factor, state.factorLow, state.shift, state, state.residuals);
   }
 
   /** Folds another factor in and adds its counts: the common body of merge and mergeState. */
@@ -209,8 +246,10 @@ export class Accumulator {
     low: Float64Array | undefined,
     shift: Float64Array | undefined,
     counts: Readonly<FoldCounts>,
+    sums: Float64Array | undefined,
   ): void {
-    this.mergeFactor(factor, low, shift);
+    if (this.sums !== undefined) mergeResidualSums(this.sums, sums!);
+    if (this.r.length > 0) this.mergeFactor(factor, low, shift);
     this.counts.rows += counts.rows;
     this.counts.zeroWeightRows += counts.zeroWeightRows;
     this.counts.sumWeights += counts.sumWeights;
@@ -225,6 +264,8 @@ export class Accumulator {
       method: this.method,
       precision: this.precision,
       pairs: this.pairs,
+      anchor: this.anchor,
+      factor: this.r.length > 0,
     });
     copy.mergeState(this.state());
     return copy;
@@ -258,6 +299,12 @@ export class Accumulator {
 
   private foldChecked(v: Float64Array, width: number, from: number, to: number): void {
     const layout = this.layout();
+    if (this.sums !== undefined) {
+      // Counted once: by the factor's fold when there is one.
+      const counts = this.r.length > 0 ? { rows: 0, zeroWeightRows: 0, sumWeights: 0, sumLogWeights: 0 } : this.counts;
+      foldRowsResiduals(layout, this.anchor!, this.sums, v, width, from, to, counts);
+      if (this.r.length === 0) return;
+    }
     if (this.rLow !== undefined) {
       foldRowsDD(layout, this.r, this.rLow, v, width, from, to, this.counts, this.workspace);
       return;

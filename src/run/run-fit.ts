@@ -16,6 +16,7 @@ import type { ModelRecord, StoreDatabase } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { finishRefit, startRefit, storedStates } from './refit.js';
 import type { RefitOutcome, RefitStart } from './refit.js';
+import { certifyDigits } from './accuracy-passes.js';
 import { readPass } from './read-pass.js';
 import { toolVersion } from './tool-version.js';
 
@@ -54,7 +55,7 @@ export interface FittedModel {
   readonly segment: Record<string, string | null> | null;
   readonly segmentKey: string;
   readonly solution: FitSolution;
-  /** Streamed passes over the data the run took (2 when `auto` added a double-double pass). */
+  /** Streamed passes over this model's rows (more than 1 when `auto` refined it or folded it in double-double). */
   readonly passes: number;
 }
 
@@ -165,9 +166,6 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
   }
 }
 
-/** Estimated correct digits below which `accuracy: auto` takes a double-double pass. */
-export const AUTO_EXTENDED_BELOW_DIGITS = 13.5;
-
 /**
  * The arithmetic and plan of a run's passes: the first pass (double precision, or double-double
  * when `accuracy: extended` and the run is not a refit) and the double-double pass that `auto`
@@ -242,21 +240,15 @@ export async function readAndSolve(
   const solutions = new Map<string, FitSolution>();
   for (const s of all.states()) solutions.set(s.keyText, solveOne(s));
 
-  // auto: one more pass, in double-double, for the models double precision cannot vouch for.
-  // (With a refit, `extended` is this pass for every segment, over all its rows.)
-  let passes = 1;
-  if (accuracy === 'auto' || (accuracy === 'extended' && refit !== null)) {
-    const weak = new Set(
-      [...solutions]
-        .filter(([, f]) => accuracy === 'extended' || (f.estimatedDigits !== null && f.estimatedDigits < AUTO_EXTENDED_BELOW_DIGITS))
-        .map(([k]) => k),
-    );
-    if (weak.size > 0) {
-      passes = 2;
-      const second = await readPass(database, extendedPlan, spec, req, { ...extendedOptions, only: weak }, progress);
-      for (const s of second.fit.states()) solutions.set(s.keyText, solveOne(s));
-    }
-  }
+  // auto: more passes for the models double precision cannot vouch for (refinement, or a
+  // double-double fold). With a refit, `extended` is a double-double pass for every segment.
+  const passes =
+    accuracy === 'auto' || (accuracy === 'extended' && refit !== null)
+      ? await certifyDigits(
+          { database, spec, req, accuracy, plan: extendedPlan, pairs: extendedOptions.pairs === true, models: all.states(), progress },
+          solutions,
+        )
+      : new Map<string, number>();
 
   const models: FittedModel[] = [];
   let rowsUsed = 0;
@@ -270,7 +262,7 @@ export async function readAndSolve(
     rowsUsed += solution.rows;
     zeroWeight += solution.zeroWeightRows;
     const segment = keyNames.length === 0 ? null : Object.fromEntries(keyNames.map((n, i) => [n, s.key[i] ?? null]));
-    models.push({ segment, segmentKey: keyNames.length === 0 ? '' : s.keyText, solution, passes });
+    models.push({ segment, segmentKey: keyNames.length === 0 ? '' : s.keyText, solution, passes: passes.get(s.keyText) ?? 1 });
   }
   if (done !== undefined) {
     // A refit's counts are of the rows it read; its models also hold the stored rows.
