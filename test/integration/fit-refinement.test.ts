@@ -1,0 +1,153 @@
+// Reference: exact least-squares solutions in rational arithmetic (Python's fractions
+// module; scripts/make-refinement-fixtures.py), fitted here from PostgreSQL tables through
+// `rowfold fit` with default settings: models with coefficients near zero beside large ones
+// are refined in one more pass that reads only their segments, and reach LRE ≥ 13.
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import type { FitSolution } from '../../src/fit/fit-solution.js';
+import { restrictToSegments } from '../../src/plan/segment-filter.js';
+import { escapeLiteral } from 'pg';
+import { runFit } from '../../src/run/run-fit.js';
+import { EXACT, exactLres } from '../support/exact-cases.js';
+import type { ExactCase } from '../support/exact-cases.js';
+import { createTestDatabase } from '../support/pg-database.js';
+import type { TestDatabase } from '../support/pg-database.js';
+import { runCli, writeSpec } from '../support/run-cli.js';
+
+let tdb: TestDatabase;
+
+const tableOf = (c: ExactCase) => `exact_${c.name.replaceAll('-', '_')}`;
+
+async function load(table: string, c: ExactCase, segment?: (i: number) => string | null): Promise<void> {
+  const cols = [...c.terms, 'y', ...(c.weighted ? ['w'] : [])];
+  const seg = segment === undefined ? '' : 'seg text, ';
+  await tdb.query(`create table if not exists ${table} (${seg}${cols.map((n) => `${n} float8`).join(', ')})`);
+  const params: unknown[] = cols.map((_, j) => c.rows.map((r) => r[j]));
+  if (segment !== undefined) params.unshift(c.rows.map((_, i) => segment(i)));
+  const arrays = params.map((_, j) => `$${j + 1}::${segment !== undefined && j === 0 ? 'text' : 'float8'}[]`).join(', ');
+  await tdb.query(`insert into ${table} select * from unnest(${arrays})`, params);
+}
+
+beforeAll(async () => {
+  tdb = await createTestDatabase('refine');
+  for (const c of EXACT.cases) await load(tableOf(c), c);
+}, 120_000);
+afterAll(() => tdb?.drop());
+
+interface Model {
+  segment: Record<string, string | null> | null;
+  sigma: number;
+  r2: number;
+  f: number | string;
+  accuracy: string;
+  estimated_digits: number;
+  passes: number;
+  refinement_steps: number;
+  coefficients: { estimate: number; std_error: number }[];
+}
+
+async function fitJson(spec: Record<string, unknown>, extra: string[] = []): Promise<Model[]> {
+  const res = await runCli(['fit', writeSpec(spec), '--db', tdb.url, '--json', ...extra]);
+  expect(res.stderr).toBe('');
+  expect(res.code).toBe(0);
+  return (JSON.parse(res.stdout) as { models: Model[] }).models;
+}
+
+function specOf(c: ExactCase, source = tableOf(c)): Record<string, unknown> {
+  return { name: `refine_${c.name.replaceAll('-', '_')}`, source, response: 'y', terms: [...c.terms], intercept: c.intercept, ...(c.weighted ? { weight: 'w' } : {}) };
+}
+
+function lresOf(c: ExactCase, m: Model) {
+  const asFit = {
+    sigma: m.sigma,
+    r2: m.r2,
+    f: typeof m.f === 'string' ? Number(m.f) : m.f,
+    coefficients: m.coefficients.map((k) => ({ estimate: k.estimate, stdError: k.std_error })),
+  } as unknown as FitSolution;
+  return exactLres(c, asFit);
+}
+
+describe(`rowfold fit refines near-zero coefficients (reference: exact solutions, ${EXACT.library})`, () => {
+  for (const c of EXACT.cases) {
+    it(`${c.name}: default settings refine in one more pass to LRE ≥ 13, as estimated (±2); fast stays short`, async () => {
+      const [auto] = await fitJson(specOf(c));
+      const [fast] = await fitJson(specOf(c), ['--accuracy', 'fast']);
+      const got = lresOf(c, auto!);
+      expect(auto).toMatchObject({ accuracy: 'refined', passes: 2, refinement_steps: 1 });
+      expect(got.min).toBeGreaterThanOrEqual(13);
+      expect(Math.abs(auto!.estimated_digits - got.min)).toBeLessThanOrEqual(2);
+      expect(fast).toMatchObject({ accuracy: 'fast', passes: 1, refinement_steps: 0 });
+      expect(lresOf(c, fast!).min).toBeLessThan(13);
+    });
+  }
+
+  it('with a fold thread the refinement pass gives the same model', async () => {
+    const c = EXACT.cases.find((x) => x.name === 'weighted-zeros')!;
+    const spec = specOf(c);
+    const threads = await runFit({ specPath: writeSpec(spec), db: tdb.url, threads: 1 });
+    const inline = await runFit({ specPath: writeSpec(spec), db: tdb.url, threads: 0 });
+    const a = threads.models[0]!;
+    const b = inline.models[0]!;
+    expect(a.solution.accuracy).toBe('refined');
+    expect(a.passes).toBe(2);
+    a.solution.coefficients.forEach((k, i) => {
+      const w = b.solution.coefficients[i]!;
+      expect(Math.abs(k.estimate! - w.estimate!)).toBeLessThanOrEqual(1e-13 * Math.abs(w.estimate!));
+    });
+    expect(lresOf(c, { ...solutionModel(a.solution) }).min).toBeGreaterThanOrEqual(13);
+  });
+
+  it('only the segments that need it are read again: the others keep one pass and their fast models', async () => {
+    // Segment "near" (and the NULL segment) hold a design with coefficients near zero; "plain"
+    // holds the same predictors with a response every coefficient of which is well determined.
+    const c = EXACT.cases.find((x) => x.name === 'zero-intercept')!;
+    await load('mixed', c, () => 'near');
+    await load('mixed', c, () => null);
+    const plain: ExactCase = {
+      ...c,
+      rows: c.rows.map((r, i) => [...r.slice(0, -1), 10 + r.slice(0, -1).reduce((s, x, j) => s + (j + 1) * x, 0) + 0.1 * Math.sin(i)]),
+    };
+    await load('mixed', plain, () => 'plain');
+    const models = await fitJson({ ...specOf(c, 'mixed'), name: 'refine_mixed', segment_by: 'seg' });
+    const bySegment = new Map(models.map((m) => [m.segment?.['seg'] ?? null, m]));
+    expect(bySegment.get('plain')).toMatchObject({ accuracy: 'fast', passes: 1 });
+    for (const key of ['near', null]) {
+      const m = bySegment.get(key)!;
+      expect(m).toMatchObject({ accuracy: 'refined', passes: 2, refinement_steps: 1 });
+      expect(lresOf(c, m).min).toBeGreaterThanOrEqual(13);
+    }
+  });
+
+  it('the segment filter runs in the database: the narrowed design query returns only those segments, NULL keys included', async () => {
+    await tdb.query(`create table keyed as select (array['a','b',null])[1 + g % 3] as k1, (array['x',null])[1 + g % 2] as k2,
+                       g::float8 as x, (2 * g)::float8 as y from generate_series(1, 60) g`);
+    const dry = await runFit({ specPath: writeSpec({ name: 'keyed', source: 'keyed', response: 'y', terms: ['x'], segment_by: ['k1', 'k2'] }), db: tdb.url, dryRun: true });
+    const wanted: (string | null)[][] = [['a', null], [null, 'x'], ['b', 'x']];
+    const narrowed = restrictToSegments(dry.plan, wanted);
+    for (const query of [narrowed.queries[0]!.toBound(), { text: narrowed.queries[0]!.toInline(escapeLiteral), values: [] }]) {
+      const rows = (await tdb.query<{ k0: string | null; k1: string | null }>(query.text, query.values)).rows;
+      const seen = new Set(rows.map((r) => JSON.stringify([r.k0, r.k1])));
+      expect([...seen].sort()).toEqual(wanted.map((k) => JSON.stringify(k)).sort());
+      expect(rows).toHaveLength(30);
+    }
+    // One segment column: a NULL segment is matched by IS NULL.
+    const one = await runFit({ specPath: writeSpec({ name: 'keyed1', source: 'keyed', response: 'y', terms: ['x'], segment_by: ['k1'] }), db: tdb.url, dryRun: true });
+    const q = restrictToSegments(one.plan, [[null], ['b']]).queries[0]!.toBound();
+    const rows = (await tdb.query<{ k0: string | null }>(q.text, q.values)).rows;
+    expect(new Set(rows.map((r) => r.k0))).toEqual(new Set([null, 'b']));
+    expect(rows).toHaveLength(40);
+  });
+});
+
+function solutionModel(s: FitSolution): Model {
+  return {
+    segment: null,
+    sigma: s.sigma!,
+    r2: s.r2!,
+    f: s.f!,
+    accuracy: s.accuracy,
+    estimated_digits: s.estimatedDigits!,
+    passes: 2,
+    refinement_steps: s.refinementSteps,
+    coefficients: s.coefficients.map((k) => ({ estimate: k.estimate!, std_error: k.stdError! })),
+  };
+}
