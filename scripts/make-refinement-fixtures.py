@@ -102,7 +102,29 @@ def exact_fit(rows, p, intercept, weighted, kept):
     }
 
 
-def case(name, description, rows, terms, intercept, weighted, aliased=()):
+def generated_rows(spec):
+    """The rows of a generated case, as test/support/exact-cases.ts makes them: draws of the
+    Park-Miller generator (state = 16807 * state mod 2^31 - 1, exact in doubles) over 2^31,
+    y summed left to right in double arithmetic, so both languages get the same doubles."""
+    state = spec["seed"]
+
+    def draw():
+        nonlocal state
+        state = (16807 * state) % 2147483647
+        return state / 2147483648
+
+    rows = []
+    for _ in range(spec["rows"]):
+        x = [draw() for _ in spec["coefficients"]]
+        y = 0.0
+        for c, v in zip(spec["coefficients"], x):
+            y += c * v
+        y += (draw() - 0.5) * spec["noise"]
+        rows.append(x + [y])
+    return rows
+
+
+def case(name, description, rows, terms, intercept, weighted, aliased=(), generated=None):
     p = len(terms)
     names = (["intercept"] if intercept else []) + list(terms)
     kept = [i for i, t in enumerate(names) if t not in aliased]
@@ -115,7 +137,7 @@ def case(name, description, rows, terms, intercept, weighted, aliased=()):
         "weighted": weighted,
         "terms": list(terms),
         "aliased": list(aliased),
-        "rows": rows,
+        **({"generated": generated} if generated is not None else {"rows": rows}),
         "exact": {
             "estimates": full(exact["estimates"]),
             "std_errors": full(exact["std_errors"]),
@@ -197,6 +219,12 @@ def main():
         rows.append([x1, x2, x1 + x2, x4, 100.0 + 30.0 * x1 - 20.0 * x2 + 2e-6 * x4 + 1e-5 * rng.gauss(0, 1)])
     cases.append(case("aliased", "x3 = x1 + x2 exactly (aliased); x4's coefficient 2e-6 beside 30 and -20; noise 1e-5.",
                       rows, ["x1", "x2", "x3", "x4"], True, False, aliased=("x3",)))
+
+    # 8. Large enough for the first pass to refine on its own (sums gathered as rows come):
+    # 100,000 generated rows (not stored: the tests make the same doubles), true intercept 0.
+    gen = {"seed": 20261113, "rows": 100000, "coefficients": [1.5, -2.25, 0.75, 3.0, -1.0, 0.5, 2.0, -0.25], "noise": 0.2}
+    cases.append(case("generated-100k", "100,000 generated rows, eight uniform predictors, true intercept 0, noise uniform of width 0.2.",
+                      generated_rows(gen), [f"g{j + 1}" for j in range(8)], True, False, generated=gen))
 
     with open(OUT, "w") as fh:
         json.dump({"generator": GENERATOR, "library": LIBRARY, "cases": cases}, fh, indent=1)

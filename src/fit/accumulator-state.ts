@@ -1,3 +1,5 @@
+import type { TrackingState } from './accumulator-residual-tracking.js';
+
 /** The columns an accumulator folds, by name, for shape checks and error messages. */
 export interface DesignShape {
   /** Names of the design columns supplied in each block row (the intercept excluded). */
@@ -49,6 +51,8 @@ export interface AccumulatorState {
    * (layout in numeric/residual-sums.ts); the factor is then empty.
    */
   readonly residuals?: Float64Array | undefined;
+  /** Residual sums gathered with the factor (see ResidualTracking), when tracked. */
+  readonly tracking?: TrackingState | undefined;
 }
 
 /**

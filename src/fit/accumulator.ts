@@ -7,6 +7,7 @@ import { foldRowsDD, mergeFactorDD } from './accumulator-fold-dd.js';
 import { foldRowsNormal, mergeGram } from './accumulator-fold-normal.js';
 import { foldRowsQr, mergeFactorQr } from './accumulator-fold-qr.js';
 import { foldRowsResiduals } from './accumulator-fold-residuals.js';
+import { anchorOfFactor, ResidualTracking } from './accumulator-residual-tracking.js';
 import { firstRowShift, moveToShift } from './accumulator-shift.js';
 import type {
   AccumulatorState,
@@ -19,8 +20,15 @@ import type {
 } from './accumulator-state.js';
 import { FitInputError } from './fit-input-error.js';
 import { FoldWorkspace, sharedWorkspace } from './fold-workspace.js';
+import { solve } from './solve.js';
+import { MAX_DIGITS } from './solve-digits.js';
 
 export type { AccumulatorState, DesignShape, FoldMethod, FoldPrecision, RefinementAnchor } from './accumulator-state.js';
+
+/** Rows at which a tracked small model is checked once for digits it already has (see moveAnchor). */
+const COMFORT_ROWS = 16384;
+/** Largest order checked: the check solves the model, O(order³). */
+const COMFORT_ORDER = 64;
 
 /**
  * The running least-squares state of one model: the R factor of the augmented weighted
@@ -63,6 +71,8 @@ export class Accumulator {
   private readonly sums: Float64Array | undefined;
   /** The coefficients a refinement pass forms residuals against, or undefined. */
   readonly anchor: RefinementAnchor | undefined;
+  /** Residual sums gathered with the factor (option `track`), or undefined. */
+  private readonly tracking: ResidualTracking | undefined;
   private readonly workspace: FoldWorkspace;
   private shiftBy: Float64Array | undefined;
   private readonly counts: FoldCounts = { rows: 0, zeroWeightRows: 0, sumWeights: 0, sumLogWeights: 0 };
@@ -83,6 +93,12 @@ export class Accumulator {
       anchor?: RefinementAnchor | undefined;
       /** Fold the factor (default true); false with an anchor: residual sums only. */
       factor?: boolean;
+      /**
+       * Gather residual sums with the factor (double-precision QR only): against this fixed
+       * anchor, or, with `'follow'`, against the solution of the rows folded so far (see
+       * ResidualTracking) — a refinement step that costs no extra pass.
+       */
+      track?: RefinementAnchor | 'follow' | undefined;
     } = {},
   ) {
     this.shape = shape;
@@ -107,11 +123,27 @@ export class Accumulator {
     this.r = new Float64Array(folds ? packedLength(this.order) : 0);
     this.rLow = this.precision === 'double-double' ? new Float64Array(this.r.length) : undefined;
     this.sums = this.anchor === undefined ? undefined : new Float64Array(residualSumsLength(this.order - 1));
+    if (options.track !== undefined) {
+      if (this.method !== 'qr' || this.precision !== 'double' || this.pairs || !folds || this.anchor !== undefined) {
+        throw new RangeError('residual tracking needs a double-precision QR factor of single values');
+      }
+      this.tracking = new ResidualTracking(this.order - 1, options.track === 'follow' ? undefined : options.track);
+    }
   }
 
   /** The residual sums of a refinement pass (undefined otherwise; read-only view). */
   get residuals(): Float64Array | undefined {
     return this.sums;
+  }
+
+  /**
+   * The residual sums gathered with the factor (option `track`) — against `anchor`, with the
+   * anchor's moves (`drift`, see ResidualTracking) and a bound on their rounding of the
+   * residual sum of squares — or undefined without tracking or when it was given up.
+   */
+  get tracked(): { anchor: RefinementAnchor; sums: Float64Array; drift: Float64Array; rssError: number } | undefined {
+    const t = this.tracking;
+    return t === undefined || !t.valid ? undefined : { anchor: t.anchor, sums: t.sums, drift: t.drift, rssError: t.rssError };
   }
 
   /** Low parts of the double-double factor (undefined in double precision). */
@@ -207,7 +239,7 @@ export class Accumulator {
         fitErrorContext(this.label),
       );
     }
-    this.absorb(other.r, other.rLow, other.shiftBy, other.counts, other.sums);
+    this.absorb(other.r, other.rLow, other.shiftBy, other.counts, other.sums, other.tracking);
   }
 
   /** A copy of the state, for storage or transfer to another thread. */
@@ -223,6 +255,7 @@ export class Accumulator {
       sumWeights: this.counts.sumWeights,
       sumLogWeights: this.counts.sumLogWeights,
       ...(this.sums === undefined ? {} : { residuals: this.sums.slice() }),
+      ...(this.tracking === undefined ? {} : { tracking: this.tracking.state() }),
     };
   }
 
@@ -237,7 +270,10 @@ export class Accumulator {
     if ((state.residuals === undefined) !== (this.sums === undefined) || (state.residuals !== undefined && state.residuals.length !== this.sums!.length)) {
       throw new FitInputError('cannot merge residual sums with a state that has none', fitErrorContext(this.label));
     }
-    this.absorb(state.factor, state.factorLow, state.shift, state, state.residuals);
+    // A state without residual tracking (stored, or from a split run's partition) ends this
+    // one's tracking; a state's tracking is ignored by an accumulator without.
+    const tracking = state.tracking === undefined || this.tracking === undefined ? undefined : new ResidualTracking(this.order - 1, undefined, state.tracking);
+    this.absorb(state.factor, state.factorLow, state.shift, state, state.residuals, tracking);
   }
 
   /** Folds another factor in and adds its counts: the common body of merge and mergeState. */
@@ -247,8 +283,21 @@ export class Accumulator {
     shift: Float64Array | undefined,
     counts: Readonly<FoldCounts>,
     sums: Float64Array | undefined,
+    tracking?: ResidualTracking,
   ): void {
     if (this.sums !== undefined) mergeResidualSums(this.sums, sums!);
+    if (this.tracking !== undefined) {
+      // Before the factors merge: each side's sums move with its own rows' factor.
+      if (tracking === undefined) this.tracking.abandon();
+      else {
+        this.tracking.mergeFrom(
+          tracking,
+          { factor: this.r.slice(), shift: this.shiftBy, rows: this.counts.rows },
+          { factor, shift, rows: counts.rows },
+          this.order,
+        );
+      }
+    }
     if (this.r.length > 0) this.mergeFactor(factor, low, shift);
     this.counts.rows += counts.rows;
     this.counts.zeroWeightRows += counts.zeroWeightRows;
@@ -266,6 +315,7 @@ export class Accumulator {
       pairs: this.pairs,
       anchor: this.anchor,
       factor: this.r.length > 0,
+      ...(this.tracking === undefined ? {} : { track: 'follow' as const }),
     });
     copy.mergeState(this.state());
     return copy;
@@ -315,7 +365,37 @@ export class Accumulator {
       return;
     }
     if (this.shiftBy === undefined && this.shifts) this.shiftBy = firstRowShift(layout, v, width, from, to);
-    foldRowsQr(layout, this.r, v, width, from, to, this.shiftBy, this.counts, this.workspace);
+    const t = this.tracking;
+    if (t === undefined) {
+      foldRowsQr(layout, this.r, v, width, from, to, this.shiftBy, this.counts, this.workspace);
+      return;
+    }
+    // With tracking, the range is cut where the anchor moves (row counts are a guide: rows of
+    // weight zero make a move come a little later).
+    for (let at = from; at < to; ) {
+      const end = t.follow && t.valid ? Math.min(to, at + Math.max(1, t.nextMove - this.counts.rows)) : to;
+      foldRowsQr(layout, this.r, v, width, at, end, this.shiftBy, this.counts, this.workspace);
+      t.fold(layout, v, width, at, end);
+      at = end;
+      if (t.follow && t.valid && this.counts.rows >= t.nextMove) this.moveAnchor(t);
+    }
+  }
+
+  /**
+   * Moves a following anchor to the solution of the rows folded so far (later at twice the
+   * rows). Tracking is given up for a small model whose solution already has every digit a
+   * double can show after 16,384 rows: a coefficient that far from zero needs no refinement,
+   * and the sums would only cost time.
+   */
+  private moveAnchor(t: ResidualTracking): void {
+    const rows = this.counts.rows;
+    t.nextMove = 2 * Math.max(t.nextMove, rows);
+    const next = anchorOfFactor(this.r, this.order, this.shiftBy, this.shape.intercept);
+    if (next === undefined) return;
+    t.moveTo(next, this.r, this.order, this.shiftBy, rows);
+    if (rows >= COMFORT_ROWS && rows < 2 * COMFORT_ROWS && this.order <= COMFORT_ORDER && (solve(this).estimatedDigits ?? 0) >= MAX_DIGITS) {
+      t.abandon();
+    }
   }
 
   private mergeFactor(other: Float64Array, otherLow?: Float64Array, otherShift?: Float64Array): void {

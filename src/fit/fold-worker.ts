@@ -94,7 +94,9 @@ if (parentPort !== null) {
     const reply: FoldWorkerReply = { type: 'states', segments };
     port.postMessage(
       reply,
-      segments.flatMap((s) => [s.state.factor, s.state.factorLow, s.state.residuals].filter((a) => a !== undefined).map((a) => a.buffer as ArrayBuffer)),
+      segments.flatMap((s) =>
+        [s.state.factor, s.state.factorLow, s.state.residuals, s.state.tracking?.sums].filter((a) => a !== undefined).map((a) => a.buffer as ArrayBuffer),
+      ),
     );
   });
 }

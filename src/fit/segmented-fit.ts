@@ -14,6 +14,8 @@ export interface SegmentedFitOptions {
   readonly anchors?: ReadonlyMap<string, RefinementAnchor>;
   /** Fold the factors (default true); false: residual sums against `anchors` only. */
   readonly factor?: boolean;
+  /** Gather residual sums with each factor, against the solution so far (see ResidualTracking). */
+  readonly track?: 'follow';
 }
 
 /** One segment's accumulator with its key. */
@@ -179,9 +181,9 @@ export class SegmentedFit {
     if (!s) {
       const label =
         this.keyNames.length === 0 ? undefined : this.keyNames.map((n, i) => `${n}=${key[i] ?? 'NULL'}`).join(', ');
-      const { method, precision, pairs, factor } = this.options;
+      const { method, precision, pairs, factor, track } = this.options;
       const anchor = this.options.anchors?.get(keyText);
-      s = { key, keyText, acc: new Accumulator(this.shape, { label, method, precision, pairs, anchor, ...(factor === undefined ? {} : { factor }) }) };
+      s = { key, keyText, acc: new Accumulator(this.shape, { label, method, precision, pairs, anchor, track, ...(factor === undefined ? {} : { factor }) }) };
       this.segments.set(keyText, s);
     }
     return s;

@@ -20,16 +20,19 @@ export const MAX_REFINEMENT_STEPS = 3;
  * The rate at which a refinement step shrinks the error, from the factor's conditioning.
  * A step of the corrected semi-normal equations with exact residuals leaves the error
  * e' = (RᵀR)⁻¹(RᵀR − AᵀA)e, and with R the exact factor of A + ΔA, ‖ΔA‖ ≈ u‖A‖, that is
- * (AᵀA)⁻¹(AᵀΔA + ΔAᵀA)e: at most u·κ² of e, but about u·κ when e lies, as a least-squares
- * solution's error does, mostly along the weak directions of A (Björck, "Numerical Methods
- * for Least Squares Problems", SIAM 1996, on the corrected semi-normal equations and
- * iterative refinement — cited from memory, the section not checked). We take
- * 2·u·κ·√k, κ the condition number of the scaled factor as folded and k its order (the two
- * terms, and k rounding errors added in quadrature): a judgement, checked against the
- * contraction measured on the NIST sets (Filip: 4e-6 against 2.7e-6 predicted).
+ * (AᵀA)⁻¹(AᵀΔA + ΔAᵀA)e: at most about u·κ² of e, but about u·κ when e lies, as a
+ * least-squares solution's error does, mostly along the weak directions of A, and less when
+ * the rounding errors behind ΔA are spread over many rows (Björck, "Numerical Methods for
+ * Least Squares Problems", SIAM 1996, on the corrected semi-normal equations and iterative
+ * refinement — cited from memory, the section not checked). We take u·κ, κ the condition
+ * number of the scaled factor as folded: a typical rather than a worst-case rate, checked
+ * against what refinement measured — within a digit of the errors left on the synthetic
+ * designs of test/reference (one step, and sums gathered in the first pass), on the NIST
+ * sets that refine, and on a quartic near 1000 (κ 1.8e8); Filip's measured contraction,
+ * 4e-6, is five times this (Filip takes the double-double fold).
  */
 export function refinementRate(f: FactorAnalysis): number {
-  return f.factorCondition === null ? 0 : 2 * U * f.factorCondition * Math.sqrt(f.qr.rank);
+  return f.factorCondition === null ? 0 : U * f.factorCondition;
 }
 
 /** Fastest rate at which refinement is worth its passes (two digits gained per step). */
@@ -61,6 +64,12 @@ export interface RefinementInput {
   readonly step: number;
   /** Norm of the previous step's scaled correction, when there was one. */
   readonly previousCorrection?: number | undefined;
+  /**
+   * For sums gathered while the anchor moved (ResidualTracking): Σ rows·|Δc| per coefficient,
+   * and a bound on the rounding of the residual sum of squares the moves left.
+   */
+  readonly drift?: Float64Array | undefined;
+  readonly rssError?: number | undefined;
 }
 
 /** A refined solution, and the norm of its scaled correction (for the next step's rate). */
@@ -140,16 +149,23 @@ export function solveRefined(acc: Accumulator, input: RefinementInput, options: 
   let rate = refinementRate(f);
   const size = scaledNorm(f, estimates);
   if (input.previousCorrection !== undefined && correction > 16 * U * size) rate = Math.max(rate, correction / input.previousCorrection);
+  // Sums gathered while the anchor moved carry each move's error, the factor's error times
+  // the move, weighted by the share of the rows it was made over.
+  let moved = 0;
+  if (input.drift !== undefined) kept.forEach((j, pos) => (moved = Math.hypot(moved, input.drift![j]! * f.scale[j]!)));
+  moved /= Math.max(1, acc.rows);
   // What the pass's arithmetic leaves: residuals formed as pairs (about (k·u)² relative to
   // the terms they cancel) whose gradient's error the solve amplifies by up to κ².
   const kappa = f.factorCondition ?? 1;
   const floor = (k * U) ** 2 * kappa * kappa * (size + Math.sqrt(rss));
-  const errors = propagatedErrors(f, rate * correction + floor);
-  const seErrors = stdErrorErrors(f, Number.EPSILON);
+  const errors = propagatedErrors(f, rate * (correction + moved) + floor);
+  // σ² comes from the pass's residual sum of squares: its rounding moves every standard error.
+  const sigmaErr = rss > 0 ? (input.rssError ?? 0) / (2 * rss) : 0;
+  const seErrors = stdErrorErrors(f, Number.EPSILON).map((e) => e + sigmaErr);
   return { solution: { ...solution, estimatedDigits: digitsOf(estimates, { estimate: errors, stdError: seErrors }) }, correction };
 }
 
-/** ‖b̃‖: the norm of the coefficients in the scaled coordinates of the factor as folded. */
+/** ‖b̃‖: the norm of coefficients (kept, coordinates as given) in the scaled coordinates of the factor as folded. */
 function scaledNorm(f: FactorAnalysis, estimates: Float64Array): number {
   const { kept } = f.qr;
   let intercept = estimates[0]!;

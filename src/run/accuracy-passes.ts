@@ -51,17 +51,40 @@ export async function certifyDigits(input: AccuracyPassInput, solutions: Map<str
   const byKey = new Map(input.models.map((s) => [s.keyText, s]));
   const refine = new Set<string>();
   const extend = new Set<string>();
+  const corrections = new Map<string, number>();
+  const steps = new Map<string, number>();
   for (const s of input.models) {
-    const fit = solutions.get(s.keyText)!;
+    let fit = solutions.get(s.keyText)!;
     if (fit.status !== 'ok' && fit.status !== 'no_residual_df') continue;
-    if (input.accuracy === 'extended') extend.add(s.keyText);
-    else if (fit.estimatedDigits !== null && fit.estimatedDigits < AUTO_TARGET_DIGITS) {
-      (remedyFor(s.acc, fit, AUTO_TARGET_DIGITS) === 'refine' ? refine : extend).add(s.keyText);
+    if (input.accuracy === 'extended') {
+      extend.add(s.keyText);
+      continue;
     }
+    if (fit.estimatedDigits === null || fit.estimatedDigits >= AUTO_TARGET_DIGITS) continue;
+    // The refinement step gathered in the first pass (residual tracking), when there is one.
+    const tracked = s.acc.tracked;
+    if (tracked !== undefined) {
+      const { solution, correction } = solveRefined(
+        s.acc,
+        { anchor: tracked.anchor, sums: tracked.sums, step: 1, drift: tracked.drift, rssError: tracked.rssError },
+        { confidence: input.spec.confidence },
+      );
+      steps.set(s.keyText, 1);
+      if ((solution.estimatedDigits ?? 0) >= AUTO_TARGET_DIGITS) {
+        solutions.set(s.keyText, solution);
+        continue;
+      }
+      // Short still: the next pass starts from the better of the two solutions.
+      if ((solution.estimatedDigits ?? 0) > fit.estimatedDigits) {
+        solutions.set(s.keyText, solution);
+        corrections.set(s.keyText, correction);
+        fit = solution;
+      } else steps.delete(s.keyText);
+    }
+    (remedyFor(s.acc, fit, AUTO_TARGET_DIGITS) === 'refine' ? refine : extend).add(s.keyText);
   }
   // The check of the double-double solution: residuals against the first pass's estimates.
   const firstAnchors = new Map<string, RefinementAnchor>();
-  const corrections = new Map<string, number>();
   const read1 = (key: string) => passes.set(key, (passes.get(key) ?? 1) + 1);
   for (let step = 1; step <= MAX_REFINEMENT_STEPS && refine.size > 0; step++) {
     const anchors = new Map<string, RefinementAnchor>();
@@ -80,16 +103,18 @@ export async function certifyDigits(input: AccuracyPassInput, solutions: Map<str
         extend.add(s.keyText);
         continue;
       }
+      const taken = (steps.get(s.keyText) ?? 0) + 1;
+      steps.set(s.keyText, taken);
       const { solution, correction } = solveRefined(
         acc,
-        { anchor: anchors.get(s.keyText)!, sums: s.acc.residuals!, step, previousCorrection: corrections.get(s.keyText) },
+        { anchor: anchors.get(s.keyText)!, sums: s.acc.residuals!, step: taken, previousCorrection: corrections.get(s.keyText) },
         { confidence: input.spec.confidence },
       );
       const before = corrections.get(s.keyText);
       corrections.set(s.keyText, correction);
       solutions.set(s.keyText, solution);
       if ((solution.estimatedDigits ?? 0) >= AUTO_TARGET_DIGITS) refine.delete(s.keyText);
-      else if (step === MAX_REFINEMENT_STEPS || (before !== undefined && !(correction < before))) {
+      else if (taken >= MAX_REFINEMENT_STEPS || (before !== undefined && !(correction < before))) {
         // Short after the last step, or no longer converging: the double-double fold.
         refine.delete(s.keyText);
         extend.add(s.keyText);

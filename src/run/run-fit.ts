@@ -176,6 +176,8 @@ export function passesOf(
   plan: DesignPlan,
   req: Pick<RunFitRequest, 'read' | 'accuracy'>,
   refit: RefitStart | null,
+  /** False for a split run's partitions, whose stored partial factors keep no residual sums. */
+  tracking = true,
 ): {
   accuracy: 'auto' | 'fast' | 'extended';
   extendedPlan: DesignPlan;
@@ -192,12 +194,15 @@ export function passesOf(
   };
   // A refit folds its first pass in double precision, the arithmetic of stored state.
   const ddFirst = accuracy === 'extended' && refit === null;
+  // auto gathers a refinement step in the first pass when its values are the data's own
+  // (numeric columns arrive rounded to float8 in the first pass: their step needs a pass of its own).
+  const track = tracking && accuracy === 'auto' && spec.method === 'qr' && refit === null && extendedOptions.pairs !== true;
   return {
     accuracy,
     extendedPlan,
     extendedOptions,
     firstPlan: ddFirst ? extendedPlan : plan,
-    firstOptions: ddFirst ? extendedOptions : { method: spec.method },
+    firstOptions: ddFirst ? extendedOptions : { method: spec.method, ...(track ? { track: 'follow' as const } : {}) },
   };
 }
 

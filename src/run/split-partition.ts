@@ -54,7 +54,7 @@ export async function foldPartition(req: PartitionRequest): Promise<PartitionOut
     }
     return await keepSplitRunAlive(store, req.schema, req.runId, async () => {
       const spec = splitRunSpec(run);
-      const { firstPlan, firstOptions } = passesOf(spec, designPlanFromJson(run.plan), {}, null);
+      const { firstPlan, firstOptions } = passesOf(spec, designPlanFromJson(run.plan), {}, null, false);
       const one = { ...firstPlan, queries: [firstPlan.queries[req.partition]!] };
       const started = performance.now();
       const { fit, counts } = await readPass(database, one, spec, { specPath: spec.origin }, firstOptions, { rows: 0, last: started, started });

@@ -10,8 +10,10 @@ export interface ExactCase {
   readonly weighted: boolean;
   readonly terms: readonly string[];
   readonly aliased: readonly string[];
-  /** Rows `[terms…, y(, w)]`. */
-  readonly rows: readonly number[][];
+  /** Rows `[terms…, y(, w)]` (see {@link rowsOf}); absent for a generated case. */
+  readonly rows?: readonly number[][];
+  /** How a generated case's rows are made (see {@link rowsOf}). */
+  readonly generated?: { readonly seed: number; readonly rows: number; readonly coefficients: readonly number[]; readonly noise: number };
   /** The exact least-squares solution (rational arithmetic), 40 significant digits; null for aliased terms. */
   readonly exact: {
     readonly estimates: readonly (string | null)[];
@@ -21,6 +23,34 @@ export interface ExactCase {
     readonly f: string | null;
   };
 }
+
+/**
+ * The rows of a case: stored, or generated as scripts/make-refinement-fixtures.py makes them
+ * (Park–Miller draws over 2³¹, y summed left to right), the same doubles in both languages.
+ */
+export function rowsOf(c: ExactCase): readonly number[][] {
+  if (c.rows !== undefined) return c.rows;
+  const made = generatedRows.get(c);
+  if (made !== undefined) return made;
+  const g = c.generated!;
+  let state = g.seed;
+  const draw = () => {
+    state = (16807 * state) % 2147483647;
+    return state / 2147483648;
+  };
+  const rows: number[][] = [];
+  for (let i = 0; i < g.rows; i++) {
+    const x = g.coefficients.map(() => draw());
+    let y = 0;
+    g.coefficients.forEach((c, j) => (y += c * x[j]!));
+    y += (draw() - 0.5) * g.noise;
+    rows.push([...x, y]);
+  }
+  generatedRows.set(c, rows);
+  return rows;
+}
+
+const generatedRows = new WeakMap<ExactCase, number[][]>();
 
 /** The fixture: exact solutions from Python's fractions module. */
 export const EXACT = JSON.parse(readFileSync(new URL('../fixtures/reference/exact-cases.json', import.meta.url), 'utf8')) as {
