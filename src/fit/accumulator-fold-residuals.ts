@@ -1,5 +1,6 @@
 import { addResidualSums, splitCoefficients } from '../numeric/residual-sums.js';
 import type { FoldCounts, FoldLayout, RefinementAnchor } from './accumulator-state.js';
+import { wasmCompensated } from './wasm-kernel.js';
 
 /** Dekker halves of each anchor's coefficients, made once per anchor. */
 const halves = new WeakMap<RefinementAnchor, { hi: Float64Array; lo: Float64Array }>();
@@ -9,7 +10,8 @@ const halves = new WeakMap<RefinementAnchor, { hi: Float64Array; lo: Float64Arra
  * of a block against `anchor` to `sums` (see numeric/residual-sums.ts), counting rows and
  * weights as a factor fold does. Values come one double each, or as (high, low) pairs when
  * `layout.pairs` (numeric columns carried beyond double), so the residuals are those of the
- * data as stored.
+ * data as stored. The WebAssembly SIMD kernel sums single values when it is built; pairs
+ * and the fallback take the TypeScript kernel.
  */
 export function foldRowsResiduals(
   layout: FoldLayout,
@@ -23,5 +25,26 @@ export function foldRowsResiduals(
 ): void {
   let split = halves.get(anchor);
   if (split === undefined) halves.set(anchor, (split = splitCoefficients(anchor.coefficients)));
-  addResidualSums(layout, v, width, from, to, anchor.coefficients, split.hi, split.lo, anchor.centre, sums, counts);
+  const wasm = layout.pairs ? null : wasmCompensated();
+  if (wasm === null) {
+    addResidualSums(layout, v, width, from, to, anchor.coefficients, split.hi, split.lo, anchor.centre, sums, counts);
+    return;
+  }
+  // The SIMD kernel sums; the rows and weights are counted here.
+  wasm.residualSums(layout, v, width, from, to, anchor.coefficients, split.hi, split.lo, anchor.centre, sums);
+  if (!layout.weighted) {
+    counts.rows += to - from;
+    counts.sumWeights += to - from;
+    return;
+  }
+  for (let row = from; row < to; row++) {
+    const w = v[row * width + width - 1]!;
+    if (w === 0) {
+      counts.zeroWeightRows++;
+      continue;
+    }
+    counts.rows++;
+    counts.sumWeights += w;
+    counts.sumLogWeights += Math.log(w);
+  }
 }

@@ -21,7 +21,6 @@ import type {
 import { FitInputError } from './fit-input-error.js';
 import { FoldWorkspace, sharedWorkspace } from './fold-workspace.js';
 import { solve } from './solve.js';
-import { MAX_DIGITS } from './solve-digits.js';
 
 export type { AccumulatorState, DesignShape, FoldMethod, FoldPrecision, RefinementAnchor } from './accumulator-state.js';
 
@@ -29,6 +28,8 @@ export type { AccumulatorState, DesignShape, FoldMethod, FoldPrecision, Refineme
 const COMFORT_ROWS = 16384;
 /** Largest order checked: the check solves the model, O(order³). */
 const COMFORT_ORDER = 64;
+/** Estimated digits at which a tracked small model gives its tracking up (see moveAnchor). */
+const COMFORT_DIGITS = 14.5;
 
 /**
  * The running least-squares state of one model: the R factor of the augmented weighted
@@ -383,9 +384,10 @@ export class Accumulator {
 
   /**
    * Moves a following anchor to the solution of the rows folded so far (later at twice the
-   * rows). Tracking is given up for a small model whose solution already has every digit a
-   * double can show after 16,384 rows: a coefficient that far from zero needs no refinement,
-   * and the sums would only cost time.
+   * rows). Tracking is given up for a small model whose solution is estimated at 14.5
+   * digits or more after 16,384 rows: its coefficients are far enough from zero that the
+   * fast solve will vouch for them (estimates fall by about half a digit per tenfold rows
+   * for a coefficient near zero), and the sums would only cost time.
    */
   private moveAnchor(t: ResidualTracking): void {
     const rows = this.counts.rows;
@@ -393,7 +395,7 @@ export class Accumulator {
     const next = anchorOfFactor(this.r, this.order, this.shiftBy, this.shape.intercept);
     if (next === undefined) return;
     t.moveTo(next, this.r, this.order, this.shiftBy, rows);
-    if (rows >= COMFORT_ROWS && rows < 2 * COMFORT_ROWS && this.order <= COMFORT_ORDER && (solve(this).estimatedDigits ?? 0) >= MAX_DIGITS) {
+    if (rows >= COMFORT_ROWS && rows < 2 * COMFORT_ROWS && this.order <= COMFORT_ORDER && (solve(this).estimatedDigits ?? 0) >= COMFORT_DIGITS) {
       t.abandon();
     }
   }
