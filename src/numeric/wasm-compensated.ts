@@ -1,4 +1,5 @@
-import type { ResidualLayout } from './residual-sums.js';
+import type { householderFoldDD } from './householder-fold-dd.js';
+import type { addResidualSums, ResidualLayout } from './residual-sums.js';
 
 /**
  * The WebAssembly (128-bit SIMD) compensated-arithmetic kernels, instantiated from their
@@ -22,11 +23,14 @@ export class WasmCompensated {
     sums: number,
   ) => void;
 
+  private readonly runFoldDD: (n: number, rh: number, rl: number, bh: number, bl: number, m: number, ld: number) => void;
+
   constructor(bytes: Uint8Array) {
     this.memory = new WebAssembly.Memory({ initial: 16 });
     const module = new WebAssembly.Module(bytes);
     const instance = new WebAssembly.Instance(module, { env: { memory: this.memory, abort: () => undefined } });
     this.runResidualSums = instance.exports['residualSums'] as WasmCompensated['runResidualSums'];
+    this.runFoldDD = instance.exports['foldDD'] as WasmCompensated['runFoldDD'];
   }
 
   /**
@@ -58,6 +62,25 @@ export class WasmCompensated {
     heap.set(v.subarray(from * width, to * width), rowsAt);
     this.runResidualSums(rowsAt * 8, to - from, width, layout.terms, layout.intercept ? 1 : 0, layout.weighted ? 1 : 0, 0, q * 8, 2 * q * 8, centre, 3 * q * 8);
     sums.set(heap.subarray(3 * q, 3 * q + sums.length));
+  }
+
+  /**
+   * {@link householderFoldDD} of numeric/householder-fold-dd.ts: folds `m` rows staged
+   * column-major (leading dimension `ld`, high parts `bh`, low parts `bl`) into the packed
+   * double-double factor `rh` + `rl` of order `n`. The block is not modified.
+   */
+  foldDD(n: number, rh: Float64Array, rl: Float64Array, bh: Float64Array, bl: Float64Array, m: number, ld: number): void {
+    const len = rh.length;
+    const block = n * ld;
+    this.ensure((2 * len + 2 * block) * 8);
+    const heap = new Float64Array(this.memory.buffer, 0, 2 * len + 2 * block);
+    heap.set(rh, 0);
+    heap.set(rl, len);
+    heap.set(bh.subarray(0, block), 2 * len);
+    heap.set(bl.subarray(0, block), 2 * len + block);
+    this.runFoldDD(n, 0, len * 8, 2 * len * 8, (2 * len + block) * 8, m, ld);
+    rh.set(heap.subarray(0, len));
+    rl.set(heap.subarray(len, 2 * len));
   }
 
   private ensure(bytes: number): void {

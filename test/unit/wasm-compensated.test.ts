@@ -1,5 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { wasmCompensated } from '../../src/fit/wasm-kernel.js';
+import { householderFoldDD } from '../../src/numeric/householder-fold-dd.js';
+import { packedLength } from '../../src/numeric/packed.js';
 import { addResidualSums, residualSum, residualSumsLength, splitCoefficients } from '../../src/numeric/residual-sums.js';
 import { rng } from '../support/synthetic.js';
 
@@ -63,3 +65,41 @@ describe.skipIf(kernel === null && !required)(
     });
   },
 );
+
+describe.skipIf(kernel === null && !required)('WebAssembly SIMD double-double fold against the TypeScript kernel', () => {
+  it.each([
+    [2, 1],
+    [5, 7],
+    [13, 64],
+    [22, 161],
+  ])('order %i, %i rows per block: the same double-double factor to 1e-28 relative over 12 blocks', (n, m) => {
+    const u = rng(n * 977 + m);
+    const len = packedLength(n);
+    const ts = [new Float64Array(len), new Float64Array(len)] as const;
+    const wa = [new Float64Array(len), new Float64Array(len)] as const;
+    for (let t = 0; t < 12; t++) {
+      const bh = new Float64Array(m * n);
+      const bl = new Float64Array(m * n);
+      for (let i = 0; i < bh.length; i++) {
+        bh[i] = (u() - 0.5) * (1 + (i % n)) * 1e3;
+        bl[i] = bh[i]! * 1e-17 * (u() - 0.5);
+      }
+      kernel!.foldDD(n, wa[0], wa[1], bh, bl, m, m);
+      householderFoldDD(n, ts[0], ts[1], bh.slice(), bl.slice(), m, m);
+    }
+    // Rows of a triangular factor are determined up to sign (a reflection built from a
+    // column that rounding left at ±1e-31 or at 0 picks either): compare them sign-aligned.
+    const scale = Math.max(...ts[0].map(Math.abs));
+    let worst = 0;
+    for (let row = 0; row < n; row++) {
+      const start = packedLength(n) - packedLength(n - row);
+      const lead = (r: Float64Array) => Math.sign(Array.from(r.subarray(start, start + n - row)).find((x) => Math.abs(x) > 1e-20 * scale) ?? 1);
+      const st = lead(ts[0]);
+      const sw = lead(wa[0]);
+      for (let i = start; i < start + n - row; i++) {
+        worst = Math.max(worst, Math.abs(st * ts[0][i]! - sw * wa[0][i]! + (st * ts[1][i]! - sw * wa[1][i]!)) / scale);
+      }
+    }
+    expect(worst).toBeLessThan(1e-28);
+  });
+});

@@ -188,3 +188,232 @@ export function residualSums(
   store<f64>(at + 32, syyS);
   store<f64>(at + 40, syyE);
 }
+
+// ---------------------------------------------------------------------------------------
+// Double-double Householder fold: ../householder-fold-dd.ts (householderFoldDD), the same
+// reflectors in the same order, the loops over the block's rows two at a time in SIMD lanes.
+// r — packed R of order n, high parts at rh, low parts at rl; b — m rows column-major with
+// leading dimension ld, high parts at bh, low parts at bl (overwritten).
+
+@inline function rowStart(n: i32, i: i32): i32 {
+  return i * n - ((i * (i - 1)) >> 1);
+}
+
+// Scalar double-double results pass through these (no allocation).
+let H: f64 = 0;
+let L: f64 = 0;
+
+@inline function twoSumS(a: f64, b: f64): void {
+  const s = a + b;
+  const bb = s - a;
+  H = s;
+  L = a - (s - bb) + (b - bb);
+}
+
+@inline function ddAddS(ah: f64, al: f64, bh: f64, bl: f64): void {
+  twoSumS(ah, bh);
+  const s1 = H;
+  const e1 = L;
+  twoSumS(al, bl);
+  const s2 = H;
+  const e2 = L;
+  let e = e1 + s2;
+  const s = s1 + e;
+  e = e - (s - s1);
+  e += e2;
+  const h = s + e;
+  L = e - (h - s);
+  H = h;
+}
+
+@inline function ddMulS(ah: f64, al: f64, bh: f64, bl: f64): void {
+  const p = ah * bh;
+  let t = SPLITTER * ah;
+  const ahh = t - (t - ah);
+  const ahl = ah - ahh;
+  t = SPLITTER * bh;
+  const bhh = t - (t - bh);
+  const bhl = bh - bhh;
+  const e = ahh * bhh - p + ahh * bhl + ahl * bhh + ahl * bhl + (ah * bl + al * bh);
+  const h = p + e;
+  L = e - (h - p);
+  H = h;
+}
+
+@inline function ddDivS(ah: f64, al: f64, bh: f64, bl: f64): void {
+  // Two correction steps, as ../double-double.ts (ddDiv).
+  const q1 = ah / bh;
+  ddMulS(bh, bl, q1, 0);
+  ddAddS(ah, al, -H, -L);
+  const rh = H;
+  const rl = L;
+  const q2 = rh / bh;
+  ddMulS(bh, bl, q2, 0);
+  ddAddS(rh, rl, -H, -L);
+  const q3 = H / bh;
+  twoSumS(q1, q2);
+  ddAddS(H, L, q3, 0);
+}
+
+@inline function ddSqrtS(ah: f64, al: f64): void {
+  if (!(ah > 0)) {
+    H = ah == 0 ? 0 : NaN;
+    L = 0;
+    return;
+  }
+  const x = Math.sqrt(ah);
+  const p = x * x;
+  const t = SPLITTER * x;
+  const xh = t - (t - x);
+  const xl = x - xh;
+  const pe = xh * xh - p + 2 * xh * xl + xl * xl;
+  const diff = (ah - p - pe + al) / (2 * x);
+  const h = x + diff;
+  L = diff - (h - x);
+  H = h;
+}
+
+// Vector double-double values: (VH, VL) lanes.
+let VH: v128 = f64x2.splat(0);
+let VL: v128 = f64x2.splat(0);
+
+@inline function twoProdV(a: v128, b: v128): void {
+  const split = f64x2.splat(SPLITTER);
+  const p = f64x2.mul(a, b);
+  let t = f64x2.mul(split, a);
+  const ah = f64x2.sub(t, f64x2.sub(t, a));
+  const al = f64x2.sub(a, ah);
+  t = f64x2.mul(split, b);
+  const bh = f64x2.sub(t, f64x2.sub(t, b));
+  const bl = f64x2.sub(b, bh);
+  VH = p;
+  VL = f64x2.add(f64x2.add(f64x2.add(f64x2.sub(f64x2.mul(ah, bh), p), f64x2.mul(ah, bl)), f64x2.mul(al, bh)), f64x2.mul(al, bl));
+}
+
+// (VH, VL) = a · b for vector double-doubles a = (ah, al), b = (bh, bl).
+@inline function ddMulV(ah: v128, al: v128, bh: v128, bl: v128): void {
+  twoProdV(ah, bh);
+  const p = VH;
+  const e = f64x2.add(VL, f64x2.add(f64x2.mul(ah, bl), f64x2.mul(al, bh)));
+  const h = f64x2.add(p, e);
+  VL = f64x2.sub(e, f64x2.sub(h, p));
+  VH = h;
+}
+
+// (VH, VL) = a + b.
+@inline function ddAddV(ah: v128, al: v128, bh: v128, bl: v128): void {
+  let s1 = f64x2.add(ah, bh);
+  let bb = f64x2.sub(s1, ah);
+  const e1 = f64x2.add(f64x2.sub(ah, f64x2.sub(s1, bb)), f64x2.sub(bh, bb));
+  const s2 = f64x2.add(al, bl);
+  bb = f64x2.sub(s2, al);
+  const e2 = f64x2.add(f64x2.sub(al, f64x2.sub(s2, bb)), f64x2.sub(bl, bb));
+  let e = f64x2.add(e1, s2);
+  const s = f64x2.add(s1, e);
+  e = f64x2.add(f64x2.sub(e, f64x2.sub(s, s1)), e2);
+  const h = f64x2.add(s, e);
+  VL = f64x2.sub(e, f64x2.sub(h, s));
+  VH = h;
+}
+
+// Σ over the m rows of a_i·b_i in double-double (columns at ah/al and bh/bl), into (H, L).
+@inline function dotDD(ah: usize, al: usize, bh: usize, bl: usize, m: i32): void {
+  const m2 = m & ~1;
+  let sh = f64x2.splat(0);
+  let sl = f64x2.splat(0);
+  for (let i = 0; i < m2; i += 2) {
+    const o = <usize>i << 3;
+    ddMulV(v128.load(ah + o), v128.load(al + o), v128.load(bh + o), v128.load(bl + o));
+    ddAddV(sh, sl, VH, VL);
+    sh = VH;
+    sl = VL;
+  }
+  ddAddS(f64x2.extract_lane(sh, 0), f64x2.extract_lane(sl, 0), f64x2.extract_lane(sh, 1), f64x2.extract_lane(sl, 1));
+  for (let i = m2; i < m; i++) {
+    const o = <usize>i << 3;
+    const th = H;
+    const tl = L;
+    ddMulS(load<f64>(ah + o), load<f64>(al + o), load<f64>(bh + o), load<f64>(bl + o));
+    ddAddS(th, tl, H, L);
+  }
+}
+
+export function foldDD(n: i32, rh: usize, rl: usize, bh: usize, bl: usize, m: i32, ld: i32): void {
+  const m2 = m & ~1;
+  for (let j = 0; j < n; j++) {
+    const rj = <usize>rowStart(n, j) << 3;
+    const cjh = bh + (<usize>(j * ld) << 3);
+    const cjl = bl + (<usize>(j * ld) << 3);
+    dotDD(cjh, cjl, cjh, cjl, m);
+    const sh = H;
+    const sl = L;
+    // A column that is already zero needs no reflection (the identity is exact).
+    if (sh == 0) continue;
+    const alphaH = load<f64>(rh + rj);
+    const alphaL = load<f64>(rl + rj);
+    ddMulS(alphaH, alphaL, alphaH, alphaL);
+    ddAddS(H, L, sh, sl);
+    ddSqrtS(H, L);
+    // Sign opposite to alpha so alpha − beta never cancels.
+    let betaH = H;
+    let betaL = L;
+    if (alphaH >= 0) {
+      betaH = -betaH;
+      betaL = -betaL;
+    }
+    ddAddS(betaH, betaL, -alphaH, -alphaL);
+    ddDivS(H, L, betaH, betaL);
+    const tauH = H;
+    const tauL = L;
+    ddAddS(alphaH, alphaL, -betaH, -betaL);
+    // v = b_j / (alpha − beta), as a product with the double-double reciprocal.
+    ddDivS(1, 0, H, L);
+    const invH = f64x2.splat(H);
+    const invL = f64x2.splat(L);
+    for (let i = 0; i < m2; i += 2) {
+      const o = <usize>i << 3;
+      ddMulV(v128.load(cjh + o), v128.load(cjl + o), invH, invL);
+      v128.store(cjh + o, VH);
+      v128.store(cjl + o, VL);
+    }
+    const iH = f64x2.extract_lane(invH, 0);
+    const iL = f64x2.extract_lane(invL, 0);
+    for (let i = m2; i < m; i++) {
+      const o = <usize>i << 3;
+      ddMulS(load<f64>(cjh + o), load<f64>(cjl + o), iH, iL);
+      store<f64>(cjh + o, H);
+      store<f64>(cjl + o, L);
+    }
+    store<f64>(rh + rj, betaH);
+    store<f64>(rl + rj, betaL);
+    for (let k = j + 1; k < n; k++) {
+      const ckh = bh + (<usize>(k * ld) << 3);
+      const ckl = bl + (<usize>(k * ld) << 3);
+      const o = rj + (<usize>(k - j) << 3);
+      dotDD(cjh, cjl, ckh, ckl, m);
+      ddAddS(load<f64>(rh + o), load<f64>(rl + o), H, L);
+      ddMulS(H, L, tauH, tauL);
+      const svH = H;
+      const svL = L;
+      ddAddS(load<f64>(rh + o), load<f64>(rl + o), -svH, -svL);
+      store<f64>(rh + o, H);
+      store<f64>(rl + o, L);
+      const nsH = f64x2.splat(-svH);
+      const nsL = f64x2.splat(-svL);
+      for (let i = 0; i < m2; i += 2) {
+        const p = <usize>i << 3;
+        ddMulV(nsH, nsL, v128.load(cjh + p), v128.load(cjl + p));
+        ddAddV(v128.load(ckh + p), v128.load(ckl + p), VH, VL);
+        v128.store(ckh + p, VH);
+        v128.store(ckl + p, VL);
+      }
+      for (let i = m2; i < m; i++) {
+        const p = <usize>i << 3;
+        ddMulS(-svH, -svL, load<f64>(cjh + p), load<f64>(cjl + p));
+        ddAddS(load<f64>(ckh + p), load<f64>(ckl + p), H, L);
+        store<f64>(ckh + p, H);
+        store<f64>(ckl + p, L);
+      }
+    }
+  }
+}
