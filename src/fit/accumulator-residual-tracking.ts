@@ -260,3 +260,53 @@ export function anchorOfFactor(
   }
   return { coefficients: b, centre };
 }
+
+/**
+ * Residual tracking over the rows a packed factor holds, against `anchor` taken as their
+ * solution (a refit's previous, certified solution): the gradient there is taken as zero —
+ * off by the Gram matrix times the anchor's error, which joins the drift as
+ * rows·|T·error| — the residual sum of squares is the factor's last diagonal squared, and
+ * Σw(y − c), Σw(y − c)² are read off its response column (c the anchor's centre).
+ */
+export function solvedTracking(
+  factor: Float64Array,
+  order: number,
+  shift: Float64Array | undefined,
+  intercept: boolean,
+  rows: number,
+  anchor: RefinementAnchor,
+  error: Float64Array,
+): TrackingState {
+  const q = order - 1;
+  const sums = new Float64Array(residualSumsLength(q));
+  const rss = factor[packedIndex(order, q, q)]! ** 2;
+  sums[2 * q] = rss;
+  let s2 = 0;
+  for (let i = 0; i <= q; i++) s2 += factor[packedIndex(order, i, q)]! ** 2;
+  if (intercept) {
+    // Row 0: R₀₀ = ±√Σw and R₀,y = Σw(y − c_y)/R₀₀, c_y the response's shift.
+    const w = factor[0]! ** 2;
+    const s1 = factor[0]! * factor[packedIndex(order, 0, q)]!;
+    const d = anchor.centre - (shift?.[q - 1] ?? 0);
+    sums[2 * q + 2] = s1 - d * w;
+    sums[2 * q + 4] = s2 - 2 * d * s1 + d * d * w;
+  } else {
+    sums[2 * q + 4] = s2;
+  }
+  const drift = error.map((e) => rows * Math.abs(e));
+  if (shift !== undefined) {
+    let folded = Math.abs(error[0]!);
+    for (let j = 1; j < q; j++) folded += Math.abs(shift[j - 1]! * error[j]!);
+    drift[0] = rows * folded;
+  }
+  return {
+    coefficients: anchor.coefficients.slice(),
+    centre: anchor.centre,
+    sums,
+    drift,
+    rssError: U * rss * Math.sqrt(Math.max(1, rows)),
+    follow: false,
+    nextMove: Number.POSITIVE_INFINITY,
+    valid: true,
+  };
+}

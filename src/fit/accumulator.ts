@@ -7,7 +7,7 @@ import { foldRowsDD, mergeFactorDD } from './accumulator-fold-dd.js';
 import { foldRowsNormal, mergeGram } from './accumulator-fold-normal.js';
 import { foldRowsQr, mergeFactorQr } from './accumulator-fold-qr.js';
 import { foldRowsResiduals } from './accumulator-fold-residuals.js';
-import { anchorOfFactor, ResidualTracking } from './accumulator-residual-tracking.js';
+import { anchorOfFactor, ResidualTracking, solvedTracking } from './accumulator-residual-tracking.js';
 import { firstRowShift, moveToShift } from './accumulator-shift.js';
 import type {
   AccumulatorState,
@@ -277,6 +277,25 @@ export class Accumulator {
     this.absorb(state.factor, state.factorLow, state.shift, state, state.residuals, tracking);
   }
 
+  /**
+   * Merges stored state whose rows this accumulator's fixed tracking anchor solves — a
+   * refit's previous solution, correct to `error` per coefficient — so that a refit's
+   * refinement needs only the new rows' residuals: their gradient at the anchor is taken as
+   * zero, and the error, weighted by their rows, joins the tracking's drift (see
+   * solvedTracking).
+   */
+  mergeSolvedState(state: AccumulatorState, error: Float64Array): void {
+    const t = this.tracking;
+    if (t === undefined || t.follow || state.factorLow !== undefined || state.method !== 'qr') {
+      throw new RangeError('mergeSolvedState needs a double-precision QR state and tracking against a fixed anchor');
+    }
+    if (state.order !== this.order || state.factor.length !== this.r.length) {
+      throw new FitInputError(`stored factor has order ${state.order}; this model needs ${this.order}`, fitErrorContext(this.label));
+    }
+    const seeded = solvedTracking(state.factor, this.order, state.shift, this.shape.intercept, state.rows, t.anchor, error);
+    this.absorb(state.factor, undefined, state.shift, state, undefined, new ResidualTracking(this.order - 1, undefined, seeded));
+  }
+
   /** Folds another factor in and adds its counts: the common body of merge and mergeState. */
   private absorb(
     factor: Float64Array,
@@ -316,7 +335,7 @@ export class Accumulator {
       pairs: this.pairs,
       anchor: this.anchor,
       factor: this.r.length > 0,
-      ...(this.tracking === undefined ? {} : { track: 'follow' as const }),
+      ...(this.tracking === undefined ? {} : { track: this.tracking.follow ? ('follow' as const) : this.tracking.anchor }),
     });
     copy.mergeState(this.state());
     return copy;

@@ -94,7 +94,7 @@ export class FoldPool {
         ...(options.only === undefined ? {} : { only: [...options.only] }),
         ...(options.anchors === undefined ? {} : { anchors: [...options.anchors] }),
         ...(options.factor === undefined ? {} : { factor: options.factor }),
-        ...(options.track === undefined ? {} : { track: options.track }),
+        ...(options.track === undefined ? {} : { track: options.track === 'follow' ? options.track : [...options.track] }),
       },
     };
     this.slots = Array.from({ length: threads }, () => {

@@ -8,9 +8,10 @@ import type { SegmentedFitOptions } from './segmented-fit.js';
 export interface FoldWorkerData {
   readonly shape: DesignShape;
   readonly keyNames: readonly string[];
-  readonly options: Omit<SegmentedFitOptions, 'only' | 'anchors'> & {
+  readonly options: Omit<SegmentedFitOptions, 'only' | 'anchors' | 'track'> & {
     readonly only?: readonly string[];
     readonly anchors?: readonly (readonly [string, RefinementAnchor])[];
+    readonly track?: 'follow' | readonly (readonly [string, RefinementAnchor])[];
   };
 }
 
@@ -47,11 +48,12 @@ export type FoldWorkerReply =
 if (parentPort !== null) {
   const port = parentPort;
   const data = workerData as FoldWorkerData;
-  const { only, anchors, ...rest } = data.options;
+  const { only, anchors, track, ...rest } = data.options;
   const options: SegmentedFitOptions = {
     ...rest,
     ...(only === undefined ? {} : { only: new Set(only) }),
     ...(anchors === undefined ? {} : { anchors: new Map(anchors) }),
+    ...(track === undefined ? {} : { track: track === 'follow' ? track : new Map(track) }),
   };
   const fits = new Map<number, SegmentedFit>();
   const keyTables = new Map<number, (readonly (string | null)[])[]>();

@@ -14,8 +14,12 @@ export interface SegmentedFitOptions {
   readonly anchors?: ReadonlyMap<string, RefinementAnchor>;
   /** Fold the factors (default true); false: residual sums against `anchors` only. */
   readonly factor?: boolean;
-  /** Gather residual sums with each factor, against the solution so far (see ResidualTracking). */
-  readonly track?: 'follow';
+  /**
+   * Gather residual sums with each factor (see ResidualTracking): against the solution so far
+   * (`'follow'`), or against a fixed anchor per segment (by key text; segments without one
+   * are not tracked).
+   */
+  readonly track?: 'follow' | ReadonlyMap<string, RefinementAnchor>;
 }
 
 /** One segment's accumulator with its key. */
@@ -181,8 +185,9 @@ export class SegmentedFit {
     if (!s) {
       const label =
         this.keyNames.length === 0 ? undefined : this.keyNames.map((n, i) => `${n}=${key[i] ?? 'NULL'}`).join(', ');
-      const { method, precision, pairs, factor, track } = this.options;
+      const { method, precision, pairs, factor } = this.options;
       const anchor = this.options.anchors?.get(keyText);
+      const track = this.options.track instanceof Map ? this.options.track.get(keyText) : this.options.track;
       s = { key, keyText, acc: new Accumulator(this.shape, { label, method, precision, pairs, anchor, track, ...(factor === undefined ? {} : { factor }) }) };
       this.segments.set(keyText, s);
     }

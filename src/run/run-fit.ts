@@ -18,6 +18,7 @@ import { finishRefit, startRefit, storedStates } from './refit.js';
 import type { RefitOutcome, RefitStart } from './refit.js';
 import { certifyDigits } from './accuracy-passes.js';
 import { readPass } from './read-pass.js';
+import { previousSolutions } from './refit-anchors.js';
 import { toolVersion } from './tool-version.js';
 
 /** The spec file could not be read (missing, unreadable): a usage error, not a failed fit. */
@@ -121,6 +122,8 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel), req.full === true);
       return planFit(session, spec, parallel, refit.scope);
     });
+    // An incremental refit refines from the previous solutions (no pass over the stored rows).
+    if (refit !== null) refit = { ...(refit as RefitStart), solved: await previousSolutions(db, spec, refit) };
     const base = { spec, plan, connection: database.display };
     if (req.dryRun) {
       return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
@@ -196,13 +199,16 @@ export function passesOf(
   const ddFirst = accuracy === 'extended' && refit === null;
   // auto gathers a refinement step in the first pass when its values are the data's own
   // (numeric columns arrive rounded to float8 in the first pass: their step needs a pass of its own).
-  const track = tracking && accuracy === 'auto' && spec.method === 'qr' && refit === null && extendedOptions.pairs !== true;
+  const exact = tracking && accuracy === 'auto' && spec.method === 'qr' && extendedOptions.pairs !== true;
+  // A refit's new rows are summed against the previous solutions, a fresh fit's against the solution so far.
+  const solved = refit?.solved === undefined ? undefined : new Map([...refit.solved].map(([k, s]) => [k, s.anchor]));
+  const track = !exact ? undefined : refit === null ? ('follow' as const) : solved !== undefined && solved.size > 0 ? solved : undefined;
   return {
     accuracy,
     extendedPlan,
     extendedOptions,
     firstPlan: ddFirst ? extendedPlan : plan,
-    firstOptions: ddFirst ? extendedOptions : { method: spec.method, ...(track ? { track: 'follow' as const } : {}) },
+    firstOptions: ddFirst ? extendedOptions : { method: spec.method, ...(track === undefined ? {} : { track }) },
   };
 }
 

@@ -98,6 +98,33 @@ describe(`rowfold fit refines near-zero coefficients (reference: exact solutions
     expect(lresOf(c, model!).min).toBeGreaterThanOrEqual(13);
   });
 
+  it('an incremental refit refines from the previous certified solution: one pass over the new rows only, LRE ≥ 13 over all rows', async () => {
+    // The 100,000 generated rows in two parts: 90,000 fitted first, 10,000 arriving later.
+    const c = EXACT.cases.find((x) => x.name === 'generated-100k')!;
+    const rows = rowsOf(c);
+    const cols = [...c.terms, 'y'];
+    await tdb.query(`create table arriving (n int, ${cols.map((x) => `${x} float8`).join(', ')})`);
+    const insert = (from: number, to: number) =>
+      tdb.query(
+        `insert into arriving select * from unnest($1::int[], ${cols.map((_, j) => `$${j + 2}::float8[]`).join(', ')})`,
+        [Array.from({ length: to - from }, (_, i) => from + i), ...cols.map((_, j) => rows.slice(from, to).map((r) => r[j]))],
+      );
+    await insert(0, 90_000);
+    const spec = { ...specOf(c, 'arriving'), name: 'refine_refit', watermark: 'n' };
+    const [first] = await fitJson(spec);
+    expect(first!.estimated_digits).toBeGreaterThanOrEqual(13.5);
+    await insert(90_000, 100_000);
+    const res = await runCli(['fit', writeSpec(spec), '--db', tdb.url, '--json']);
+    expect(res.code, res.stderr).toBe(0);
+    const doc = JSON.parse(res.stdout) as { run: { rows_read: number; refit: string }; models: Model[] };
+    expect(doc.run).toMatchObject({ rows_read: 10_000, refit: 'incremental' });
+    const model = doc.models[0]!;
+    expect(model).toMatchObject({ accuracy: 'refined', passes: 1, refinement_steps: 1 });
+    const got = lresOf(c, model);
+    expect(got.min).toBeGreaterThanOrEqual(13);
+    expect(Math.abs(model.estimated_digits - got.min)).toBeLessThanOrEqual(2);
+  });
+
   it('with a fold thread the refinement pass gives the same model', async () => {
     const c = EXACT.cases.find((x) => x.name === 'weighted-zeros')!;
     const spec = specOf(c);
