@@ -1,4 +1,5 @@
 import pg from 'pg';
+import { seededRandom } from '../src/run/demo/seeded-random.js';
 import { BENCH_DB, benchUrl } from './bench-url.js';
 
 /** Creates the bench database when missing. */
@@ -34,19 +35,6 @@ export async function ensureUniformTable(w: { table: string; rows: number; terms
 /** How the response of an accuracy table is made. */
 export type ResponseKind = 'zero-intercept' | 'determined';
 
-/** Seeded normal draws (mulberry32 and Box–Muller), so the tables' coefficients are fixed. */
-function normals(count: number, seed: number): number[] {
-  let a = seed >>> 0;
-  const u = () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-  return Array.from({ length: count }, () => Math.sqrt(-2 * Math.log(1 - u())) * Math.cos(2 * Math.PI * u()));
-}
-
 /**
  * Creates an accuracy table when missing: uniform predictors x1…xp and
  * - `zero-intercept`: y = Σ b_j x_j + N(0, 1), b_j drawn from N(0, 1), true intercept 0
@@ -63,7 +51,8 @@ export async function ensureAccuracyTable(w: { rows: number; terms: number; kind
     if (have.rowCount !== 0) return table;
     console.log(`creating ${table} (${w.rows.toLocaleString('en-US')} rows × ${w.terms} terms, ${w.kind}) …`);
     const cols = Array.from({ length: w.terms }, (_, j) => `random() as x${j + 1}`).join(', ');
-    const b = w.kind === 'zero-intercept' ? normals(w.terms, 20261111 + w.terms) : Array.from({ length: w.terms }, (_, j) => j + 1);
+    const draws = seededRandom(20261111, `bench coefficients ${w.terms}`);
+    const b = w.kind === 'zero-intercept' ? Array.from({ length: w.terms }, () => draws.normal()) : Array.from({ length: w.terms }, (_, j) => j + 1);
     const sum = b.map((bj, j) => `${bj.toPrecision(17)} * x${j + 1}`).join(' + ');
     const noise = w.kind === 'zero-intercept' ? 'sqrt(-2 * ln(1 - u1)) * cos(2 * pi() * u2)' : '10 + u1 - 0.5';
     await c.query('select setseed(0.25)');

@@ -29,7 +29,7 @@ export const MAX_REFINEMENT_STEPS = 3;
  * against what refinement measured — within a digit of the errors left on the synthetic
  * designs of test/reference (one step, and sums gathered in the first pass), on the NIST
  * sets that refine, and on a quartic near 1000 (κ 1.8e8); Filip's measured contraction,
- * 4e-6, is five times this (Filip takes the double-double fold).
+ * 4e-6, is ten times this (Filip takes the double-double fold).
  */
 export function refinementRate(f: FactorAnalysis): number {
   return f.factorCondition === null ? 0 : U * f.factorCondition;
@@ -87,11 +87,13 @@ export interface RefinedSolution {
  * so σ, R², F and the likelihood carry the digits of the data. Standard errors are σ times
  * the double factor's (XᵀWX)⁻¹.
  *
- * The digit estimate is a posteriori: the error left after the step is about
- * ρ·‖δ‖ (ρ the rate of {@link refinementRate}, or the measured ratio of this correction to
- * the previous one when that is larger), per coefficient in its own units, plus u times
- * its standard error (the rounding of the residual products) and its own rounding; the
- * standard errors keep the double factor's perturbation estimate.
+ * The digit estimate is a posteriori: the error left after the step is about ρ·‖δ̃‖ in
+ * the scaled coordinates (ρ the rate of {@link refinementRate}, or the measured ratio of
+ * this correction to the previous one when that is larger; plus ρ times the anchor's moves,
+ * weighted by their rows, for sums gathered while it moved), spread over the coefficients
+ * by the rows of (XᵀX)⁻¹ (see propagatedErrors), with each estimate's own rounding as a
+ * floor; the standard errors keep the double factor's perturbation estimate, and σ the
+ * rounding of the pass's residual sum of squares.
  */
 export function solveRefined(acc: Accumulator, input: RefinementInput, options: SolveOptions = {}): RefinedSolution {
   const f = analyseFactor(acc, options.rankTolerance);

@@ -13,12 +13,6 @@ import type { RunFitRequest } from './run-fit.js';
 /** Estimated correct digits below which `accuracy: auto` takes more passes for a model. */
 export const AUTO_TARGET_DIGITS = 13.5;
 
-/** A model's solution and the streamed passes it took. */
-export interface CertifiedModel {
-  solution: FitSolution;
-  passes: number;
-}
-
 /** What the passes after the first need to know. */
 export interface AccuracyPassInput {
   readonly database: Database;
@@ -93,8 +87,9 @@ export async function certifyDigits(input: AccuracyPassInput, solutions: Map<str
       anchors.set(key, anchor);
       if (!firstAnchors.has(key)) firstAnchors.set(key, anchor);
     }
-    const read = await readSegments(input, refine, { anchors, factor: false, pairs: input.pairs });
-    for (const s of read.states()) {
+    const read = (await readSegments(input, refine, { anchors, factor: false, pairs: input.pairs })).states();
+    const found = new Set(read.map((s) => s.keyText));
+    for (const s of read) {
       const acc = byKey.get(s.keyText)!.acc;
       read1(s.keyText);
       // The factor is only a good preconditioner for the very rows it holds.
@@ -122,7 +117,7 @@ export async function certifyDigits(input: AccuracyPassInput, solutions: Map<str
     }
     // A segment the pass found no rows of (they were deleted meanwhile) is taken in full.
     for (const key of refine) {
-      if (!read.states().some((s) => s.keyText === key)) {
+      if (!found.has(key)) {
         refine.delete(key);
         extend.add(key);
       }
