@@ -58,6 +58,7 @@ const CASES: Case[] = [
   { what: 'a text response', spec: { name: 'e_text_resp', ...base, response: 'label' }, code: 2, message: /response: response label is text/ },
   { what: 'a hostile column name as an identifier', spec: { name: 'e_hostile', source: 't_hostile', response: 'y', terms: ['y'], segment_by: ['x"; drop table t; --'] }, code: 2, message: /segment_by\[0\]/ },
   { what: 'a reference level that does not occur', spec: { name: 'e_ref', ...base, categorical: [{ column: 'colour', reference: 'purple' }] }, code: 2, message: /categorical\[0\]\.reference: level "purple" does not occur.*blue, green, red/ },
+  { what: 'a term named like a level\'s indicator column', spec: { name: 'e_clash', ...base, terms: ['x', { name: 'colour=red', sql: "(colour = 'red')::int" }], categorical: ['colour'] }, code: 2, message: /categorical\[0\]: makes a column named "colour=red", and so does terms\[1\]/ },
   { what: 'more levels than the cap', spec: { name: 'e_levels', ...base, categorical: [{ column: 'label', max_levels: 10 }] }, code: 2, message: /categorical\[0\]\.max_levels: column label has more than 10 levels/ },
   { what: '--parallel 2 on a query without partition_key', spec: { name: 'e_par', ...base, source: 'select * from t' }, args: ['--parallel', '2'], code: 2, message: /partition_key/, serverOnly: 'the embedded database serves one reader at a time' },
   { what: 'a bad --parallel', spec: { name: 'e_par0', ...base }, args: ['--parallel', '0'], code: 2, message: /--parallel must be/ },
