@@ -5,7 +5,7 @@ import type { SegmentState, SegmentedFit, SegmentedFitOptions } from '../fit/seg
 import { solve } from '../fit/solve.js';
 import { solveExtended } from '../fit/solve-extended.js';
 import type { DesignPlan } from '../plan/design-plan.js';
-import type { Database } from '../source/database.js';
+import type { Database, SharedSnapshot } from '../source/database.js';
 import { openDatabase } from '../source/open-database.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
@@ -107,6 +107,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
   const parallel = req.parallel ?? 1;
   const database = await openDatabase({ db: req.db, env: req.env ?? process.env, sessions: parallel + 1 });
   const db = createStoreDb(database.dialect());
+  let reads: SharedSnapshot | undefined;
   try {
     if (parallel > database.maxSessions) {
       throw new SpecFileError(`--parallel ${parallel}: the ${database.kind} database serves ${database.maxSessions} reader(s) at once`);
@@ -114,7 +115,10 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     let refit: RefitStart | null = null;
     // Read before the session opens: the embedded database serves one session at a time.
     const stored = spec.watermark === null ? [] : await storedStates(db, spec);
-    const plan = await database.withSession(async (session) => {
+    // Every read of the run (the plan's probes, each partition, a second pass) sees one snapshot,
+    // and the plan's locks keep the source from being altered or truncated until the run ends.
+    reads = await database.shareSnapshot();
+    const plan = await reads.withHoldingSession(async (session) => {
       if (spec.watermark === null) return planFit(session, spec, parallel);
       // The unscoped plan gives the design (columns, levels) that stored state must match.
       refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel), req.full === true);
@@ -128,7 +132,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     const runId = await startFitRun(db, spec, plan);
     req.onRunStarted?.(runId);
     try {
-      const out = await readAndSolve(database, spec, plan, req, refit);
+      const out = await readAndSolve(reads, spec, plan, req, refit);
       const result = {
         rowsRead: out.rowsRead,
         rowsUsed: out.rowsUsed,
@@ -160,6 +164,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       throw e;
     }
   } finally {
+    await reads?.release();
     await db.destroy();
     await database.close();
   }
