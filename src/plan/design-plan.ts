@@ -4,6 +4,7 @@ import { PlanError } from './plan-error.js';
 import type { CategoricalLevels } from './resolve-levels.js';
 import { SOURCE_ALIAS, sourceRelation } from './source-relation.js';
 import { SqlTemplate, quoteIdent } from './sql-template.js';
+import { guardLevels } from './unplanned-level.js';
 
 /** One float8 column of the design query. */
 interface DesignColumn {
@@ -50,6 +51,12 @@ export interface DesignScope {
   readonly filter?: SqlTemplate | undefined;
   /** Time bucket of a row, read as one more key column after the segment columns. */
   readonly bucket?: SqlTemplate | undefined;
+  /**
+   * Fail the read on a categorical value that is not among the planned levels (see
+   * guardLevels): for plans read later than they were made, outside their snapshot, as the
+   * partitions of a split run are.
+   */
+  readonly guardLevels?: boolean | undefined;
 }
 
 /** Key name under which the bucket column of a window fit is read (after the segment columns). */
@@ -121,9 +128,16 @@ export function buildDesignPlan(
   }
   const design = [...termCols, ...[...catCols.values()].flat(), ...interactionCols];
   requireUniqueNames(design);
+  const response = valueOf('response', spec.response);
   const values: DesignColumn[] = [
     ...design,
-    { name: spec.response, origin: spec.response, key: 'response', ...valueOf('response', spec.response) },
+    {
+      name: spec.response,
+      origin: spec.response,
+      key: 'response',
+      type: response.type,
+      sql: scope.guardLevels === true ? guardLevels(spec, levels, response.sql, response.type) : response.sql,
+    },
   ];
   if (spec.weight !== null) {
     values.push({ name: spec.weight, origin: spec.weight, key: 'weight', ...valueOf('weight', spec.weight) });

@@ -1,5 +1,6 @@
 import { SegmentedFit } from '../fit/segmented-fit.js';
 import { designPlanFromJson } from '../plan/design-plan-json.js';
+import { UnplannedLevelError, unplannedLevelError } from '../plan/unplanned-level.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { openServerDatabase } from '../source/server-database.js';
@@ -71,7 +72,13 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const fit = new SegmentedFit(shape, firstPlan.keyNames, firstOptions);
           for (const f of partials.factors) fit.ensure(f.key).acc.mergeState(f.state);
           const counts = partials.partitions.map((p) => p.counts as DesignReadCounts);
-          const out = await readAndSolve(database, spec, plan, { specPath: spec.origin }, null, { fit, counts });
+          // A double-double pass reads every partition at once, over one snapshot.
+          const reads = await database.shareSnapshot();
+          const out = await readAndSolve(reads, spec, plan, { specPath: spec.origin }, null, { fit, counts })
+            .catch((e: unknown) => {
+              throw unplannedLevelError(e, spec, plan.levels) ?? e;
+            })
+            .finally(() => reads.release());
           const models = out.models.map(
             (m): ModelRecord => ({ segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes }),
           );
@@ -87,7 +94,8 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const now = await loadSplitRun(store, req.schema, req.runId);
           if (now?.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
           if (now !== null && now.status !== 'running') return { outcome: 'run-ended', rowsRead: 0, segments: 0 };
-          if (req.final) {
+          // A row of a level the plan did not find fails every attempt alike.
+          if (req.final || e instanceof UnplannedLevelError) {
             await failRunsAndPartials(store, req.schema, [req.runId], e).catch(() => undefined);
           }
           throw e;

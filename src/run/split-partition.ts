@@ -1,5 +1,6 @@
 import type { Kysely } from 'kysely';
 import { designPlanFromJson } from '../plan/design-plan-json.js';
+import { unplannedLevelError } from '../plan/unplanned-level.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
@@ -57,7 +58,11 @@ export async function foldPartition(req: PartitionRequest): Promise<PartitionOut
       const { firstPlan, firstOptions } = passesOf(spec, designPlanFromJson(run.plan), {}, null);
       const one = { ...firstPlan, queries: [firstPlan.queries[req.partition]!] };
       const started = performance.now();
-      const { fit, counts } = await readPass(database, one, spec, { specPath: spec.origin }, firstOptions, { rows: 0, last: started, started });
+      const { fit, counts } = await readPass(database, one, spec, { specPath: spec.origin }, firstOptions, { rows: 0, last: started, started }).catch(
+        (e: unknown) => {
+          throw unplannedLevelError(e, spec, one.levels) ?? e;
+        },
+      );
       const partials = fit.states().map((s) => ({ segmentKey: s.keyText, key: s.key, state: s.acc.state() }));
       const outcome = await writePartialFactors(store, req.schema, req.runId, req.partition, counts[0], req.worker, partials);
       return { outcome, rowsRead: counts[0]!.rowsRead, segments: partials.length, complete: await isComplete(store, req.schema, req.runId) };

@@ -1,4 +1,10 @@
+import type { DesignScope } from '../plan/design-plan.js';
 import { designPlanToJson } from '../plan/design-plan-json.js';
+import { PlanError } from '../plan/plan-error.js';
+import { parseSplitCutoff, splitCutoffFilter, splitCutoffQuery } from '../plan/split-cutoff.js';
+import type { DbSession } from '../source/database.js';
+import { queryAll } from '../source/query-helpers.js';
+import type { FitSpec } from '../spec/fit-spec.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { createStoreDb, failRunsAndPartials, migrate, startSplitRun } from '../store/index.js';
@@ -50,7 +56,13 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
     const database = openServerDatabase(req.target, 2);
     const db = createStoreDb(database.dialect());
     try {
-      const plan = await database.withSession((session) => planFit(session, spec, split.partitions));
+      // The plan's probes (levels, pages, the cutoff) read one snapshot. The partitions are read
+      // later, by other jobs, outside it: the cutoff bounds what they read, and the guard fails a
+      // row whose categorical value the plan did not find.
+      const reads = await database.shareSnapshot();
+      const plan = await reads
+        .withHoldingSession(async (session) => planFit(session, spec, split.partitions, { first: await splitScope(session, spec) }))
+        .finally(() => reads.release());
       await migrate(db, spec.schema);
       const runId = await startFitRun(db, spec, plan);
       req.onRunStarted?.(runId);
@@ -74,4 +86,14 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
       await database.close();
     }
   }, { onLocked: req.onLocked });
+}
+
+/** What every partition of a split run reads: rows up to the cutoff, with categorical values guarded. */
+async function splitScope(session: DbSession, spec: FitSpec): Promise<DesignScope> {
+  const column = spec.split?.cutoff ?? null;
+  if (column === null) return { guardLevels: true };
+  const rows = await queryAll(session, splitCutoffQuery(spec, column)).catch((e: unknown) => {
+    throw new PlanError('split.cutoff', `column ${column} does not evaluate over the source: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
+  });
+  return { filter: splitCutoffFilter(parseSplitCutoff(column, rows[0])), guardLevels: true };
 }

@@ -1,4 +1,5 @@
 import { hostname } from 'node:os';
+import { UnplannedLevelError } from '../plan/unplanned-level.js';
 import { breakFitLock, runFitExclusive } from '../run/run-fit-exclusive.js';
 import { failRunAndPartials } from '../run/split-fail.js';
 import { mergeSplitRun } from '../run/split-merge.js';
@@ -67,7 +68,10 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
       const merged = await mergeSplitRun({ target: opts.target, schema: spec.schema, runId, final: job.final });
       return { run_id: runId, outcome: merged.outcome, rows_read: merged.rowsRead, segments: merged.segments };
     } catch (e) {
-      if (job.final && job.kind === 'partition') await failRunAndPartials(opts.target, spec.schema, runId, e).catch(() => undefined);
+      // A row of a level the plan did not find fails every attempt alike: the run fails at once.
+      if ((job.final || e instanceof UnplannedLevelError) && job.kind === 'partition') {
+        await failRunAndPartials(opts.target, spec.schema, runId, e).catch(() => undefined);
+      }
       throw e;
     }
   };

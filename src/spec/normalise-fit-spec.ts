@@ -190,7 +190,10 @@ export function normaliseFitSpec(
       nonFinite: doc.non_finite,
       partitionKey: doc.partition_key ?? null,
       schedule: doc.schedule === undefined ? null : doc.schedule.trim(),
-      split: doc.split === undefined ? null : { partitions: doc.split.partitions, jobTimeoutSeconds: doc.split.job_timeout_seconds },
+      split:
+        doc.split === undefined
+          ? null
+          : { partitions: doc.split.partitions, jobTimeoutSeconds: doc.split.job_timeout_seconds, cutoff: doc.split.cutoff ?? null },
       watermark: doc.watermark ?? doc.window?.column ?? null,
       window: doc.window === undefined ? null : { ...doc.window },
     },
