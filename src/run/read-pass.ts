@@ -52,6 +52,7 @@ export async function readPass(
               valueTypes: plan.valueTypes,
               mode: req.read ?? spec.read,
               nonFinite: spec.nonFinite === 'skip' ? 'skip' : 'pass',
+              signal: req.signal,
             },
             (block, keyTable) => {
               keyTables[i] = keyTable;

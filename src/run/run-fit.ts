@@ -47,6 +47,11 @@ export interface RunFitRequest {
   readonly onRunStarted?: (runId: number) => void;
   /** Called now and then while rows stream. */
   readonly onProgress?: (p: { rowsRead: number; segments: number; seconds: number }) => void;
+  /**
+   * Stops the run at its next step (a read stops at once): no run is started after it aborts,
+   * and a started run is marked failed with the signal's reason.
+   */
+  readonly signal?: AbortSignal | undefined;
 }
 
 /** One published model. */
@@ -129,10 +134,12 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
     }
     await migrate(db, spec.schema);
+    req.signal?.throwIfAborted();
     const runId = await startFitRun(db, spec, plan);
     req.onRunStarted?.(runId);
     try {
       const out = await readAndSolve(reads, spec, plan, req, refit);
+      req.signal?.throwIfAborted();
       const result = {
         rowsRead: out.rowsRead,
         rowsUsed: out.rowsUsed,
@@ -160,7 +167,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       }
       return { ...base, runId, ...out };
     } catch (e) {
-      await failRun(db, spec.schema, runId, e).catch(() => undefined);
+      await failRun(db, spec.schema, runId, req.signal?.aborted === true ? req.signal.reason : e).catch(() => undefined);
       throw e;
     }
   } finally {

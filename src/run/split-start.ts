@@ -11,7 +11,7 @@ import { createStoreDb, failRunsAndPartials, migrate, startSplitRun } from '../s
 import { planFit } from './plan-fit.js';
 import { withFitLock } from './run-fit-exclusive.js';
 import { loadSpecFile, startFitRun } from './run-fit.js';
-import { SPLIT_LEASE_SECONDS } from './split-lease.js';
+import { splitLeaseSeconds } from './split-lease.js';
 
 /** A split run that has started: its id and the partition jobs it was cut into. */
 export interface SplitStart {
@@ -36,6 +36,8 @@ export interface SplitStartRequest {
   readonly onRunStarted?: (runId: number) => void;
   /** Called with the backend that holds the fit's lock while the run starts. */
   readonly onLocked?: (backendPid: number) => void;
+  /** Stops the start at its next step: no run is written after it aborts; a written run is marked failed. */
+  readonly signal?: AbortSignal | undefined;
 }
 
 /**
@@ -64,10 +66,12 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
         .withHoldingSession(async (session) => planFit(session, spec, split.partitions, { first: await splitScope(session, spec) }))
         .finally(() => reads.release());
       await migrate(db, spec.schema);
+      req.signal?.throwIfAborted();
       const runId = await startFitRun(db, spec, plan);
       req.onRunStarted?.(runId);
       try {
-        await startSplitRun(db, spec.schema, runId, spec.name, plan.queries.length, designPlanToJson(plan), SPLIT_LEASE_SECONDS);
+        req.signal?.throwIfAborted();
+        await startSplitRun(db, spec.schema, runId, spec.name, plan.queries.length, designPlanToJson(plan), splitLeaseSeconds(split.jobTimeoutSeconds));
         const start: SplitStart = {
           runId,
           schema: spec.schema,
@@ -78,7 +82,7 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
         await req.enqueue(start);
         return start;
       } catch (e) {
-        await failRunsAndPartials(db, spec.schema, [runId], e).catch(() => undefined);
+        await failRunsAndPartials(db, spec.schema, [runId], req.signal?.aborted === true ? req.signal.reason : e).catch(() => undefined);
         throw e;
       }
     } finally {

@@ -81,6 +81,31 @@ describe.skipIf(ON_EMBEDDED)('what a split run reads (server only: split runs ar
     split.forEach((e, i) => expect(Math.abs(e - unsplit[i]!) / Math.abs(unsplit[i]!)).toBeLessThan(1e-10));
   });
 
+  it('the seconds of a split run are its whole duration, with the partitions\' and the merge\'s parts beside it', async () => {
+    const specPath = writeSpec({ name: 'split_seconds', source: 'readings', segment_by: 'feeder', response: 'load_kw', terms: ['temp_c'], split: { partitions: 2 } });
+    const start = await startSplitFit({ specPath, target, enqueue: async () => undefined });
+    const began = Date.now();
+    // Partition jobs and the merge come later, as queued jobs do.
+    await new Promise((r) => setTimeout(r, 1500));
+    expect(await foldAll(start.runId, 2)).toEqual([]);
+    expect(await mergeSplitRun({ target, schema: 'rowfold', runId: start.runId, final: true })).toMatchObject({ outcome: 'published' });
+    const waited = (Date.now() - began) / 1000;
+    const run = await tdb.query<{ seconds: number; wall: number; partition_seconds: number; slowest_partition_seconds: number; merge_seconds: number }>(
+      `select r.seconds, extract(epoch from r.ended_at - r.started_at)::float8 as wall,
+              s.partition_seconds, s.slowest_partition_seconds, s.merge_seconds
+         from rowfold.runs r join rowfold.split_runs s using (run_id) where r.run_id = $1`,
+      [start.runId],
+    );
+    const row = run.rows[0]!;
+    expect(row.seconds).toBeCloseTo(row.wall, 6);
+    expect(row.seconds).toBeGreaterThanOrEqual(waited - 0.5);
+    expect(row.partition_seconds).toBeGreaterThan(0);
+    expect(row.slowest_partition_seconds).toBeGreaterThan(0);
+    expect(row.slowest_partition_seconds).toBeLessThanOrEqual(row.partition_seconds);
+    expect(row.merge_seconds).toBeGreaterThan(0);
+    expect(row.partition_seconds + row.merge_seconds).toBeLessThan(row.seconds);
+  });
+
   it('a cutoff column that is not a timestamp, date or integer is named', async () => {
     const specPath = writeSpec({ name: 'split_bad_cutoff', source: 'readings', response: 'load_kw', terms: ['temp_c'], split: { partitions: 2, cutoff: 'feeder' } });
     await expect(startSplitFit({ specPath, target, enqueue: async () => undefined })).rejects.toThrow(
