@@ -1,4 +1,5 @@
 import type { FitSpec } from '../spec/fit-spec.js';
+import { PlanOutdatedError } from './plan-outdated-error.js';
 import type { CategoricalLevels } from './resolve-levels.js';
 import { SOURCE_ALIAS } from './source-relation.js';
 import { SqlTemplate, quoteIdent } from './sql-template.js';
@@ -14,7 +15,7 @@ const MARK = 'rowfold-unplanned-level:';
  * indicator column 0, and been fitted as the reference level. The data changed between the
  * plan and the read (a split run's partitions are read minutes after it was planned).
  */
-export class UnplannedLevelError extends Error {
+export class UnplannedLevelError extends PlanOutdatedError {
   override readonly name = 'UnplannedLevelError';
   /** Spec key of the categorical column, e.g. `categorical[0]`. */
   readonly key: string;

@@ -1,6 +1,7 @@
 import { SegmentedFit } from '../fit/segmented-fit.js';
 import { designPlanFromJson } from '../plan/design-plan-json.js';
-import { UnplannedLevelError, unplannedLevelError } from '../plan/unplanned-level.js';
+import { PlanOutdatedError, sourceChangedError } from '../plan/plan-outdated-error.js';
+import { unplannedLevelError } from '../plan/unplanned-level.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { openServerDatabase } from '../source/server-database.js';
@@ -79,7 +80,7 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const reads = await database.shareSnapshot();
           const out = await readAndSolve(reads, spec, plan, { specPath: spec.origin, signal: req.signal }, null, { fit, counts })
             .catch((e: unknown) => {
-              throw unplannedLevelError(e, spec, plan.levels) ?? e;
+              throw unplannedLevelError(e, spec, plan.levels) ?? sourceChangedError(e, req.runId) ?? e;
             })
             .finally(() => reads.release());
           const models = out.models.map(
@@ -100,8 +101,8 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const now = await loadSplitRun(store, req.schema, req.runId);
           if (now?.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
           if (now !== null && now.status !== 'running') return { outcome: 'run-ended', rowsRead: 0, segments: 0 };
-          // A row of a level the plan did not find fails every attempt alike.
-          if (req.final || e instanceof UnplannedLevelError) {
+          // A source that no longer matches the plan fails every attempt alike.
+          if (req.final || e instanceof PlanOutdatedError) {
             await failRunsAndPartials(store, req.schema, [req.runId], e).catch(() => undefined);
           }
           throw e;

@@ -1,5 +1,5 @@
 import { hostname } from 'node:os';
-import { UnplannedLevelError } from '../plan/unplanned-level.js';
+import { PlanOutdatedError } from '../plan/plan-outdated-error.js';
 import { breakFitLock, runFitExclusive } from '../run/run-fit-exclusive.js';
 import { failRunAndPartials } from '../run/split-fail.js';
 import { mergeSplitRun } from '../run/split-merge.js';
@@ -73,8 +73,9 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
       const merged = await mergeSplitRun({ target: opts.target, schema: spec.schema, runId, final: job.final, signal });
       return { run_id: runId, outcome: merged.outcome, rows_read: merged.rowsRead, segments: merged.segments };
     } catch (e) {
-      // A row of a level the plan did not find fails every attempt alike: the run fails at once.
-      if ((job.final || e instanceof UnplannedLevelError) && job.kind === 'partition') {
+      // A source that no longer matches the run's plan (a dropped column, a level the plan did not
+      // find) fails every attempt alike: the run fails at once.
+      if ((job.final || e instanceof PlanOutdatedError) && job.kind === 'partition') {
         await failRunAndPartials(opts.target, spec.schema, runId, e).catch(() => undefined);
       }
       throw e;

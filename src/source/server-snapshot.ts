@@ -39,11 +39,14 @@ export async function shareServerSnapshot(base: Database, pool: pg.Pool, config:
     await holder.end().catch(() => undefined);
   };
   let id: string;
+  let holderPid: number;
   try {
     await holder.connect();
     await holder.query('BEGIN ISOLATION LEVEL REPEATABLE READ');
     await holder.query('SET LOCAL idle_in_transaction_session_timeout = 0');
-    id = (await holder.query<{ id: string }>('SELECT pg_export_snapshot() AS id')).rows[0]!.id;
+    const row = (await holder.query<{ id: string; pid: number }>('SELECT pg_export_snapshot() AS id, pg_backend_pid() AS pid')).rows[0]!;
+    id = row.id;
+    holderPid = row.pid;
   } catch (e) {
     await release();
     throw e;
@@ -56,7 +59,7 @@ export async function shareServerSnapshot(base: Database, pool: pg.Pool, config:
     dialect: () => base.dialect(),
     close: () => base.close(),
     snapshotId: id,
-    withSession: (session) => withClient(pool, (client) => importing(client, id, session)),
+    withSession: (session) => withClient(pool, (client) => importing(client, id, holderPid, session)),
     // A view of a view is the same snapshot, released by its first owner.
     shareSnapshot: async () => ({ ...view, release: async () => undefined }),
     withHoldingSession: <R>(session: (s: DbSession) => Promise<R>): Promise<R> => {
@@ -69,17 +72,46 @@ export async function shareServerSnapshot(base: Database, pool: pg.Pool, config:
   return view;
 }
 
-async function importing<T>(client: pg.PoolClient, id: string, fn: (session: DbSession) => Promise<T>): Promise<T> {
+/**
+ * Tables and views the holding transaction has locked (the plan's probes took them), outside the
+ * system schemas: the relations a read of the run will lock too.
+ */
+const HELD_RELATIONS = `
+  SELECT c.oid::regclass::text
+    FROM pg_catalog.pg_locks l
+    JOIN pg_catalog.pg_class c ON c.oid = l.relation
+   WHERE l.pid = $1 AND l.locktype = 'relation' AND l.granted
+     AND l.database = (SELECT oid FROM pg_catalog.pg_database WHERE datname = current_database())
+     AND c.relkind IN ('r', 'p', 'v')
+     AND c.relnamespace NOT IN ('pg_catalog'::regnamespace, 'information_schema'::regnamespace)`;
+
+async function importing<T>(client: pg.PoolClient, id: string, holderPid: number, fn: (session: DbSession) => Promise<T>): Promise<T> {
   await client.query('BEGIN ISOLATION LEVEL REPEATABLE READ');
   try {
     await client.query(`SET TRANSACTION SNAPSHOT ${client.escapeLiteral(id)}`);
   } catch (e) {
-    const code = typeof (e as { code?: unknown }).code === 'string' ? (e as { code: string }).code : undefined;
     throw new SnapshotImportError(
       `cannot read the run's snapshot ${id}: ${maskSecrets(e instanceof Error ? e.message : String(e))} ` +
         '(the connection holding it ended: the server restarted, or its session was terminated); run the fit again',
-      { cause: e, code },
+      { cause: e, code: codeOf(e) },
     );
+  }
+  // A statement that would alter, truncate or drop the source waits for the holding transaction,
+  // and a read that asked for the source's lock after it would wait behind it: for ever, since the
+  // holder lets go only when the run ends. Taking the locks at once (NOWAIT) turns that wait into
+  // a clear error.
+  const held = (await client.query<[string]>({ text: HELD_RELATIONS, values: [holderPid], rowMode: 'array' })).rows.map((r) => r[0]);
+  if (held.length > 0) {
+    try {
+      await client.query(`LOCK TABLE ${held.join(', ')} IN ACCESS SHARE MODE NOWAIT`);
+    } catch (e) {
+      if (codeOf(e) !== '55P03') throw e;
+      throw new SnapshotImportError(
+        `another session is waiting to alter, truncate or drop ${held.join(', ')}, which this run has held since it planned: ` +
+          'a read that waited for it would wait for ever, so the run stops here; run it again once that change is done',
+        { cause: e, code: '55P03' },
+      );
+    }
   }
   // A failure leaves the transaction to withClient, which discards the connection.
   const out = await fn(pgSession(client));
@@ -111,4 +143,9 @@ function holdingSession(client: pg.Client): DbSession {
     },
     readDesign: () => Promise.reject(new Error('the session holding a shared snapshot does not read design rows; read on a session of the view')),
   };
+}
+
+function codeOf(e: unknown): string | undefined {
+  const code = (e as { code?: unknown } | null)?.code;
+  return typeof code === 'string' ? code : undefined;
 }
