@@ -1,13 +1,12 @@
 import { mkdirSync } from 'node:fs';
 import { join } from 'node:path';
 import pg from 'pg';
-import PgBoss from 'pg-boss';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { ABANDONED_RUN_MESSAGE } from '../../src/run/run-fit-exclusive.js';
 import { mergeSplitRun } from '../../src/run/split-merge.js';
 import { foldPartition } from '../../src/run/split-partition.js';
 import { startSplitFit } from '../../src/run/split-start.js';
-import { fitQueueName, JOBS_SCHEMA } from '../../src/schedule/fit-queue.js';
+import { fitQueueName } from '../../src/schedule/fit-queue.js';
 import { resolveConnection } from '../../src/source/connection-target.js';
 import { createStoreDb } from '../../src/store/create-store-db.js';
 import { migrate } from '../../src/store/migrate.js';
@@ -15,6 +14,7 @@ import { createTestDatabase, ON_EMBEDDED, randomSuffix, withAdminClient } from '
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
 import { ServeProcesses } from '../support/serve-process.js';
+import { TestQueue } from '../support/test-queue.js';
 import { postgresIds, ThrowawayCluster } from '../support/throwaway-cluster.js';
 
 // Issue 13: the fault catalogue. One test per fault; in every one nothing is half-written (a
@@ -25,7 +25,8 @@ const CLUSTER_PORT = 55410;
 
 let tdb: TestDatabase;
 let cluster: ThrowawayCluster | undefined;
-let boss: PgBoss | undefined;
+const jobs = new TestQueue(() => tdb.url);
+const queue = () => jobs.get();
 const serve = new ServeProcesses();
 const clients: pg.Client[] = [];
 const roles: string[] = [];
@@ -117,7 +118,7 @@ describe.skipIf(ON_EMBEDDED)('fault catalogue (server only: faults of a server, 
     for (const c of clients.splice(0)) await c.end().catch(() => undefined);
   });
   afterAll(async () => {
-    await boss?.stop({ graceful: false, close: true }).catch(() => undefined);
+    await jobs.stop();
     if (cluster !== undefined) {
       await cluster.stop('immediate').catch(() => undefined);
       await cluster.asRoot('umount', [join(cluster.dir, '..', 'small')]).catch(() => undefined);
@@ -326,14 +327,6 @@ describe.skipIf(ON_EMBEDDED)('fault catalogue (server only: faults of a server, 
     await expect(mergeSplitRun({ target, schema: 'rowfold', runId: start.runId, final: false })).rejects.toThrow(/not written yet/);
   });
 
-  async function queue(): Promise<PgBoss> {
-    if (boss === undefined) {
-      boss = new PgBoss({ connectionString: tdb.url, schema: JOBS_SCHEMA, supervise: false, schedule: false, migrate: false });
-      boss.on('error', () => undefined);
-      await boss.start();
-    }
-    return boss;
-  }
 
   it('a serve process killed while it publishes: nothing of its run is published; another process runs the job again and marks the dead run failed', { timeout: 180_000 }, async () => {
     const fit = 'killed_publishing';

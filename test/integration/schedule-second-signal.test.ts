@@ -1,27 +1,20 @@
-import PgBoss from 'pg-boss';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { DROPPED_RUN_MESSAGE } from '../../src/schedule/fit-job-runner.js';
-import { fitQueueName, JOBS_SCHEMA, partitionQueueName } from '../../src/schedule/fit-queue.js';
+import { fitQueueName, partitionQueueName } from '../../src/schedule/fit-queue.js';
 import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { writeSpec } from '../support/run-cli.js';
 import { ServeProcesses } from '../support/serve-process.js';
+import { TestQueue } from '../support/test-queue.js';
 
 // Issue 13: a second SIGTERM 30 ms after a split fit's job started left the run `running`, with
 // some of its partition jobs queued, until its lease ran out. A second signal at any moment of a
 // job, its start included, must leave no run running.
 let tdb: TestDatabase;
-let boss: PgBoss | undefined;
+const jobs = new TestQueue(() => tdb.url);
+const queue = () => jobs.get();
 const serve = new ServeProcesses();
 
-async function queue(): Promise<PgBoss> {
-  if (boss === undefined) {
-    boss = new PgBoss({ connectionString: tdb.url, schema: JOBS_SCHEMA, supervise: false, schedule: false, migrate: false });
-    boss.on('error', () => undefined);
-    await boss.start();
-  }
-  return boss;
-}
 
 /**
  * When the two signals come, as fractions of the time a split run's start takes here (measured
@@ -48,7 +41,7 @@ describe.skipIf(ON_EMBEDDED)('a second signal during a split run\'s start (serve
   });
   afterEach(() => serve.killAll());
   afterAll(async () => {
-    await boss?.stop({ graceful: false, close: true }).catch(() => undefined);
+    await jobs.stop();
     await tdb?.drop();
   });
 

@@ -1,4 +1,3 @@
-import PgBoss from 'pg-boss';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { HUNG_JOB_BOUND_SECONDS, splitLeaseSeconds } from '../../src/run/split-lease.js';
 import { mergeSplitRun } from '../../src/run/split-merge.js';
@@ -11,11 +10,13 @@ import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
 import { ServeProcesses } from '../support/serve-process.js';
+import { TestQueue } from '../support/test-queue.js';
 
 // Issue 5, many workers: a fit cut into partition jobs, worked by two real `serve` processes,
 // one of them killed (SIGKILL) in the middle of a partition.
 let tdb: TestDatabase;
-let boss: PgBoss | undefined;
+const jobs = new TestQueue(() => tdb.url);
+const queue = () => jobs.get();
 const serve = new ServeProcesses();
 
 const FIT = 'split_load';
@@ -32,15 +33,6 @@ const splitSpec = {
   split: { partitions: 4, job_timeout_seconds: 60 },
 };
 
-/** A pg-boss client of the test (no clock, no maintenance), once serve has created the queue schema. */
-async function queue(): Promise<PgBoss> {
-  if (boss === undefined) {
-    boss = new PgBoss({ connectionString: tdb.url, schema: JOBS_SCHEMA, supervise: false, schedule: false, migrate: false });
-    boss.on('error', () => undefined);
-    await boss.start();
-  }
-  return boss;
-}
 
 interface ModelRow {
   run_id: string;
@@ -73,7 +65,7 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
   });
   afterEach(() => serve.killAll());
   afterAll(async () => {
-    await boss?.stop({ graceful: false, close: true }).catch(() => undefined);
+    await jobs.stop();
     await tdb?.drop();
   });
 
