@@ -53,8 +53,7 @@ export interface DesignScope {
   readonly bucket?: SqlTemplate | undefined;
   /**
    * Fail the read on a categorical value that is not among the planned levels (see
-   * guardLevels): for plans read later than they were made, outside their snapshot, as the
-   * partitions of a split run are.
+   * guardLevels): for plans read outside their snapshot, as the partitions of a split run are.
    */
   readonly guardLevels?: boolean | undefined;
 }

@@ -123,11 +123,13 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     // Every read of the run (the plan's probes, each partition, a second pass) sees one snapshot,
     // and the plan's locks keep the source from being altered or truncated until the run ends.
     reads = await database.shareSnapshot();
+    // Without a shared snapshot (the embedded database), a level the plan did not find fails the read.
+    const guard = reads.snapshotId === null;
     const plan = await reads.withHoldingSession(async (session) => {
-      if (spec.watermark === null) return planFit(session, spec, parallel);
+      if (spec.watermark === null) return planFit(session, spec, parallel, {}, guard);
       // The unscoped plan gives the design (columns, levels) that stored state must match.
       refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel), req.full === true);
-      return planFit(session, spec, parallel, refit.scope);
+      return planFit(session, spec, parallel, refit.scope, guard);
     });
     const base = { spec, plan, connection: database.display };
     if (req.dryRun) {

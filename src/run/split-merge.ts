@@ -1,7 +1,6 @@
 import { SegmentedFit } from '../fit/segmented-fit.js';
 import { designPlanFromJson } from '../plan/design-plan-json.js';
 import { PlanOutdatedError, sourceChangedError } from '../plan/plan-outdated-error.js';
-import { unplannedLevelError } from '../plan/unplanned-level.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { openServerDatabase } from '../source/server-database.js';
@@ -80,7 +79,7 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const reads = await database.shareSnapshot();
           const out = await readAndSolve(reads, spec, plan, { specPath: spec.origin, signal: req.signal }, null, { fit, counts })
             .catch((e: unknown) => {
-              throw unplannedLevelError(e, spec, plan.levels) ?? sourceChangedError(e, req.runId) ?? e;
+              throw sourceChangedError(e, req.runId) ?? e;
             })
             .finally(() => reads.release());
           const models = out.models.map(

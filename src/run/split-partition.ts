@@ -1,7 +1,6 @@
 import type { Kysely } from 'kysely';
 import { designPlanFromJson } from '../plan/design-plan-json.js';
 import { sourceChangedError } from '../plan/plan-outdated-error.js';
-import { unplannedLevelError } from '../plan/unplanned-level.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
@@ -63,7 +62,7 @@ export async function foldPartition(req: PartitionRequest): Promise<PartitionOut
       const started = performance.now();
       const { fit, counts } = await readPass(database, one, spec, { specPath: spec.origin, signal: req.signal }, firstOptions, { rows: 0, last: started, started }).catch(
         (e: unknown) => {
-          throw unplannedLevelError(e, spec, one.levels) ?? sourceChangedError(e, req.runId) ?? e;
+          throw sourceChangedError(e, req.runId) ?? e;
         },
       );
       const partials = fit.states().map((s) => ({ segmentKey: s.keyText, key: s.key, state: s.acc.state() }));

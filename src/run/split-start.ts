@@ -63,7 +63,7 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
       // row whose categorical value the plan did not find.
       const reads = await database.shareSnapshot();
       const plan = await reads
-        .withHoldingSession(async (session) => planFit(session, spec, split.partitions, { first: await splitScope(session, spec) }))
+        .withHoldingSession(async (session) => planFit(session, spec, split.partitions, { first: await splitScope(session, spec) }, true))
         .finally(() => reads.release());
       await migrate(db, spec.schema);
       req.signal?.throwIfAborted();
@@ -92,12 +92,12 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
   }, { onLocked: req.onLocked });
 }
 
-/** What every partition of a split run reads: rows up to the cutoff, with categorical values guarded. */
+/** What every partition of a split run reads: rows up to the cutoff, if the spec names one. */
 async function splitScope(session: DbSession, spec: FitSpec): Promise<DesignScope> {
   const column = spec.split?.cutoff ?? null;
-  if (column === null) return { guardLevels: true };
+  if (column === null) return {};
   const rows = await queryAll(session, splitCutoffQuery(spec, column)).catch((e: unknown) => {
     throw new PlanError('split.cutoff', `column ${column} does not evaluate over the source: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
   });
-  return { filter: splitCutoffFilter(parseSplitCutoff(column, rows[0])), guardLevels: true };
+  return { filter: splitCutoffFilter(parseSplitCutoff(column, rows[0])) };
 }

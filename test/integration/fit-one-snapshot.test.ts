@@ -1,5 +1,7 @@
 import pg from 'pg';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
+import { UnplannedLevelError } from '../../src/plan/unplanned-level.js';
+import { runFit } from '../../src/run/run-fit.js';
 import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
@@ -106,5 +108,39 @@ describe.skipIf(ON_EMBEDDED)('one snapshot per run (server only: rows land from 
     // The model (solved from the second pass's factor) holds the rows the first pass counted.
     expect(doc.run.rows_read).toBe(3000);
     expect(doc.models[0]!.rows).toBe(3000);
+  });
+});
+
+describe('a level that lands between the plan and the read is never fitted as the reference', () => {
+  let db: TestDatabase;
+  beforeAll(async () => {
+    db = await createTestDatabase('late_level');
+    await db.query(`create table obs as select (array['a','b'])[1 + g % 2] as colour, (array['F1','F2'])[1 + g % 3 % 2] as feeder,
+                      g::float8 as x, (1 + 0.5 * g + sin(g))::float8 as y from generate_series(1, 400) g`);
+  });
+  afterAll(async () => {
+    await db?.drop();
+  });
+
+  it('on a server the read does not see it (one snapshot); on the embedded database the read fails naming column, value and segment', async () => {
+    const specPath = writeSpec({ name: 'late_level', source: 'obs', segment_by: 'feeder', response: 'y', terms: ['x'], categorical: ['colour'] });
+    // Called once the plan is made and the run row written, before the read: a row of a new level lands.
+    // (On the embedded database the insert is queued before the read's session, so the read sees it.)
+    let landed: Promise<unknown> = Promise.resolve();
+    const run = runFit({ specPath, db: db.url, onRunStarted: () => void (landed = db.query(`insert into obs values ('c', 'F2', 401, 201)`)) });
+    if (db.kind === 'server') {
+      const result = await run;
+      await landed;
+      expect(result.rowsRead).toBe(400);
+      expect(result.models.map((m) => m.solution.coefficients.map((c) => c.term))).toEqual([
+        ['intercept', 'x', 'colour=b'],
+        ['intercept', 'x', 'colour=b'],
+      ]);
+    } else {
+      const error = await run.catch((e: unknown) => e);
+      await landed;
+      expect(error).toBeInstanceOf(UnplannedLevelError);
+      expect((error as Error).message).toMatch(/^categorical\[0\] \(colour\): the value "c" in segment feeder=F2 is not among the levels planned when the run started \(a, b\)/);
+    }
   });
 });
