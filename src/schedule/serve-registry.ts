@@ -3,6 +3,7 @@ import { hostname } from 'node:os';
 import { setTimeout as sleep } from 'node:timers/promises';
 import pg from 'pg';
 import type PgBoss from 'pg-boss';
+import { withClient } from '../source/with-client.js';
 import { JOBS_SCHEMA, REGISTER_LOCK_KEY } from './fit-queue.js';
 
 const S = pg.escapeIdentifier(JOBS_SCHEMA);
@@ -231,19 +232,14 @@ export class ServeRegistry {
     });
   }
 
-  async #transaction<T>(fn: (client: pg.PoolClient) => Promise<T>): Promise<T> {
-    const client = await this.#pool.connect();
-    try {
+  /** `fn` in a transaction on a pooled client (discarded on failure, which rolls it back). */
+  #transaction<T>(fn: (client: pg.PoolClient) => Promise<T>): Promise<T> {
+    return withClient(this.#pool, async (client) => {
       await client.query('BEGIN');
       const out = await fn(client);
       await client.query('COMMIT');
-      client.release();
       return out;
-    } catch (e) {
-      await client.query('ROLLBACK').catch(() => undefined);
-      client.release(e instanceof Error ? e : new Error(String(e)));
-      throw e;
-    }
+    });
   }
 
   /** Jobs claimed by processes that are no longer alive (their presence lock is gone). */
@@ -313,9 +309,7 @@ export class ServeRegistry {
    * at the next sweep.
    */
   async unscheduleStale(boss: PgBoss, forgetSeconds: number): Promise<string[]> {
-    const client = await this.#pool.connect();
-    let failure: Error | undefined;
-    try {
+    return withClient(this.#pool, async (client) => {
       const got = await client.query<{ ok: boolean }>('select pg_try_advisory_lock($1::bigint) as ok', [REGISTER_LOCK_KEY]);
       if (got.rows[0]?.ok !== true) return [];
       try {
@@ -334,12 +328,7 @@ export class ServeRegistry {
       } finally {
         await client.query('select pg_advisory_unlock($1::bigint)', [REGISTER_LOCK_KEY]);
       }
-    } catch (e) {
-      failure = e instanceof Error ? e : new Error(String(e));
-      throw e;
-    } finally {
-      client.release(failure);
-    }
+    });
   }
 
   /** A last heartbeat (the fits count as served until now), then the presence lock goes. */
