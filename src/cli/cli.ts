@@ -4,6 +4,7 @@ import { FitInputError } from '../fit/fit-input-error.js';
 import { PlanError } from '../plan/plan-error.js';
 import { SpecFileError } from '../run/run-fit.js';
 import { SpecError } from '../spec/spec-error.js';
+import { ConnectionConfigError } from '../source/connection-config-error.js';
 import { maskSecrets } from '../source/mask-secrets.js';
 import { setNoticeSink } from '../source/notices.js';
 import { CliError, ExitCode } from './exit-codes.js';
@@ -45,14 +46,22 @@ export async function main(argv: string[]): Promise<number> {
   }
 }
 
+/** System error codes of a connection that could not be made. */
+const CONNECT_CODES = new Set(['ECONNREFUSED', 'ENOTFOUND', 'EHOSTUNREACH', 'ENETUNREACH', 'ETIMEDOUT', 'EAI_AGAIN']);
+
 function describeFailure(e: unknown): { code: number; text: string } {
   const message = e instanceof Error ? e.message : String(e);
   if (e instanceof CliError) return { code: e.exitCode, text: message };
   if (e instanceof SpecFileError) return { code: ExitCode.usage, text: message };
+  if (e instanceof ConnectionConfigError) return { code: ExitCode.usage, text: message };
   if (e instanceof ScheduleError) return { code: ExitCode.usage, text: message };
   if (e instanceof SpecError) return { code: ExitCode.usage, text: `bad spec: ${message}` };
   if (e instanceof PlanError) return { code: ExitCode.usage, text: `spec does not fit the source: ${message}` };
   if (e instanceof FitInputError) return { code: ExitCode.failed, text: `bad data: ${message}` };
-  const sqlstate = (e as { code?: unknown }).code;
-  return { code: ExitCode.failed, text: typeof sqlstate === 'string' ? `error: ${message} (SQLSTATE ${sqlstate})` : `error: ${message}` };
+  const code = (e as { code?: unknown }).code;
+  if (typeof code !== 'string') return { code: ExitCode.failed, text: `error: ${message}` };
+  // A SQLSTATE is five digits or capitals; anything else is the system's code for a socket that failed.
+  if (/^[0-9A-Z]{5}$/.test(code)) return { code: ExitCode.failed, text: `error: ${message} (SQLSTATE ${code})` };
+  const hint = CONNECT_CODES.has(code) ? '; cannot reach the database: is the server running, and are its host and port right?' : '';
+  return { code: ExitCode.failed, text: `error: ${message} (${code})${hint}` };
 }

@@ -2,6 +2,8 @@ import type { Argv } from 'yargs';
 import { formatSolution } from '../report/terminal-summary.js';
 import { fitCsvFile } from '../run/fit-csv-file.js';
 import { solutionToJson } from '../report/solution-json.js';
+import { CsvInputError } from '../source/csv-input-error.js';
+import { CliError, ExitCode } from './exit-codes.js';
 
 /** `rowfold fit-csv FILE --response COL --terms A,B …`: one model over a local CSV file. */
 export function fitCsvCommand(y: Argv): Argv {
@@ -19,6 +21,12 @@ export function fitCsvCommand(y: Argv): Argv {
         .option('json', { type: 'boolean', default: false, describe: 'print one JSON document instead of the table' }),
     async (args) => {
       const terms = (args.terms as string[]).flatMap((t) => t.split(',')).map((t) => t.trim()).filter((t) => t !== '');
+      if (!(args.confidence > 0 && args.confidence < 1)) {
+        throw new CliError(`--confidence must be between 0 and 1 (exclusive), got ${args.confidence}`, ExitCode.usage);
+      }
+      const named = [...terms, args.response, ...(args.weight === undefined ? [] : [args.weight])];
+      const twice = named.find((c, i) => named.indexOf(c) !== i);
+      if (twice !== undefined) throw new CliError(`column ${twice} is named twice (among --terms, --response and --weight)`, ExitCode.usage);
       const { solution, stats } = await fitCsvFile({
         path: args.file,
         response: args.response,
@@ -26,6 +34,10 @@ export function fitCsvCommand(y: Argv): Argv {
         weight: args.weight,
         intercept: args.intercept,
         confidence: args.confidence,
+      }).catch((e: unknown) => {
+        // A file or column the command names but cannot have is bad usage (2); bad values inside it, bad data (1).
+        if (e instanceof CsvInputError) throw new CliError(e.usage ? e.message : `bad data: ${e.message}`, e.usage ? ExitCode.usage : ExitCode.failed, { cause: e });
+        throw e;
       });
       if (args.json) {
         process.stdout.write(JSON.stringify({ rows_read: stats.rowsRead, rows_skipped: stats.rowsSkipped, model: solutionToJson(solution) }) + '\n');

@@ -1,14 +1,18 @@
 import type { FitSpec } from '../spec/fit-spec.js';
 import type { FloatCast } from './check-expression-types.js';
+import { PlanError } from './plan-error.js';
 import type { CategoricalLevels } from './resolve-levels.js';
 import { SOURCE_ALIAS, sourceRelation } from './source-relation.js';
 import { SqlTemplate, quoteIdent } from './sql-template.js';
+import { guardLevels } from './unplanned-level.js';
 
 /** One float8 column of the design query. */
 interface DesignColumn {
   readonly name: string;
   /** Spec name the column derives from (term, categorical column, response, weight). */
   readonly origin: string;
+  /** Spec key that makes the column (`terms[0]`, `categorical[1]`, `interactions[2]`, `response`). */
+  readonly key: string;
   readonly sql: SqlTemplate;
   /** Wire type of the column: float8, or numeric when exact decimals are carried. */
   readonly type: 'float8' | 'numeric';
@@ -47,6 +51,11 @@ export interface DesignScope {
   readonly filter?: SqlTemplate | undefined;
   /** Time bucket of a row, read as one more key column after the segment columns. */
   readonly bucket?: SqlTemplate | undefined;
+  /**
+   * Fail the read on a categorical value that is not among the planned levels (see
+   * guardLevels): for plans read outside their snapshot, as the partitions of a split run are.
+   */
+  readonly guardLevels?: boolean | undefined;
 }
 
 /** Key name under which the bucket column of a window fit is read (after the segment columns). */
@@ -76,6 +85,7 @@ export function buildDesignPlan(
   const termCols: DesignColumn[] = spec.terms.map((t, i) => ({
     name: t.name,
     origin: t.name,
+    key: `terms[${i}]`,
     ...valueOf(`terms[${i}]`, t.sql),
   }));
   const catCols = new Map<string, DesignColumn[]>();
@@ -89,6 +99,7 @@ export function buildDesignPlan(
         .map((v) => ({
           name: `${l.column}=${v}`,
           origin: l.column,
+          key: `categorical[${i}]`,
           sql: new SqlTemplate([`(${col}::text = `, { value: v }, ')::int::float8']),
           type: 'float8' as const,
         })),
@@ -97,7 +108,7 @@ export function buildDesignPlan(
   const columnsOf = (f: { kind: 'term' | 'categorical'; name: string }): DesignColumn[] =>
     f.kind === 'term' ? termCols.filter((c) => c.name === f.name) : (catCols.get(f.name) ?? []);
   const interactionCols: DesignColumn[] = [];
-  for (const [a, b] of spec.interactions) {
+  for (const [k, [a, b]] of spec.interactions.entries()) {
     for (const ca of columnsOf(a)) {
       for (const cb of columnsOf(b)) {
         // A product of two numerics is exact in numeric; any float8 factor makes it float8.
@@ -105,6 +116,7 @@ export function buildDesignPlan(
         interactionCols.push({
           name: `${ca.name}*${cb.name}`,
           origin: `${ca.origin}*${cb.origin}`,
+          key: `interactions[${k}]`,
           sql: numeric
             ? SqlTemplate.join(['(', ca.sql, ' * ', cb.sql, ')'])
             : SqlTemplate.join(['(', ca.sql, '::float8 * ', cb.sql, '::float8)']),
@@ -114,12 +126,20 @@ export function buildDesignPlan(
     }
   }
   const design = [...termCols, ...[...catCols.values()].flat(), ...interactionCols];
+  requireUniqueNames(design);
+  const response = valueOf('response', spec.response);
   const values: DesignColumn[] = [
     ...design,
-    { name: spec.response, origin: spec.response, ...valueOf('response', spec.response) },
+    {
+      name: spec.response,
+      origin: spec.response,
+      key: 'response',
+      type: response.type,
+      sql: scope.guardLevels === true ? guardLevels(spec, levels, response.sql, response.type) : response.sql,
+    },
   ];
   if (spec.weight !== null) {
-    values.push({ name: spec.weight, origin: spec.weight, ...valueOf('weight', spec.weight) });
+    values.push({ name: spec.weight, origin: spec.weight, key: 'weight', ...valueOf('weight', spec.weight) });
   }
 
   const select: (SqlTemplate | string)[] = ['SELECT '];
@@ -148,4 +168,24 @@ export function buildDesignPlan(
     queries,
     valueTypes: values.map((v) => v.type),
   };
+}
+
+/**
+ * Every coefficient is published under its column's name, so two columns of one name would
+ * publish two coefficients of that name: a term named like a level's indicator (`hour=3`), or
+ * a product named like a term. The spec checks what it can see; the names that carry a
+ * categorical level are known only here.
+ */
+function requireUniqueNames(design: readonly DesignColumn[]): void {
+  const seen = new Map<string, string>();
+  for (const c of design) {
+    const other = seen.get(c.name);
+    if (other !== undefined) {
+      throw new PlanError(
+        c.key,
+        `makes a column named "${c.name}", and so does ${other}: coefficients are published by name, so give a term another name ({name, sql}) or drop one of them`,
+      );
+    }
+    seen.set(c.name, c.key);
+  }
 }

@@ -9,7 +9,9 @@ import { SqlTemplate, quoteIdent } from './sql-template.js';
  * - A table source is cut into ranges of heap pages by `ctid` (a TID range scan reads only
  *   its pages, needs no key, and the last range is open so rows on pages added since the
  *   count still belong to one partition).
- * - A query source is cut by a hash of the spec's `partition_key` column.
+ * - A query source is cut by a hash of the spec's `partition_key` column. A NULL key hashes
+ *   to NULL, which matches no `= i`: such rows are given hash 0, so they belong to partition 0
+ *   and every row lands in exactly one partition.
  *
  * `pages` is the table's page count (read by the caller); null for a query source.
  */
@@ -18,7 +20,7 @@ export function partitionPredicates(spec: FitSpec, count: number, pages: number 
   if (spec.partitionKey !== null) {
     const col = `${SOURCE_ALIAS}.${quoteIdent(spec.partitionKey)}`;
     return Array.from({ length: count }, (_, i) =>
-      new SqlTemplate([`(hashtext(${col}::text) & 2147483647) % `, { value: count }, ' = ', { value: i }]),
+      new SqlTemplate([`(coalesce(hashtext(${col}::text), 0) & 2147483647) % `, { value: count }, ' = ', { value: i }]),
     );
   }
   if (spec.source.kind === 'table' && pages !== null) {

@@ -9,7 +9,7 @@ export interface ProbedExpression {
   /** Human name: the term name, column or expression. */
   readonly name: string;
   /** What the fit needs of it. */
-  readonly role: 'term' | 'response' | 'weight' | 'segment' | 'categorical' | 'partition';
+  readonly role: 'term' | 'response' | 'weight' | 'segment' | 'categorical' | 'partition' | 'watermark' | 'window' | 'cutoff';
   /** SQL as it goes into the select list. */
   readonly sql: string;
 }
@@ -29,6 +29,12 @@ export function probedExpressions(spec: FitSpec): ProbedExpression[] {
   if (spec.partitionKey !== null) {
     out.push({ key: 'partition_key', name: spec.partitionKey, role: 'partition', sql: quoteIdent(spec.partitionKey) });
   }
+  // Columns that bound what a run reads: their types are checked before any query relies on them.
+  if (spec.window !== null) out.push({ key: 'window.column', name: spec.window.column, role: 'window', sql: quoteIdent(spec.window.column) });
+  if (spec.watermark !== null && spec.watermark !== spec.window?.column) {
+    out.push({ key: 'watermark', name: spec.watermark, role: 'watermark', sql: quoteIdent(spec.watermark) });
+  }
+  if (spec.split?.cutoff != null) out.push({ key: 'split.cutoff', name: spec.split.cutoff, role: 'cutoff', sql: quoteIdent(spec.split.cutoff) });
   return out;
 }
 

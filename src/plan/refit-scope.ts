@@ -18,6 +18,14 @@ const WATERMARK_TYPES: Readonly<Record<string, string>> = {
   numeric: 'numeric',
 };
 
+/**
+ * The cast that reads back the text form of a value of a column that may bound a run (a
+ * watermark, a split run's cutoff), by its `pg_typeof` name; undefined for any other type.
+ */
+export function monotoneCast(typeName: string): string | undefined {
+  return Object.hasOwn(WATERMARK_TYPES, typeName) ? WATERMARK_TYPES[typeName] : undefined;
+}
+
 /** Window columns must be times: date_trunc buckets them. */
 const WINDOW_TYPES = new Set(['timestamp with time zone', 'timestamp without time zone', 'date']);
 
@@ -63,7 +71,7 @@ export function refitBoundsQuery(spec: FitSpec): SqlTemplate {
 export function parseRefitBounds(spec: FitSpec, row: readonly unknown[] | undefined): RefitBounds {
   const text = (v: unknown) => (v === null || v === undefined ? null : String(v));
   const typeName = text(row?.[1]) ?? '';
-  const type = WATERMARK_TYPES[typeName];
+  const type = monotoneCast(typeName);
   if (type === undefined) {
     throw new PlanError(
       spec.window !== null && spec.watermark === spec.window.column ? 'window.column' : 'watermark',

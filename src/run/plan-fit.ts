@@ -15,13 +15,16 @@ import type { FitSpec } from '../spec/fit-spec.js';
  * Plans a fit against the live source: checks the type of every expression (finding the
  * culprit when the server rejects one), discovers categorical levels, and cuts the
  * source into `parallel` partitions. `scope` narrows the first pass and the double-double
- * pass of an incremental or window fit (see refitFilter).
+ * pass of an incremental or window fit (see refitFilter). With `guardLevels`, every pass fails
+ * on a row whose categorical value the plan did not find (for reads that do not share the plan's
+ * snapshot; see guardLevels in plan/unplanned-level).
  */
 export async function planFit(
   client: DbSession,
   spec: FitSpec,
   parallel: number,
   scope: { first?: DesignScope; extended?: DesignScope } = {},
+  guardLevels = false,
 ): Promise<DesignPlan> {
   const expressions = probedExpressions(spec);
   let types: string[];
@@ -46,9 +49,11 @@ export async function planFit(
   const partitions = partitionPredicates(spec, parallel, pages);
   // The first pass may be scoped differently from a second, double-double one: an incremental
   // fit folds only new rows (per bucket) into stored state, the second pass reads them all.
-  const fast = buildDesignPlan(spec, casts, levels, partitions, new Set(), scope.first);
-  const extended = buildDesignPlan(spec, casts, levels, partitions, numeric, scope.extended ?? scope.first);
-  const extendedFloat = scope.extended === undefined ? undefined : buildDesignPlan(spec, casts, levels, partitions, new Set(), scope.extended);
+  const first = { ...scope.first, guardLevels };
+  const second = scope.extended === undefined ? undefined : { ...scope.extended, guardLevels };
+  const fast = buildDesignPlan(spec, casts, levels, partitions, new Set(), first);
+  const extended = buildDesignPlan(spec, casts, levels, partitions, numeric, second ?? first);
+  const extendedFloat = second === undefined ? undefined : buildDesignPlan(spec, casts, levels, partitions, new Set(), second);
   return { ...fast, extended, extendedFloat };
 }
 

@@ -2,6 +2,7 @@ import { autoFoldThreads, FoldPool } from '../fit/fold-pool.js';
 import { SegmentedFit } from '../fit/segmented-fit.js';
 import type { KeyedBlock, SegmentedFitOptions } from '../fit/segmented-fit.js';
 import type { DesignPlan } from '../plan/design-plan.js';
+import { unplannedLevelError } from '../plan/unplanned-level.js';
 import type { Database } from '../source/database.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import type { FitSpec } from '../spec/fit-spec.js';
@@ -52,6 +53,7 @@ export async function readPass(
               valueTypes: plan.valueTypes,
               mode: req.read ?? spec.read,
               nonFinite: spec.nonFinite === 'skip' ? 'skip' : 'pass',
+              signal: req.signal,
             },
             (block, keyTable) => {
               keyTables[i] = keyTable;
@@ -72,7 +74,10 @@ export async function readPass(
           ),
         ),
       ),
-    );
+    ).catch((e: unknown) => {
+      // A guarded plan's read stops at a categorical value the plan did not find: say which.
+      throw unplannedLevelError(e, spec, plan.levels) ?? e;
+    });
     if (pool !== null) return { fit: await pool.finish(), counts };
     const fit = fits[0]!;
     for (const f of fits.slice(1)) fit.merge(f);

@@ -143,7 +143,9 @@ export async function withFitLock<T>(
         }
         return await fn();
       } finally {
-        await session.query('select pg_advisory_unlock($1::bigint)', [key]);
+        // A connection that broke (the server restarted) took the lock with it; its error must not
+        // hide the run's own.
+        await session.query('select pg_advisory_unlock($1::bigint)', [key]).catch(() => undefined);
       }
     });
   } finally {

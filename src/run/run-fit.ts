@@ -5,7 +5,7 @@ import type { SegmentState, SegmentedFit, SegmentedFitOptions } from '../fit/seg
 import { solve } from '../fit/solve.js';
 import { solveExtended } from '../fit/solve-extended.js';
 import type { DesignPlan } from '../plan/design-plan.js';
-import type { Database } from '../source/database.js';
+import type { Database, SharedSnapshot } from '../source/database.js';
 import { openDatabase } from '../source/open-database.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
@@ -49,6 +49,11 @@ export interface RunFitRequest {
   readonly onRunStarted?: (runId: number) => void;
   /** Called now and then while rows stream. */
   readonly onProgress?: (p: { rowsRead: number; segments: number; seconds: number }) => void;
+  /**
+   * Stops the run at its next step (a read stops at once): no run is started after it aborts,
+   * and a started run is marked failed with the signal's reason.
+   */
+  readonly signal?: AbortSignal | undefined;
 }
 
 /** One published model. */
@@ -109,6 +114,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
   const parallel = req.parallel ?? 1;
   const database = await openDatabase({ db: req.db, env: req.env ?? process.env, sessions: parallel + 1 });
   const db = createStoreDb(database.dialect());
+  let reads: SharedSnapshot | undefined;
   try {
     if (parallel > database.maxSessions) {
       throw new SpecFileError(`--parallel ${parallel}: the ${database.kind} database serves ${database.maxSessions} reader(s) at once`);
@@ -116,11 +122,16 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     let refit: RefitStart | null = null;
     // Read before the session opens: the embedded database serves one session at a time.
     const stored = spec.watermark === null ? [] : await storedStates(db, spec);
-    const plan = await database.withSession(async (session) => {
-      if (spec.watermark === null) return planFit(session, spec, parallel);
+    // Every read of the run (the plan's probes, each partition, a second pass) sees one snapshot,
+    // and the plan's locks keep the source from being altered or truncated until the run ends.
+    reads = await database.shareSnapshot();
+    // Without a shared snapshot (the embedded database), a level the plan did not find fails the read.
+    const guard = reads.snapshotId === null;
+    const plan = await reads.withHoldingSession(async (session) => {
+      if (spec.watermark === null) return planFit(session, spec, parallel, {}, guard);
       // The unscoped plan gives the design (columns, levels) that stored state must match.
       refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel), req.full === true);
-      return planFit(session, spec, parallel, refit.scope);
+      return planFit(session, spec, parallel, refit.scope, guard);
     });
     // An incremental refit refines from the previous solutions (no pass over the stored rows).
     if (refit !== null) refit = { ...(refit as RefitStart), solved: await previousSolutions(db, spec, refit) };
@@ -129,10 +140,12 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
     }
     await migrate(db, spec.schema);
+    req.signal?.throwIfAborted();
     const runId = await startFitRun(db, spec, plan);
     req.onRunStarted?.(runId);
     try {
-      const out = await readAndSolve(database, spec, plan, req, refit);
+      const out = await readAndSolve(reads, spec, plan, req, refit);
+      req.signal?.throwIfAborted();
       const result = {
         rowsRead: out.rowsRead,
         rowsUsed: out.rowsUsed,
@@ -160,10 +173,11 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       }
       return { ...base, runId, ...out };
     } catch (e) {
-      await failRun(db, spec.schema, runId, e).catch(() => undefined);
+      await failRun(db, spec.schema, runId, req.signal?.aborted === true ? req.signal.reason : e).catch(() => undefined);
       throw e;
     }
   } finally {
+    await reads?.release();
     await db.destroy();
     await database.close();
   }

@@ -10,17 +10,35 @@ import type { StoreDatabase } from '../store/index.js';
 export const SPLIT_LEASE_SECONDS = 120;
 
 /**
- * Extends a split run's lease now and every third of the lease while `fn` runs.
+ * Seconds after its expiry within which the job of a worker that hangs comes back on the queue
+ * and is taken by an idle worker: one sweep of a live serve process (every 10 s by default) and
+ * one poll (every 2 s), with room for a loaded machine.
+ */
+export const HUNG_JOB_BOUND_SECONDS = 15;
+
+/**
+ * The lease of a split run whose jobs expire after `jobTimeoutSeconds`: {@link SPLIT_LEASE_SECONDS},
+ * or the job timeout plus a minute when that is longer, so that the job of a worker that hangs
+ * (whose last extension came no later than its job's start) comes back, within
+ * {@link HUNG_JOB_BOUND_SECONDS} of its expiry, well before the run counts as abandoned.
+ */
+export function splitLeaseSeconds(jobTimeoutSeconds: number): number {
+  return Math.max(SPLIT_LEASE_SECONDS, jobTimeoutSeconds + 60);
+}
+
+/**
+ * Extends a split run's lease (`leaseSeconds`, see {@link splitLeaseSeconds}) now and every third
+ * of the lease while `fn` runs.
  *
  * @example
- * await keepSplitRunAlive(store, 'rowfold', runId, () => foldThePartition());
+ * await keepSplitRunAlive(store, 'rowfold', runId, splitLeaseSeconds(1800), () => foldThePartition());
  */
 export async function keepSplitRunAlive<T>(
   store: Kysely<StoreDatabase>,
   schema: string,
   runId: number,
+  leaseSeconds: number,
   fn: () => Promise<T>,
-  leaseSeconds = SPLIT_LEASE_SECONDS,
 ): Promise<T> {
   await extendSplitRun(store, schema, runId, leaseSeconds);
   // A missed extension only shortens the lease; the next one (or the job's end) catches up.

@@ -1,12 +1,13 @@
 import { SegmentedFit } from '../fit/segmented-fit.js';
 import { designPlanFromJson } from '../plan/design-plan-json.js';
+import { PlanOutdatedError, sourceChangedError } from '../plan/plan-outdated-error.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { openServerDatabase } from '../source/server-database.js';
-import { createStoreDb, deletePartials, failRunsAndPartials, loadPartialFactors, loadSplitRun, writeRunResult } from '../store/index.js';
+import { createStoreDb, deletePartials, failRunsAndPartials, loadPartialFactors, loadSplitRun, recordSplitRunSeconds, writeRunResult } from '../store/index.js';
 import type { ModelRecord } from '../store/index.js';
 import { passesOf, readAndSolve } from './run-fit.js';
-import { keepSplitRunAlive } from './split-lease.js';
+import { keepSplitRunAlive, splitLeaseSeconds } from './split-lease.js';
 import { splitRunSpec } from './split-partition.js';
 
 /** The merge job of a split run. */
@@ -16,6 +17,8 @@ export interface MergeRequest {
   readonly runId: number;
   /** pg-boss will not try this job again: a failure now fails the run. */
   readonly final: boolean;
+  /** Stops the merge at its next step (a read stops at once); nothing is published after it aborts. */
+  readonly signal?: AbortSignal | undefined;
 }
 
 /** What a merge job did. */
@@ -54,7 +57,9 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
     // The double-double pass, when one is due, reads the partitions over a few connections.
     const database = openServerDatabase(req.target, Math.min(run.partitions, 4) + 1);
     try {
-      return await keepSplitRunAlive(store, req.schema, req.runId, async () => {
+      const spec = splitRunSpec(run);
+      return await keepSplitRunAlive(store, req.schema, req.runId, splitLeaseSeconds(spec.split?.jobTimeoutSeconds ?? 0), async () => {
+        const started = performance.now();
         try {
           const partials = await loadPartialFactors(store, req.schema, req.runId);
           const written = new Set(partials.partitions.map((p) => p.partition));
@@ -64,20 +69,28 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
               `run ${req.runId}: ${missing.length} of ${run.partitions} partitions are not written yet (partition${missing.length === 1 ? '' : 's'} ${missing.join(', ')}); the merge job is retried`,
             );
           }
-          const spec = splitRunSpec(run);
           const plan = designPlanFromJson(run.plan);
           const { firstPlan, firstOptions } = passesOf(spec, plan, {}, null, false);
           const shape = { terms: firstPlan.columns, response: spec.response, weight: spec.weight ?? undefined, intercept: spec.intercept };
           const fit = new SegmentedFit(shape, firstPlan.keyNames, firstOptions);
           for (const f of partials.factors) fit.ensure(f.key).acc.mergeState(f.state);
           const counts = partials.partitions.map((p) => p.counts as DesignReadCounts);
-          const out = await readAndSolve(database, spec, plan, { specPath: spec.origin }, null, { fit, counts });
+          // A double-double pass reads every partition at once, over one snapshot.
+          const reads = await database.shareSnapshot();
+          const out = await readAndSolve(reads, spec, plan, { specPath: spec.origin, signal: req.signal }, null, { fit, counts })
+            .catch((e: unknown) => {
+              throw sourceChangedError(e, req.runId) ?? e;
+            })
+            .finally(() => reads.release());
           const models = out.models.map(
             (m): ModelRecord => ({ segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes }),
           );
           const result = { rowsRead: out.rowsRead, rowsUsed: out.rowsUsed, rowsSkipped: out.rowsSkipped, seconds: out.seconds, models };
+          req.signal?.throwIfAborted();
           await store.transaction().execute(async (trx) => {
             await writeRunResult(trx, req.schema, req.runId, result);
+            // The run's seconds are its whole duration, with the parts beside it in split_runs.
+            await recordSplitRunSeconds(trx, req.schema, req.runId, (performance.now() - started) / 1000);
             await deletePartials(trx, req.schema, req.runId);
           });
           return { outcome: 'published', rowsRead: out.rowsRead, segments: models.length };
@@ -87,7 +100,8 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const now = await loadSplitRun(store, req.schema, req.runId);
           if (now?.status === 'succeeded') return { outcome: 'already-published', rowsRead: 0, segments: 0 };
           if (now !== null && now.status !== 'running') return { outcome: 'run-ended', rowsRead: 0, segments: 0 };
-          if (req.final) {
+          // A source that no longer matches the plan fails every attempt alike.
+          if (req.final || e instanceof PlanOutdatedError) {
             await failRunsAndPartials(store, req.schema, [req.runId], e).catch(() => undefined);
           }
           throw e;

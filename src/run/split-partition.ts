@@ -1,5 +1,6 @@
 import type { Kysely } from 'kysely';
 import { designPlanFromJson } from '../plan/design-plan-json.js';
+import { sourceChangedError } from '../plan/plan-outdated-error.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
@@ -8,7 +9,7 @@ import { createStoreDb, loadSplitRun, writePartialFactors } from '../store/index
 import type { PartialWriteOutcome, SplitRunRecord, StoreDatabase } from '../store/index.js';
 import { readPass } from './read-pass.js';
 import { passesOf } from './run-fit.js';
-import { keepSplitRunAlive } from './split-lease.js';
+import { keepSplitRunAlive, splitLeaseSeconds } from './split-lease.js';
 
 /** One partition job of a split run. */
 export interface PartitionRequest {
@@ -18,6 +19,8 @@ export interface PartitionRequest {
   readonly partition: number;
   /** Who folds it (host:pid), recorded with the partial factors. */
   readonly worker: string;
+  /** Stops the fold (a read stops at once); nothing is written after it aborts. */
+  readonly signal?: AbortSignal | undefined;
 }
 
 /** What a partition job did, and whether the run now has every partition. */
@@ -52,14 +55,21 @@ export async function foldPartition(req: PartitionRequest): Promise<PartitionOut
     if (run.written.includes(req.partition)) {
       return { outcome: 'already-written', rowsRead: 0, segments: 0, complete: run.written.length === run.partitions };
     }
-    return await keepSplitRunAlive(store, req.schema, req.runId, async () => {
-      const spec = splitRunSpec(run);
+    const spec = splitRunSpec(run);
+    return await keepSplitRunAlive(store, req.schema, req.runId, splitLeaseSeconds(spec.split?.jobTimeoutSeconds ?? 0), async () => {
       const { firstPlan, firstOptions } = passesOf(spec, designPlanFromJson(run.plan), {}, null, false);
       const one = { ...firstPlan, queries: [firstPlan.queries[req.partition]!] };
       const started = performance.now();
-      const { fit, counts } = await readPass(database, one, spec, { specPath: spec.origin }, firstOptions, { rows: 0, last: started, started });
+      const { fit, counts } = await readPass(database, one, spec, { specPath: spec.origin, signal: req.signal }, firstOptions, { rows: 0, last: started, started }).catch(
+        (e: unknown) => {
+          throw sourceChangedError(e, req.runId) ?? e;
+        },
+      );
       const partials = fit.states().map((s) => ({ segmentKey: s.keyText, key: s.key, state: s.acc.state() }));
-      const outcome = await writePartialFactors(store, req.schema, req.runId, req.partition, counts[0], req.worker, partials);
+      req.signal?.throwIfAborted();
+      // The partition's read-and-fold seconds go with its counts (summed into split_runs when the run publishes).
+      const seconds = (performance.now() - started) / 1000;
+      const outcome = await writePartialFactors(store, req.schema, req.runId, req.partition, { ...counts[0], seconds }, req.worker, partials);
       return { outcome, rowsRead: counts[0]!.rowsRead, segments: partials.length, complete: await isComplete(store, req.schema, req.runId) };
     });
   } finally {

@@ -1,11 +1,17 @@
+import type { DesignScope } from '../plan/design-plan.js';
 import { designPlanToJson } from '../plan/design-plan-json.js';
+import { PlanError } from '../plan/plan-error.js';
+import { parseSplitCutoff, splitCutoffFilter, splitCutoffQuery } from '../plan/split-cutoff.js';
+import type { DbSession } from '../source/database.js';
+import { queryAll } from '../source/query-helpers.js';
+import type { FitSpec } from '../spec/fit-spec.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { createStoreDb, failRunsAndPartials, migrate, startSplitRun } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { withFitLock } from './run-fit-exclusive.js';
 import { loadSpecFile, startFitRun } from './run-fit.js';
-import { SPLIT_LEASE_SECONDS } from './split-lease.js';
+import { splitLeaseSeconds } from './split-lease.js';
 
 /** A split run that has started: its id and the partition jobs it was cut into. */
 export interface SplitStart {
@@ -30,6 +36,8 @@ export interface SplitStartRequest {
   readonly onRunStarted?: (runId: number) => void;
   /** Called with the backend that holds the fit's lock while the run starts. */
   readonly onLocked?: (backendPid: number) => void;
+  /** Stops the start at its next step: no run is written after it aborts; a written run is marked failed. */
+  readonly signal?: AbortSignal | undefined;
 }
 
 /**
@@ -50,12 +58,20 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
     const database = openServerDatabase(req.target, 2);
     const db = createStoreDb(database.dialect());
     try {
-      const plan = await database.withSession((session) => planFit(session, spec, split.partitions));
+      // The plan's probes (levels, pages, the cutoff) read one snapshot. The partitions are read
+      // later, by other jobs, outside it: the cutoff bounds what they read, and the guard fails a
+      // row whose categorical value the plan did not find.
+      const reads = await database.shareSnapshot();
+      const plan = await reads
+        .withHoldingSession(async (session) => planFit(session, spec, split.partitions, { first: await splitScope(session, spec) }, true))
+        .finally(() => reads.release());
       await migrate(db, spec.schema);
+      req.signal?.throwIfAborted();
       const runId = await startFitRun(db, spec, plan);
       req.onRunStarted?.(runId);
       try {
-        await startSplitRun(db, spec.schema, runId, spec.name, plan.queries.length, designPlanToJson(plan), SPLIT_LEASE_SECONDS);
+        req.signal?.throwIfAborted();
+        await startSplitRun(db, spec.schema, runId, spec.name, plan.queries.length, designPlanToJson(plan), splitLeaseSeconds(split.jobTimeoutSeconds));
         const start: SplitStart = {
           runId,
           schema: spec.schema,
@@ -66,7 +82,7 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
         await req.enqueue(start);
         return start;
       } catch (e) {
-        await failRunsAndPartials(db, spec.schema, [runId], e).catch(() => undefined);
+        await failRunsAndPartials(db, spec.schema, [runId], req.signal?.aborted === true ? req.signal.reason : e).catch(() => undefined);
         throw e;
       }
     } finally {
@@ -74,4 +90,14 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
       await database.close();
     }
   }, { onLocked: req.onLocked });
+}
+
+/** What every partition of a split run reads: rows up to the cutoff, if the spec names one. */
+async function splitScope(session: DbSession, spec: FitSpec): Promise<DesignScope> {
+  const column = spec.split?.cutoff ?? null;
+  if (column === null) return {};
+  const rows = await queryAll(session, splitCutoffQuery(spec, column)).catch((e: unknown) => {
+    throw new PlanError('split.cutoff', `column ${column} does not evaluate over the source: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
+  });
+  return { filter: splitCutoffFilter(parseSplitCutoff(column, rows[0])) };
 }

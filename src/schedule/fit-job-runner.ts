@@ -1,10 +1,12 @@
 import { hostname } from 'node:os';
+import { PlanOutdatedError } from '../plan/plan-outdated-error.js';
 import { breakFitLock, runFitExclusive } from '../run/run-fit-exclusive.js';
 import { failRunAndPartials } from '../run/split-fail.js';
 import { mergeSplitRun } from '../run/split-merge.js';
 import { foldPartition } from '../run/split-partition.js';
 import { startSplitFit } from '../run/split-start.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
+import { DroppedJobError } from './serve-fits.js';
 import type { RunServedJob } from './serve-fits.js';
 
 /** Where the runner's fits read and publish. */
@@ -16,7 +18,7 @@ export interface FitJobRunnerOptions {
 }
 
 /** The error a run gets when `serve` drops it on a second signal. */
-export const DROPPED_RUN_MESSAGE = 'serve was stopped at once (a second SIGTERM or SIGINT) while this run was in progress; its job went back to the queue';
+export const DROPPED_RUN_MESSAGE = new DroppedJobError().message;
 
 /**
  * What a `rowfold serve` worker does with each kind of job:
@@ -38,12 +40,15 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
   const worker = `${hostname()}:${process.pid}`;
   return async (job, send) => {
     const { spec, specPath } = job.schedule;
+    // Dropped before it began (a second signal in the instant it was taken): start nothing.
+    job.signal.throwIfAborted();
+    const signal = job.signal;
     // Undone last first: the run is marked failed, then its lock is let go, then the job goes back.
     const dropRun = (runId: number) => job.onDrop(() => failRunAndPartials(opts.target, spec.schema, runId, new Error(DROPPED_RUN_MESSAGE)).then(() => undefined));
     const dropLock = (backendPid: number) => job.onDrop(() => breakFitLock(opts.target, backendPid, spec.schema, spec.name).then(() => undefined));
     if (job.kind === 'fit') {
       if (spec.split === null) {
-        const r = await runFitExclusive({ specPath, db: opts.db, env: opts.env, onRunStarted: dropRun }, { onLocked: dropLock });
+        const r = await runFitExclusive({ specPath, db: opts.db, env: opts.env, onRunStarted: dropRun, signal }, { onLocked: dropLock });
         return { run_id: r.runId, rows_read: r.rowsRead, rows_used: r.rowsUsed, segments: r.models.length, seconds: r.seconds };
       }
       const started = await startSplitFit({
@@ -51,7 +56,8 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
         target: opts.target,
         onRunStarted: dropRun,
         onLocked: dropLock,
-        enqueue: (s) => send.partitions(job.schedule, s.runId, s.partitions, s.jobTimeoutSeconds),
+        signal,
+        enqueue: (s) => send.partitions(job.schedule, s.runId, s.partitions, s.jobTimeoutSeconds, signal),
       });
       return { run_id: started.runId, partitions: started.partitions };
     }
@@ -60,14 +66,18 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
     try {
       if (job.kind === 'partition') {
         const partition = Number(job.data.partition);
-        const done = await foldPartition({ target: opts.target, schema: spec.schema, runId, partition, worker });
+        const done = await foldPartition({ target: opts.target, schema: spec.schema, runId, partition, worker, signal });
         if (done.complete) await send.merge(job.schedule, runId, timeout);
         return { run_id: runId, partition, outcome: done.outcome, rows_read: done.rowsRead, segments: done.segments, merge_sent: done.complete };
       }
-      const merged = await mergeSplitRun({ target: opts.target, schema: spec.schema, runId, final: job.final });
+      const merged = await mergeSplitRun({ target: opts.target, schema: spec.schema, runId, final: job.final, signal });
       return { run_id: runId, outcome: merged.outcome, rows_read: merged.rowsRead, segments: merged.segments };
     } catch (e) {
-      if (job.final && job.kind === 'partition') await failRunAndPartials(opts.target, spec.schema, runId, e).catch(() => undefined);
+      // A source that no longer matches the run's plan (a dropped column, a level the plan did not
+      // find) fails every attempt alike: the run fails at once.
+      if ((job.final || e instanceof PlanOutdatedError) && job.kind === 'partition') {
+        await failRunAndPartials(opts.target, spec.schema, runId, e).catch(() => undefined);
+      }
       throw e;
     }
   };

@@ -4,6 +4,13 @@ import { createHash } from 'node:crypto';
 export const JOBS_SCHEMA = 'rowfold_jobs';
 
 /**
+ * Session advisory lock (`rowfold:serve:register`) under which serve processes start pg-boss and
+ * register their queues and schedules one at a time, and under which a sweep removes stale
+ * schedules.
+ */
+export const REGISTER_LOCK_KEY = createHash('sha256').update('rowfold:serve:register', 'utf8').digest().readBigInt64BE(0).toString();
+
+/**
  * The pg-boss queue of one fit: `rowfold-fit.<schema>.<name>`. pg-boss keeps one schedule per
  * queue (its primary key is the queue name), so a queue per fit makes each fit's schedule a
  * single row however many `serve` processes register it.

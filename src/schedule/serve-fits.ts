@@ -1,10 +1,9 @@
 import { setTimeout as sleep } from 'node:timers/promises';
-import { createHash } from 'node:crypto';
 import pg from 'pg';
 import PgBoss from 'pg-boss';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import type { FitSchedule } from './fit-schedule.js';
-import { fitQueueName, JOBS_SCHEMA, mergeQueueName, partitionQueueName } from './fit-queue.js';
+import { fitQueueName, JOBS_SCHEMA, mergeQueueName, partitionQueueName, REGISTER_LOCK_KEY } from './fit-queue.js';
 import type { FitJobData, PartitionJobData } from './fit-queue.js';
 import { ServeRegistry } from './serve-registry.js';
 import { sweepServe } from './serve-sweep.js';
@@ -23,15 +22,36 @@ export interface ServedJob {
   /** pg-boss will not try this job again after this attempt. */
   readonly final: boolean;
   /**
-   * Registers what to undo if serve must drop the job before it ends (a second signal); undone
-   * in reverse order of registration, before the job goes back on the queue.
+   * Aborted when serve must drop the job (a second signal), with a {@link DroppedJobError}: the
+   * job stops at its next step, and starts nothing new (no run, no partition jobs).
+   */
+  readonly signal: AbortSignal;
+  /**
+   * Registers what to undo if serve drops the job before it ends; undone in reverse order of
+   * registration, once the job has stopped (or after {@link DROP_WAIT_MS}), before the job goes
+   * back on the queue.
    */
   onDrop(undo: () => Promise<void>): void;
 }
 
+/** The reason a dropped job's signal carries. */
+export class DroppedJobError extends Error {
+  override readonly name = 'DroppedJobError';
+  constructor() {
+    super('serve was stopped at once (a second SIGTERM or SIGINT) while this run was in progress; its job went back to the queue');
+  }
+}
+
+/**
+ * How long serve waits, when it drops a job, for the job to stop at its next step before it
+ * undoes what the job did: a read stops at once; solving or a transaction in flight finishes.
+ */
+export const DROP_WAIT_MS = 5000;
+
 /** How a worker puts the jobs of a split run on the queue (each job once, whoever sends it). */
 export interface JobSender {
-  partitions(schedule: FitSchedule, runId: number, partitions: number, timeoutSeconds: number): Promise<void>;
+  /** Sends the partition jobs of a run; stops (throws) when `signal` aborts. */
+  partitions(schedule: FitSchedule, runId: number, partitions: number, timeoutSeconds: number, signal?: AbortSignal): Promise<void>;
   merge(schedule: FitSchedule, runId: number, timeoutSeconds: number): Promise<void>;
 }
 
@@ -70,9 +90,6 @@ export interface ServeFitsOptions {
   readonly onReady?: () => void;
 }
 
-/** Session advisory lock that serialises serve start-ups on one database (`rowfold:serve:register`). */
-const REGISTER_LOCK_KEY = createHash('sha256').update('rowfold:serve:register', 'utf8').digest().readBigInt64BE(0).toString();
-
 /** Retries of a partition or merge job, and the seconds between them: a lost partition should come back soon. */
 const SPLIT_RETRY_LIMIT = 5;
 const SPLIT_RETRY_DELAY = 2;
@@ -96,10 +113,23 @@ interface QueueRoute {
   readonly schedule: FitSchedule;
 }
 
+/** How a job's work ended. */
+type Outcome = { readonly ok: true; readonly output: Record<string, unknown> } | { readonly ok: false; readonly error: unknown };
+
 interface ActiveJob {
   readonly queue: string;
   readonly id: string;
+  /** `fit NAME: partition 3 job ID`, for the log. */
+  readonly label: string;
+  /** pg-boss will not try the job again after this attempt. */
+  readonly final: boolean;
   readonly undo: (() => Promise<void>)[];
+  readonly stop: AbortController;
+  /** Settles when the job's work does (never rejects). */
+  readonly settled: Promise<Outcome>;
+  settle(outcome: Outcome): void;
+  /** This process's claim on the job is recorded (so ending it is fenced by the claim). */
+  claimed: boolean;
   dropped: boolean;
 }
 
@@ -259,19 +289,25 @@ async function workLoop(
       );
       if (job === undefined) continue;
       took = true;
-      const entry: ActiveJob = { queue, id: job.id, undo: [], dropped: false };
+      let settle!: (outcome: Outcome) => void;
+      const settled = new Promise<Outcome>((resolve) => (settle = resolve));
+      const route = routes.get(queue)!;
+      const final = job.retryCount >= job.retryLimit;
+      const label = `fit ${route.schedule.spec.name}: ${describeJob(route.kind, job.data)} ${job.id}`;
+      const entry: ActiveJob = { queue, id: job.id, label, final, undo: [], stop: new AbortController(), settled, settle, claimed: false, dropped: false };
       active.set(job.id, entry);
-      await registry.claim(job.id, queue).catch((e: unknown) => opts.log(`cannot record job ${job.id}: ${e instanceof Error ? e.message : String(e)}`));
       const served: ServedJob = {
-        kind: routes.get(queue)!.kind,
+        kind: route.kind,
         queue,
         id: job.id,
-        schedule: routes.get(queue)!.schedule,
+        schedule: route.schedule,
         data: job.data,
-        final: job.retryCount >= job.retryLimit,
+        final,
+        signal: entry.stop.signal,
         onDrop: (undo) => void entry.undo.push(undo),
       };
-      const work = workOne(boss, registry, served, entry, sender, opts, counts).finally(() => {
+      const claim = () => registry.claim(job.id, queue, job.startedOn, Number(job.expireInSeconds));
+      const work = workOne(boss, registry, served, entry, claim, sender, opts, counts).finally(() => {
         running.delete(work);
         active.delete(job.id);
       });
@@ -300,15 +336,23 @@ function aborted(signal: AbortSignal): Promise<void> {
 }
 
 /**
- * Drops every running job: its undo hooks run to their end, then it goes back on the queue. A job
- * is never handed back while its undo (failing the run, letting go of the fit's lock) may still
- * be under way; should an undo hang, the process exits after a bound (serve's exit guard) with
- * the job unreleased, and peers hand it back once its presence lock is gone.
+ * Drops every running job: its signal aborts, so it stops at its next step and starts nothing
+ * new; once it has stopped (or after {@link DROP_WAIT_MS}), its undo hooks run to their end (the
+ * run is marked failed, the fit's lock let go) and it goes back on the queue. A job that finished
+ * meanwhile is ended as usual instead. A job is never handed back while its undo may still be
+ * under way; should an undo hang, the process exits after a bound (serve's exit guard) with the
+ * job unreleased, and peers hand it back once its presence lock is gone.
  */
 async function dropAll(boss: PgBoss, registry: ServeRegistry, active: Map<string, ActiveJob>, opts: ServeFitsOptions, counts: Counts): Promise<void> {
   await Promise.all(
     [...active.values()].map(async (entry) => {
       entry.dropped = true;
+      entry.stop.abort(new DroppedJobError());
+      const outcome = await Promise.race([entry.settled, sleep(DROP_WAIT_MS).then(() => undefined)]);
+      if (outcome?.ok === true) {
+        await endJob(boss, registry, entry, outcome, opts, counts, '(it finished before it could be dropped)');
+        return;
+      }
       // Last registered, first undone (a run is failed before the lock it ran under is let go).
       for (const undo of [...entry.undo].reverse()) {
         await undo().catch((e: unknown) =>
@@ -316,13 +360,16 @@ async function dropAll(boss: PgBoss, registry: ServeRegistry, active: Map<string
         );
       }
       const done = await registry
-        .releaseJob(entry.queue, entry.id, () => boss.fail(entry.queue, entry.id, { message: 'serve stopped at once (a second signal)' }))
+        .releaseJob(boss, entry.queue, entry.id, 'serve stopped at once (a second signal)')
         .catch((e: unknown) => void opts.log(`job ${entry.id}: cannot hand back: ${e instanceof Error ? e.message : String(e)}`));
-      await registry.unclaim(entry.id).catch(() => undefined);
       counts.released++;
       opts.log(`job ${entry.id} of ${entry.queue}: dropped; ${done === 'retry' ? 'back on the queue for another worker' : done === 'failed' ? 'failed (no retries left)' : 'it had already ended'}`);
     }),
   );
+}
+
+function describeJob(kind: JobKind, data: Partial<PartitionJobData>): string {
+  return kind === 'fit' ? 'job' : kind === 'partition' ? `partition ${data.partition} job` : 'merge job';
 }
 
 async function workOne(
@@ -330,32 +377,64 @@ async function workOne(
   registry: ServeRegistry,
   job: ServedJob,
   entry: ActiveJob,
+  claim: () => Promise<void>,
   sender: JobSender,
   opts: ServeFitsOptions,
   counts: Counts,
 ): Promise<void> {
-  const name = job.schedule.spec.name;
-  const what = job.kind === 'fit' ? 'job' : job.kind === 'partition' ? `partition ${job.data.partition} job` : 'merge job';
-  opts.log(`fit ${name}: ${what} ${job.id} started`);
+  opts.log(`${entry.label} started`);
   try {
-    const output = await opts.runJob(job, sender);
-    if (entry.dropped) return;
-    await boss.complete(job.queue, job.id, output);
-    counts.succeeded++;
-    opts.log(`fit ${name}: ${what} ${job.id} succeeded ${JSON.stringify(output)}`);
+    await claim();
+    entry.claimed = true;
   } catch (e) {
-    if (entry.dropped) return;
-    const message = e instanceof Error ? e.message : String(e);
-    if (isBusy(e)) {
-      await boss.complete(job.queue, job.id, { skipped: message }).catch(() => undefined);
-      counts.skipped++;
-      opts.log(`fit ${name}: ${what} ${job.id} skipped: ${message}`);
-      return;
+    opts.log(`cannot record job ${job.id}: ${e instanceof Error ? e.message : String(e)}`);
+  }
+  const outcome: Outcome = await opts.runJob(job, sender).then(
+    (output) => ({ ok: true, output }),
+    (error: unknown) => ({ ok: false, error }),
+  );
+  entry.settle(outcome);
+  // A dropped job is ended by dropAll, after its undo.
+  if (entry.dropped) return;
+  await endJob(boss, registry, entry, outcome, opts, counts, '');
+}
+
+/**
+ * Completes (or, for a busy fit, completes as skipped; or fails) a job whose work has ended, in
+ * one transaction with the removal of this process's claim. When the claim is gone (the job ran
+ * past its expiry, or this process looked dead, and it was handed back), the job is left to
+ * whoever holds it now: a worker that wakes up never ends a job another worker took.
+ */
+async function endJob(
+  boss: PgBoss,
+  registry: ServeRegistry,
+  entry: ActiveJob,
+  outcome: Outcome,
+  opts: ServeFitsOptions,
+  counts: Counts,
+  note: string,
+): Promise<void> {
+  const { queue, id, label } = entry;
+  const end = (call: (options: PgBoss.ConnectionOptions) => Promise<unknown>): Promise<boolean> =>
+    entry.claimed ? registry.endClaimed(id, (db) => call({ db })) : call({}).then(() => true);
+  const tell = (line: string) => opts.log(note === '' ? line : `${line} ${note}`);
+  const handedBack = 'the job was handed back meanwhile (it ran past its expiry, or this process looked dead), so it is left to whoever took it';
+  try {
+    if (outcome.ok) {
+      if (!(await end((o) => boss.complete(queue, id, outcome.output, o)))) return void tell(`${label}: its work ended ${JSON.stringify(outcome.output)}, but ${handedBack}`);
+      counts.succeeded++;
+      return void tell(`${label} succeeded ${JSON.stringify(outcome.output)}`);
     }
-    await boss.fail(job.queue, job.id, { message }).catch(() => undefined);
+    const message = outcome.error instanceof Error ? outcome.error.message : String(outcome.error);
+    if (isBusy(outcome.error)) {
+      if (!(await end((o) => boss.complete(queue, id, { skipped: message }, o)))) return void tell(`${label}: skipped, but ${handedBack}`);
+      counts.skipped++;
+      return void tell(`${label} skipped: ${message}`);
+    }
+    if (!(await end((o) => boss.fail(queue, id, { message }, o)))) return void tell(`${label}: failed (${message}), but ${handedBack}`);
     counts.failed++;
-    opts.log(`fit ${name}: ${what} ${job.id} failed${job.final ? '' : ' (it will be retried)'}: ${message}`);
-  } finally {
-    if (!entry.dropped) await registry.unclaim(job.id).catch(() => undefined);
+    tell(`${label} failed${entry.final ? '' : ' (it will be retried)'}: ${message}`);
+  } catch (e) {
+    opts.log(`${label}: cannot record its end (${e instanceof Error ? e.message : String(e)}); it comes back when it expires`);
   }
 }

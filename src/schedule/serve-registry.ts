@@ -2,11 +2,16 @@ import { createHash, randomBytes } from 'node:crypto';
 import { hostname } from 'node:os';
 import { setTimeout as sleep } from 'node:timers/promises';
 import pg from 'pg';
-import { JOBS_SCHEMA } from './fit-queue.js';
+import type PgBoss from 'pg-boss';
+import { withClient } from '../source/with-client.js';
+import { JOBS_SCHEMA, REGISTER_LOCK_KEY } from './fit-queue.js';
 
 const S = pg.escapeIdentifier(JOBS_SCHEMA);
 
-/** Tables of the serve processes, beside pg-boss's own in the jobs schema. */
+/**
+ * Tables of the serve processes, beside pg-boss's own in the jobs schema (which rowfold reads
+ * and writes only through pg-boss's public API).
+ */
 const TABLES = [
   `create table if not exists ${S}.rowfold_servers (
      server_id  text primary key,
@@ -28,6 +33,9 @@ const TABLES = [
      server_id  text not null,
      claimed_at timestamptz not null default now()
    )`,
+  // When the job expires (pg-boss's start plus the job's expiry), so that any live process can
+  // hand back the job of a worker that hangs without waiting for pg-boss's maintenance.
+  `alter table ${S}.rowfold_job_claims add column if not exists expires_at timestamptz`,
 ];
 
 /** An advisory lock (as a bigint key) is held by a live session of this database. */
@@ -40,11 +48,41 @@ const LOCK_HELD = (key: string) => `exists (
 /** Milliseconds between attempts to take the presence lock again after its connection ended. */
 const RETAKE_EVERY_MS = 500;
 
-/** A job claimed by a serve process that is no longer alive. */
+/** A job claimed by a serve process that is no longer alive, or that has run past its expiry. */
 export interface LostClaim {
   readonly jobId: string;
   readonly queue: string;
   readonly serverId: string;
+}
+
+/** Why a claim's job is handed back: its process is gone, or the job ran past its expiry. */
+export type HandBackReason = 'lost' | 'expired';
+
+/** What became of a job handed back: on the queue again, failed (no retries left), or nothing (it had ended). */
+export type HandBackOutcome = 'retry' | 'failed' | null;
+
+/**
+ * Puts an active job back on the queue, to be taken at once, through pg-boss's public API and
+ * inside the caller's transaction (`db`): `cancel` then `resume`. The job has been started, so
+ * pg-boss counts its next start as a retry; a job with no retries left is failed instead (with
+ * `message`). `fail` would also retry it, but only after the queue's retry delay (a minute for fit
+ * jobs). Returns null when the job is no longer active.
+ */
+export async function requeueActiveJob(boss: PgBoss, queue: string, id: string, db: PgBoss.Db, message: string): Promise<HandBackOutcome> {
+  const job = await boss.getJobById(queue, id, { db, includeArchive: false });
+  if (job === null || job.state !== 'active') return null;
+  if (job.retryCount < job.retryLimit) {
+    await boss.cancel(queue, id, { db });
+    await boss.resume(queue, id, { db });
+    return 'retry';
+  }
+  await boss.fail(queue, id, { message }, { db });
+  return 'failed';
+}
+
+/** pg-boss's database adapter over one of our clients, so that its calls join our transaction. */
+function bossDb(client: pg.ClientBase): PgBoss.Db {
+  return { executeSql: async (text, values) => client.query(text, values) };
 }
 
 /**
@@ -164,18 +202,44 @@ export class ServeRegistry {
     );
   }
 
-  /** This process works job `jobId` of `queue`. */
-  async claim(jobId: string, queue: string): Promise<void> {
+  /**
+   * This process works job `jobId` of `queue`, which pg-boss started at `startedOn` and expires
+   * `expireInSeconds` later.
+   */
+  async claim(jobId: string, queue: string, startedOn: Date, expireInSeconds: number): Promise<void> {
     await this.#pool.query(
-      `insert into ${S}.rowfold_job_claims (job_id, queue, server_id) values ($1, $2, $3)
-       on conflict (job_id) do update set queue = excluded.queue, server_id = excluded.server_id, claimed_at = now()`,
-      [jobId, queue, this.serverId],
+      `insert into ${S}.rowfold_job_claims (job_id, queue, server_id, expires_at)
+       values ($1, $2, $3, $4::timestamptz + $5 * interval '1 second')
+       on conflict (job_id) do update set queue = excluded.queue, server_id = excluded.server_id, claimed_at = now(),
+                                          expires_at = excluded.expires_at`,
+      [jobId, queue, this.serverId, startedOn, expireInSeconds],
     );
   }
 
-  /** The job has ended (or was handed back): no claim is left. */
-  async unclaim(jobId: string): Promise<void> {
-    await this.#pool.query(`delete from ${S}.rowfold_job_claims where job_id = $1 and server_id = $2`, [jobId, this.serverId]);
+  /**
+   * Ends job `jobId` of this process through `end` (pg-boss's complete or fail, given our
+   * transaction's adapter), in one transaction with the removal of this process's claim; when the
+   * claim is no longer this process's (the job was handed back: it ran past its expiry, or this
+   * process looked dead), nothing is done and false returned, so a worker that wakes up never
+   * ends the job another worker now holds.
+   */
+  async endClaimed(jobId: string, end: (db: PgBoss.Db) => Promise<unknown>): Promise<boolean> {
+    return this.#transaction(async (client) => {
+      const mine = await client.query(`delete from ${S}.rowfold_job_claims where job_id = $1 and server_id = $2 returning job_id`, [jobId, this.serverId]);
+      if (mine.rowCount === 0) return false;
+      await end(bossDb(client));
+      return true;
+    });
+  }
+
+  /** `fn` in a transaction on a pooled client (discarded on failure, which rolls it back). */
+  #transaction<T>(fn: (client: pg.PoolClient) => Promise<T>): Promise<T> {
+    return withClient(this.#pool, async (client) => {
+      await client.query('BEGIN');
+      const out = await fn(client);
+      await client.query('COMMIT');
+      return out;
+    });
   }
 
   /** Jobs claimed by processes that are no longer alive (their presence lock is gone). */
@@ -191,78 +255,80 @@ export class ServeRegistry {
   }
 
   /**
-   * Hands back the job of a lost claim, in one statement: the claim is deleted only if it is
-   * still this process's (`claim.serverId`) and that process's presence lock is still missing,
-   * and the job goes back on the queue (pg-boss counts a retry) only if that delete happened.
-   * So of two sweepers only one hands a job back, and never after its worker took it again
-   * or its process took its presence back. A job with no retries left is failed through `fail`.
-   * Returns what was done, or null when someone else already dealt with the claim or the job
-   * is no longer active.
+   * Jobs claimed (by any process, this one included) that have run past their expiry: a worker
+   * that hangs without dying keeps its presence lock, so only the clock tells.
    */
-  async handBackLost(claim: LostClaim, fail: () => Promise<unknown>): Promise<'retry' | 'failed' | null> {
-    const r = await this.#pool.query<{ gone: number; back: number }>(
-      `with gone as (
-         delete from ${S}.rowfold_job_claims c
-          where c.job_id = $2 and c.server_id = $3
-            and not exists (select 1 from ${S}.rowfold_servers s where s.server_id = c.server_id and ${LOCK_HELD('s.lock_key')})
-         returning c.job_id),
-       back as (
-         update ${S}.job set state = 'retry', start_after = now()
-          where name = $1 and id = $2 and state = 'active' and retry_count < retry_limit
-            and exists (select 1 from gone)
-         returning id)
-       select (select count(*) from gone)::int as gone, (select count(*) from back)::int as back`,
-      [claim.queue, claim.jobId, claim.serverId],
+  async expiredClaims(): Promise<LostClaim[]> {
+    const r = await this.#pool.query<{ job_id: string; queue: string; server_id: string }>(
+      `select job_id::text as job_id, queue, server_id from ${S}.rowfold_job_claims where expires_at < now()`,
     );
-    const row = r.rows[0];
-    if (row === undefined || row.gone === 0) return null;
-    if (row.back === 1) return 'retry';
-    const still = await this.#pool.query(`select 1 from ${S}.job where name = $1 and id = $2 and state = 'active'`, [claim.queue, claim.jobId]);
-    if (still.rowCount === 0) return null;
-    await fail();
-    return 'failed';
+    return r.rows.map((row) => ({ jobId: row.job_id, queue: row.queue, serverId: row.server_id }));
+  }
+
+  /**
+   * Hands back the job of a claim, in one transaction: the claim is deleted only if it is still
+   * `claim.serverId`'s and still lost (that process's presence lock is missing) or expired, as
+   * `why` says, and the job goes back on the queue ({@link requeueActiveJob}) only if that delete
+   * happened. So of two sweepers only one hands a job back, and never after its worker took it
+   * again or its process took its presence back. Returns what was done, or null when someone else
+   * already dealt with the claim or the job is no longer active.
+   */
+  async handBack(boss: PgBoss, claim: LostClaim, why: HandBackReason, message: string): Promise<HandBackOutcome> {
+    const still =
+      why === 'lost'
+        ? `not exists (select 1 from ${S}.rowfold_servers s where s.server_id = c.server_id and ${LOCK_HELD('s.lock_key')})`
+        : 'c.expires_at < now()';
+    return this.#transaction(async (client) => {
+      const gone = await client.query(
+        `delete from ${S}.rowfold_job_claims c where c.job_id = $1 and c.server_id = $2 and ${still} returning c.job_id`,
+        [claim.jobId, claim.serverId],
+      );
+      if (gone.rowCount === 0) return null;
+      return requeueActiveJob(boss, claim.queue, claim.jobId, bossDb(client), message);
+    });
   }
 
   /**
    * Puts an active job of this process back on the queue to be taken again at once (pg-boss
-   * counts it as a retry); a job with no retries left is failed instead, through `fail`. Returns what was done,
-   * or null when the job is no longer active.
+   * counts it as a retry), with this process's claim removed; a job with no retries left is
+   * failed instead. Returns what was done, or null when the job is no longer active.
    */
-  async releaseJob(queue: string, jobId: string, fail: () => Promise<unknown>): Promise<'retry' | 'failed' | null> {
-    const r = await this.#pool.query(
-      `update ${S}.job set state = 'retry', start_after = now()
-        where name = $1 and id = $2 and state = 'active' and retry_count < retry_limit
-       returning id`,
-      [queue, jobId],
-    );
-    if (r.rowCount === 1) return 'retry';
-    const still = await this.#pool.query(`select 1 from ${S}.job where name = $1 and id = $2 and state = 'active'`, [queue, jobId]);
-    if (still.rowCount === 0) return null;
-    await fail();
-    return 'failed';
+  async releaseJob(boss: PgBoss, queue: string, jobId: string, message: string): Promise<HandBackOutcome> {
+    return this.#transaction(async (client) => {
+      await client.query(`delete from ${S}.rowfold_job_claims where job_id = $1 and server_id = $2`, [jobId, this.serverId]);
+      return requeueActiveJob(boss, queue, jobId, bossDb(client), message);
+    });
   }
 
   /**
-   * Removes the schedules of fits that no serve process has served for `forgetSeconds` (their
-   * last heartbeat is older, or there never was one), in one statement, and forgets processes
-   * gone for as long. Returns the queue names unscheduled. A process that starts serving a fit
-   * writes its heartbeat before it registers the schedule, so a fit being registered is never
-   * taken for stale.
+   * Removes, through pg-boss's public API, the schedules of fits that no serve process has served
+   * for `forgetSeconds` (their last heartbeat is older, or there never was one), and forgets
+   * processes gone for as long. Returns the queue names unscheduled. It holds the lock under which
+   * serve processes register their schedules (they write their heartbeat first), so a schedule
+   * being registered is never taken for stale; when a process is registering now, it looks again
+   * at the next sweep.
    */
-  async unscheduleStale(forgetSeconds: number): Promise<string[]> {
-    const r = await this.#pool.query<{ name: string }>(
-      `delete from ${S}.schedule s
-        where s.name like 'rowfold-fit.%'
-          and not exists (select 1 from ${S}.rowfold_served_fits f
-                           where f.queue = s.name and f.beat_at > now() - $1 * interval '1 second')
-       returning s.name`,
-      [forgetSeconds],
-    );
-    await this.#pool.query(
-      `delete from ${S}.rowfold_servers s where s.beat_at < now() - $1 * interval '1 second' and not ${LOCK_HELD('s.lock_key')}`,
-      [forgetSeconds],
-    );
-    return r.rows.map((row) => row.name).sort();
+  async unscheduleStale(boss: PgBoss, forgetSeconds: number): Promise<string[]> {
+    return withClient(this.#pool, async (client) => {
+      const got = await client.query<{ ok: boolean }>('select pg_try_advisory_lock($1::bigint) as ok', [REGISTER_LOCK_KEY]);
+      if (got.rows[0]?.ok !== true) return [];
+      try {
+        const names = (await boss.getSchedules()).map((sch) => sch.name).filter((name) => name.startsWith('rowfold-fit.'));
+        const stale = await client.query<{ name: string }>(
+          `select q as name from unnest($1::text[]) q
+            where not exists (select 1 from ${S}.rowfold_served_fits f where f.queue = q and f.beat_at > now() - $2 * interval '1 second')`,
+          [names, forgetSeconds],
+        );
+        for (const { name } of stale.rows) await boss.unschedule(name);
+        await client.query(
+          `delete from ${S}.rowfold_servers s where s.beat_at < now() - $1 * interval '1 second' and not ${LOCK_HELD('s.lock_key')}`,
+          [forgetSeconds],
+        );
+        return stale.rows.map((row) => row.name).sort();
+      } finally {
+        await client.query('select pg_advisory_unlock($1::bigint)', [REGISTER_LOCK_KEY]);
+      }
+    });
   }
 
   /** A last heartbeat (the fits count as served until now), then the presence lock goes. */

@@ -1,6 +1,6 @@
 import { setTimeout as sleep } from 'node:timers/promises';
 import type PgBoss from 'pg-boss';
-import type { ServeRegistry } from './serve-registry.js';
+import type { HandBackOutcome, LostClaim, ServeRegistry } from './serve-registry.js';
 
 /**
  * Milliseconds a claim's process must stay without its presence lock before its job is handed
@@ -21,20 +21,30 @@ export interface SweepOptions {
 
 /**
  * The housekeeping loop of one serve process, every `sweepSeconds` until `stop`: its heartbeat
- * (it is alive and serves `fitQueues`), the jobs of processes that died put back on the queue
- * (or failed when they have no retries left; a process counts as dead when its presence lock
- * is missing on two looks {@link PRESENCE_GRACE_MS} apart), and the schedules of fits nobody serves removed.
- * A failed sweep is logged and the next one tries again.
+ * (it is alive and serves `fitQueues`); jobs that ran past their expiry put back on the queue (a
+ * worker that hangs without dying keeps its presence lock: its job comes back within one sweep of
+ * its expiry, whichever live process sweeps first, without waiting for pg-boss's maintenance);
+ * the jobs of processes that died put back on the queue (a process counts as dead when its
+ * presence lock is missing on two looks {@link PRESENCE_GRACE_MS} apart); a job with no retries
+ * left is failed instead; and the schedules of fits nobody serves removed. A failed sweep is
+ * logged and the next one tries again.
  */
 export async function sweepServe(boss: PgBoss, registry: ServeRegistry, fitQueues: readonly string[], opts: SweepOptions): Promise<void> {
   const every = opts.sweepSeconds * 1000;
   const forget = opts.forgetAfterSeconds;
   const stop = opts.stop;
+  const said = (claim: LostClaim, what: string, done: HandBackOutcome) => {
+    if (done !== null) opts.log(`job ${claim.jobId} of ${claim.queue}: ${what}; ${done === 'retry' ? 'back on the queue' : 'failed (no retries left)'}`);
+  };
   while (!stop.aborted) {
     await sleep(every, undefined, { signal: stop }).catch(() => undefined);
     if (stop.aborted) break;
     try {
       await registry.heartbeat(fitQueues);
+      for (const claim of await registry.expiredClaims()) {
+        const what = `ran past its expiry on the serve process ${claim.serverId} (hung, or slower than its timeout)`;
+        said(claim, what, await registry.handBack(boss, claim, 'expired', `the job ${what}`));
+      }
       const lost = await registry.lostClaims();
       if (lost.length > 0) {
         // A presence lock missing for a moment is a process taking it again on a new connection
@@ -43,15 +53,11 @@ export async function sweepServe(boss: PgBoss, registry: ServeRegistry, fitQueue
         if (stop.aborted) break;
         const still = new Set((await registry.lostClaims()).map((c) => `${c.jobId} ${c.serverId}`));
         for (const claim of lost.filter((c) => still.has(`${c.jobId} ${c.serverId}`))) {
-          const done = await registry.handBackLost(claim, () =>
-            boss.fail(claim.queue, claim.jobId, { message: `the serve process ${claim.serverId} working it stopped` }),
-          );
-          if (done !== null) {
-            opts.log(`job ${claim.jobId} of ${claim.queue}: the serve process ${claim.serverId} working it stopped; ${done === 'retry' ? 'back on the queue' : 'failed (no retries left)'}`);
-          }
+          const what = `the serve process ${claim.serverId} working it stopped`;
+          said(claim, what, await registry.handBack(boss, claim, 'lost', what));
         }
       }
-      for (const queue of await registry.unscheduleStale(forget)) {
+      for (const queue of await registry.unscheduleStale(boss, forget)) {
         opts.log(`${queue}: schedule removed: no serve process has served this fit for ${forget} s`);
       }
     } catch (e) {

@@ -9,9 +9,10 @@ import type { JobSender } from './serve-fits.js';
  */
 export function splitJobSender(boss: PgBoss): JobSender {
   return {
-    async partitions(schedule, runId, partitions, timeoutSeconds) {
+    async partitions(schedule, runId, partitions, timeoutSeconds, signal) {
       const queue = partitionQueueName(schedule.spec.schema, schedule.spec.name);
       for (let partition = 0; partition < partitions; partition++) {
+        signal?.throwIfAborted();
         const data: PartitionJobData = { fit: schedule.spec.name, schema: schedule.spec.schema, runId, partition, partitions };
         await boss.send(queue, data, { id: jobIdOf(queue, runId, partition), expireInSeconds: timeoutSeconds });
       }

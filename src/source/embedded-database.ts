@@ -8,7 +8,7 @@ import type { Dialect } from 'kysely';
 
 import { lockDataDir, LOCK_FILE } from './data-dir-lock.js';
 import type { DataDirLock } from './data-dir-lock.js';
-import type { Database, DbSession, QueryOutcome } from './database.js';
+import type { Database, DbSession, QueryOutcome, SharedSnapshot } from './database.js';
 import { PGliteDialect } from './pglite-dialect.js';
 import type { PGliteSession } from './pglite-dialect.js';
 import { pgliteDesignTransport } from './pglite-design-transport.js';
@@ -75,11 +75,19 @@ export async function openEmbeddedDatabase(dir: string): Promise<Database> {
   const key = await realpath(shown);
   const instance = await useInstance(key, shown);
   let closed = false;
-  return {
+  const database: Database = {
     kind: 'embedded',
     display: shown,
     maxSessions: 1,
     withSession: (fn) => withSession(instance, fn),
+    // One process has the folder (see the lock), so no other program changes the data while a
+    // run reads it: the database itself is its own consistent view.
+    shareSnapshot: async (): Promise<SharedSnapshot> => ({
+      ...database,
+      snapshotId: null,
+      withHoldingSession: (fn) => withSession(instance, fn),
+      release: async () => undefined,
+    }),
     dialect: (): Dialect => new PGliteDialect({ acquire: () => leaseSession(instance) }),
     async close() {
       if (closed) return;
@@ -87,6 +95,7 @@ export async function openEmbeddedDatabase(dir: string): Promise<Database> {
       await stopUsing(key);
     },
   };
+  return database;
 }
 
 async function useInstance(key: string, shown: string): Promise<Instance> {

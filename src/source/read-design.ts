@@ -238,8 +238,15 @@ function readError(error: unknown, req: DesignReadRequest, rowsRead: number): De
   let message: string;
   if (code !== undefined && /^[0-9A-Z]{5}$/.test(code)) {
     message = `the design query failed ${where}: ${text} [SQLSTATE ${code}]`;
-    // Class 57 (operator intervention) and 08 (connection exception): nothing wrong with the fit.
-    if (/^(57|08)/.test(code)) message += '; the connection was lost, so the read can simply be rerun';
+    // 57014: a timeout or cancel ended the statement; other class 57 (operator intervention) and
+    // 08 (connection exception): the connection went. Nothing wrong with the fit either way.
+    if (code === '57014') {
+      message += '; statement_timeout (set for the role, the database or in PGOPTIONS) or a cancel request ended the read: raise the timeout for rowfold, or have each run read less';
+    } else if (code === '55P03') {
+      message += '; the read waited for a lock longer than lock_timeout allows (another session held the source, e.g. for DDL): rerun once it is free';
+    } else if (/^(57|08)/.test(code)) {
+      message += '; the connection was lost, so the read can simply be rerun';
+    }
     if (code === '0A000' && mode === 'copy') {
       message += "; if this server cannot run COPY (...) TO STDOUT, read with mode 'rows' instead";
     }

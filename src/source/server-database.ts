@@ -2,23 +2,10 @@ import { PostgresDialect } from 'kysely';
 import type { Dialect } from 'kysely';
 import pg from 'pg';
 import type { ConnectionTarget } from './connection-target.js';
-import type { Database, DbSession, QueryOutcome } from './database.js';
-import { readDesign } from './read-design.js';
+import type { Database } from './database.js';
+import { pgSession } from './pg-session.js';
+import { shareServerSnapshot } from './server-snapshot.js';
 import { withClient } from './with-client.js';
-
-/** A session over one checked-out pg client. */
-export function pgSession(client: pg.ClientBase): DbSession {
-  return {
-    async query(text: string, values: readonly unknown[] = []): Promise<QueryOutcome> {
-      const r = await client.query<unknown[]>({ text, values: [...values], rowMode: 'array' });
-      return { fields: r.fields.map((f) => ({ name: f.name, dataTypeID: f.dataTypeID })), rows: r.rows };
-    },
-    async exec(sql: string): Promise<void> {
-      await client.query(sql);
-    },
-    readDesign: (req, sink) => readDesign(client, req, sink),
-  };
-}
 
 /**
  * A PostgreSQL server reached through a pool of up to `maxSessions` connections.
@@ -29,11 +16,12 @@ export function openServerDatabase(target: ConnectionTarget, maxSessions: number
   // it fails and says why, so there is nothing to do here but not crash.
   pool.on('error', () => undefined);
   let closed = false;
-  return {
+  const database: Database = {
     kind: 'server',
     display: target.display,
     maxSessions,
     withSession: (fn) => withClient(pool, (client) => fn(pgSession(client))),
+    shareSnapshot: () => shareServerSnapshot(database, pool, target.config),
     dialect(): Dialect {
       // kysely's destroy() ends its pool; this one is ended once, by close().
       return new PostgresDialect({ pool: { connect: () => pool.connect(), end: async () => undefined } });
@@ -44,4 +32,5 @@ export function openServerDatabase(target: ConnectionTarget, maxSessions: number
       await pool.end();
     },
   };
+  return database;
 }

@@ -170,6 +170,12 @@ export const fitSpecSchema = z
             description:
               'A partition or merge job still running after this many seconds is taken to be lost and retried by another worker.',
           }),
+        cutoff: identifier(
+          'a column name',
+          'Column that only grows (timestamp, date or integer): each run records its highest value when it starts, and every ' +
+            'partition reads only rows at or below it, so rows that land during the run wait for the next one. Rows whose ' +
+            'cutoff is NULL are not read.',
+        ).optional(),
       })
       .optional()
       .meta({

@@ -75,13 +75,18 @@ export interface FitWindow {
  * How `rowfold serve` cuts a run into partition jobs.
  *
  * @example
- * const s: FitSplit = { partitions: 8, jobTimeoutSeconds: 3600 };
+ * const s: FitSplit = { partitions: 8, jobTimeoutSeconds: 3600, cutoff: 'loaded_at' };
  */
 export interface FitSplit {
   /** Partition jobs per run (2 to 1024). */
   readonly partitions: number;
   /** A partition or merge job active longer than this is taken to be lost and retried. */
   readonly jobTimeoutSeconds: number;
+  /**
+   * Column that only grows, or `null`: a run records its highest value when it starts and
+   * every partition reads only rows at or below it (rows whose cutoff is NULL are not read).
+   */
+  readonly cutoff: string | null;
 }
 
 /**

@@ -18,6 +18,8 @@ export type FitSpecBody = Omit<FitSpec, 'origin' | 'text' | 'hash'>;
  * - `segment_by` columns are unique;
  * - each interaction names two different known factors (a term name or a categorical
  *   column, whitespace collapsed), and no pair appears twice in either order;
+ * - a product of two terms, named `a*b`, is not also the name of a term or of another
+ *   product (the plan checks names that carry a categorical level);
  * - the model has at least one column (intercept, term, categorical or interaction).
  *
  * `presentKeys` are the top-level keys written in the file; a model without columns is
@@ -96,6 +98,10 @@ export function normaliseFitSpec(
 
   const interactions: FitInteraction[] = [];
   const pairSeen = new Map<string, number>();
+  // Names after expansion: a product of two terms is named `a*b`, which a term or another
+  // product may already be called. (Names with a categorical level are checked by the plan,
+  // once the levels are known.)
+  const columnSeen = new Map<string, string>([...termSeen].map(([name, i]) => [name, `terms[${i}]`]));
   doc.interactions.forEach((pair, i) => {
     const factors: FitInteractionFactor[] = [];
     pair.forEach((reference, j) => {
@@ -127,6 +133,18 @@ export function normaliseFitSpec(
       return;
     }
     pairSeen.set(id, i);
+    if (a.kind === 'term' && b.kind === 'term') {
+      const name = `${a.name}*${b.name}`;
+      const other = columnSeen.get(name);
+      if (other !== undefined) {
+        problems.push({
+          path: ['interactions', i],
+          message: `the product of "${a.name}" and "${b.name}" is named "${name}", and so is ${other}: give a term another name ({name, sql}) or drop one of them`,
+        });
+        return;
+      }
+      columnSeen.set(name, `interactions[${i}]`);
+    }
     interactions.push([a, b]);
   });
 
@@ -172,7 +190,10 @@ export function normaliseFitSpec(
       nonFinite: doc.non_finite,
       partitionKey: doc.partition_key ?? null,
       schedule: doc.schedule === undefined ? null : doc.schedule.trim(),
-      split: doc.split === undefined ? null : { partitions: doc.split.partitions, jobTimeoutSeconds: doc.split.job_timeout_seconds },
+      split:
+        doc.split === undefined
+          ? null
+          : { partitions: doc.split.partitions, jobTimeoutSeconds: doc.split.job_timeout_seconds, cutoff: doc.split.cutoff ?? null },
       watermark: doc.watermark ?? doc.window?.column ?? null,
       window: doc.window === undefined ? null : { ...doc.window },
     },

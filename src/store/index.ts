@@ -23,6 +23,7 @@ export { writeFitStates } from './write-fit-states.js';
 export { writeRefitRecord } from './write-refit-record.js';
 export type { DriftRecord, RefitRecord } from './write-refit-record.js';
 export { deletePartials } from './delete-partials.js';
+export { recordSplitRunSeconds } from './record-split-run-seconds.js';
 export { failAbandonedRuns } from './fail-abandoned-runs.js';
 export { failRunsAndPartials } from './fail-runs-and-partials.js';
 export type { AbandonedRuns } from './fail-abandoned-runs.js';

@@ -1,4 +1,3 @@
-import PgBoss from 'pg-boss';
 import pg from 'pg';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { fitLockKey, FitBusyError, runFitExclusive } from '../../src/run/run-fit-exclusive.js';
@@ -7,6 +6,7 @@ import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
 import { ServeProcesses } from '../support/serve-process.js';
+import { TestQueue } from '../support/test-queue.js';
 
 // pg-boss's clock (Timekeeper, pg-boss 10.4) turns each tick of a schedule into this job in its
 // internal queue, with the schedule's queue name as singleton key and a 60-second singleton
@@ -15,7 +15,8 @@ import { ServeProcesses } from '../support/serve-process.js';
 const PGBOSS_SEND_IT_QUEUE = '__pgboss__send-it';
 
 let tdb: TestDatabase;
-let boss: PgBoss | undefined;
+const jobs = new TestQueue(() => tdb.url);
+const testBoss = () => jobs.get();
 
 const serve = new ServeProcesses();
 
@@ -41,18 +42,9 @@ describe.skipIf(ON_EMBEDDED)('rowfold serve, schedules and runs (needs a server:
     // cache once here, so that two servers starting at once do not both compile everything.
     await serve.warm();
   });
-  /** A pg-boss client of the test (no clock, no maintenance), once serve has created the queue schema. */
-  async function testBoss(): Promise<PgBoss> {
-    if (boss === undefined) {
-      boss = new PgBoss({ connectionString: tdb.url, schema: JOBS_SCHEMA, supervise: false, schedule: false, migrate: false });
-      boss.on('error', () => undefined);
-      await boss.start();
-    }
-    return boss;
-  }
   afterEach(() => serve.killAll());
   afterAll(async () => {
-    await boss?.stop({ graceful: false, close: true }).catch(() => undefined);
+    await jobs.stop();
     await tdb?.drop();
   });
 

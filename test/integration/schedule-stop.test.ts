@@ -1,5 +1,4 @@
 import pg from 'pg';
-import PgBoss from 'pg-boss';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { ABANDONED_RUN_MESSAGE } from '../../src/run/run-fit-exclusive.js';
 import { fitQueueName, JOBS_SCHEMA } from '../../src/schedule/fit-queue.js';
@@ -7,11 +6,13 @@ import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { writeSpec } from '../support/run-cli.js';
 import { ServeProcesses } from '../support/serve-process.js';
+import { TestQueue } from '../support/test-queue.js';
 
 // Issue 5: what becomes of a run when its serve process stops at once or dies, and of the
 // schedules of fits that no serve process serves any more.
 let tdb: TestDatabase;
-let boss: PgBoss | undefined;
+const jobs = new TestQueue(() => tdb.url);
+const queue = () => jobs.get();
 const serve = new ServeProcesses();
 
 // The source waits for an advisory lock the test holds (the cross join's one row is made once per
@@ -44,14 +45,6 @@ async function closeGate(): Promise<{ open: () => Promise<void> }> {
   return gate;
 }
 
-async function queue(): Promise<PgBoss> {
-  if (boss === undefined) {
-    boss = new PgBoss({ connectionString: tdb.url, schema: JOBS_SCHEMA, supervise: false, schedule: false, migrate: false });
-    boss.on('error', () => undefined);
-    await boss.start();
-  }
-  return boss;
-}
 
 async function runsOf(fit: string): Promise<{ run_id: string; status: string; error_message: string | null }[]> {
   // Before the first run there is no result schema yet.
@@ -76,7 +69,7 @@ describe.skipIf(ON_EMBEDDED)('serve stops, dies and forgets (server only: other 
     for (const gate of gates.splice(0)) await gate.open();
   });
   afterAll(async () => {
-    await boss?.stop({ graceful: false, close: true }).catch(() => undefined);
+    await jobs.stop();
     await tdb?.drop();
   });
 

@@ -4,7 +4,7 @@ import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { SqlTemplate } from '../../src/plan/sql-template.js';
 import { resolveConnection } from '../../src/source/connection-target.js';
 import { describeQuery, queryAll } from '../../src/source/query-helpers.js';
-import { pgSession } from '../../src/source/server-database.js';
+import { pgSession } from '../../src/source/pg-session.js';
 import { withClient } from '../../src/source/with-client.js';
 import { createTestDatabase, ON_EMBEDDED, PoolTracker, withAdminClient } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';

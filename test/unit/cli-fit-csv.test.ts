@@ -50,10 +50,14 @@ describe('rowfold fit-csv', () => {
     expect(text).toMatch(/skipped 15 \(15 empty in load_mw\)/);
   });
 
-  it('exits 2 on bad usage and 1 on a column that is not in the file', async () => {
+  it('exits 2 on bad usage, a column that is not in the file and a file that cannot be read (issue 13), with a message and no stack trace', async () => {
     const io = capture();
     expect(await main(['fit-csv'])).toBe(2);
-    expect(await main(['fit-csv', SAMPLE, '--response', 'nope'])).toBe(1);
+    expect(await main(['fit-csv', SAMPLE, '--response', 'nope'])).toBe(2);
     expect(io.err.join('')).toContain('column nope is not in');
+    const missing = `${SAMPLE}.missing`;
+    expect(await main(['fit-csv', missing, '--response', 'load_mw'])).toBe(2);
+    expect(io.err.join('')).toContain(`rowfold: cannot read ${missing}: ENOENT`);
+    expect(io.err.join('')).not.toMatch(/\n\s+at /);
   });
 });

@@ -203,6 +203,27 @@ const catalogue: readonly (readonly [string, string, Expected])[] = [
     spec('interactions: [[humidity, wind_speed]]'),
     { path: 'interactions[0][1]', line: 7, column: 27, reason: 'unknown term or categorical column "wind_speed"' },
   ],
+  // Issue 13: names unique after expansion.
+  [
+    'a product of two terms named like a term',
+    spec('  - "temperature_c*humidity"', 'interactions: [[temperature_c, humidity]]'),
+    {
+      path: 'interactions[0]',
+      line: 8,
+      column: 16,
+      reason: 'the product of "temperature_c" and "humidity" is named "temperature_c*humidity", and so is terms[2]: give a term another name ({name, sql}) or drop one of them',
+    },
+  ],
+  [
+    'two products of the same name',
+    spec('  - "humidity*wind"', '  - "temperature_c*humidity"', '  - wind', 'interactions: [[temperature_c, "humidity*wind"], ["temperature_c*humidity", wind]]'),
+    {
+      path: 'interactions[1]',
+      line: 10,
+      column: 50,
+      reason: 'the product of "temperature_c*humidity" and "wind" is named "temperature_c*humidity*wind", and so is interactions[0]: give a term another name ({name, sql}) or drop one of them',
+    },
+  ],
   [
     'interaction that is not a pair',
     spec('interactions: [[humidity]]'),

@@ -18,10 +18,11 @@ function error(text: string): string {
 describe('spec key split (issue 5, many workers)', () => {
   it('is off by default; partitions is required, job_timeout_seconds defaults to an hour', () => {
     expect(parseFitSpec(lines(...head), 'a.yaml').split).toBeNull();
-    expect(parseFitSpec(lines(...head, 'split: {partitions: 8}'), 'b.yaml').split).toEqual({ partitions: 8, jobTimeoutSeconds: 3600 });
-    expect(parseFitSpec(lines(...head, 'split:', '  partitions: 2', '  job_timeout_seconds: 30'), 'c.yaml').split).toEqual({
+    expect(parseFitSpec(lines(...head, 'split: {partitions: 8}'), 'b.yaml').split).toEqual({ partitions: 8, jobTimeoutSeconds: 3600, cutoff: null });
+    expect(parseFitSpec(lines(...head, 'split:', '  partitions: 2', '  job_timeout_seconds: 30', '  cutoff: loaded_at'), 'c.yaml').split).toEqual({
       partitions: 2,
       jobTimeoutSeconds: 30,
+      cutoff: 'loaded_at',
     });
   });
 
@@ -31,6 +32,7 @@ describe('spec key split (issue 5, many workers)', () => {
     expect(error(lines(...head, 'split: {}'))).toMatch(/split\.partitions: required key is missing/);
     expect(error(lines(...head, 'split: {partitions: 4, job_timeout_seconds: 0}'))).toMatch(/split\.job_timeout_seconds: must be a whole number of seconds from 2 to 86400/);
     expect(error(lines(...head, 'split: {partitions: 4, jobs: 2}'))).toMatch(/split\.jobs: unknown key "jobs"/);
+    expect(error(lines(...head, 'split: {partitions: 4, cutoff: "loaded at"}'))).toMatch(/split\.cutoff: must be a column name/);
   });
 
   it('asks a query source for partition_key, and refuses watermark and window', () => {

@@ -1,0 +1,17 @@
+import type pg from 'pg';
+import type { DbSession, QueryOutcome } from './database.js';
+import { readDesign } from './read-design.js';
+
+/** A session over one checked-out pg client. */
+export function pgSession(client: pg.ClientBase): DbSession {
+  return {
+    async query(text: string, values: readonly unknown[] = []): Promise<QueryOutcome> {
+      const r = await client.query<unknown[]>({ text, values: [...values], rowMode: 'array' });
+      return { fields: r.fields.map((f) => ({ name: f.name, dataTypeID: f.dataTypeID })), rows: r.rows };
+    },
+    async exec(sql: string): Promise<void> {
+      await client.query(sql);
+    },
+    readDesign: (req, sink) => readDesign(client, req, sink),
+  };
+}
