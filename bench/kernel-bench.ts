@@ -1,9 +1,11 @@
 import { Accumulator } from '../src/fit/accumulator.js';
 import { FoldWorkspace } from '../src/fit/fold-workspace.js';
-import { wasmFold } from '../src/fit/wasm-kernel.js';
+import { wasmCompensated, wasmFold } from '../src/fit/wasm-kernel.js';
 import { gramUpdate } from '../src/numeric/gram-update.js';
 import { householderFold } from '../src/numeric/householder-fold.js';
+import { householderFoldDD } from '../src/numeric/householder-fold-dd.js';
 import { packedLength } from '../src/numeric/packed.js';
+import { addResidualSums, residualSumsLength, splitCoefficients } from '../src/numeric/residual-sums.js';
 
 /** Figures of one kernel workload. */
 export interface KernelFigure {
@@ -113,4 +115,86 @@ export function benchRawKernels(p: number): RawKernelFigure {
     }, gramFlops);
   }
   return { p, wasm, js, gramWasm, gramJs };
+}
+
+/** Per-row cost of the folds and of a refinement step's residual sums at `p` terms (nanoseconds a row). */
+export interface CompensatedFigure {
+  readonly p: number;
+  /** The double-precision QR fold through the Accumulator (the WebAssembly kernel when built). */
+  readonly fold: number;
+  /** The double-double fold through the Accumulator (the WebAssembly kernel when built). */
+  readonly foldDD: number;
+  /** The raw double-double kernels: WebAssembly SIMD (null: not built) and TypeScript. */
+  readonly rawDD: number | null;
+  readonly rawDDJs: number;
+  /** Residual sums through the Accumulator (the WebAssembly kernel when built). */
+  readonly residuals: number;
+  /** The raw residual-sum kernels: WebAssembly SIMD (null: not built) and TypeScript. */
+  readonly rawResiduals: number | null;
+  readonly rawResidualsJs: number;
+}
+
+/**
+ * What accuracy costs per row: the double fold against the double-double fold, and the
+ * residual sums of a refinement step, through the Accumulator (checks and staging included)
+ * and as raw kernels side by side; medians of three runs after a warm-up.
+ */
+export function benchCompensated(p: number): CompensatedFigure {
+  const terms = Array.from({ length: p }, (_, j) => `x${j}`);
+  const shape = { terms, response: 'y', intercept: true };
+  const block = randomBlock(4096, p + 1);
+  const n = p + 2;
+  const rows = Math.max(8192, Math.round(2e7 / (n * n)));
+  const nsPerRow = (fn: () => number) => {
+    const runs: number[] = [];
+    for (let r = 0; r < 4; r++) {
+      const t0 = performance.now();
+      const done = fn();
+      if (r > 0) runs.push(((performance.now() - t0) * 1e6) / done);
+    }
+    return median(runs);
+  };
+  const throughAccumulator = (make: () => Accumulator, count: number) =>
+    nsPerRow(() => {
+      const acc = make();
+      let done = 0;
+      for (; done < count; done += block.rows) acc.fold(block);
+      return done;
+    });
+  const anchor = { coefficients: Float64Array.from({ length: p + 1 }, () => Math.random() - 0.5), centre: 0.5 };
+  const split = splitCoefficients(anchor.coefficients);
+  const layout = { terms: p, intercept: true, weighted: false, pairs: false };
+  const sums = new Float64Array(residualSumsLength(p + 1));
+  const counts = { rows: 0, zeroWeightRows: 0, sumWeights: 0, sumLogWeights: 0 };
+  const m = FoldWorkspace.rowsFor(n);
+  const staged = randomBlock(m, n).values;
+  const low = staged.map((x) => x * 1e-17);
+  const kernel = wasmCompensated();
+  const rawDD = (fold: (rh: Float64Array, rl: Float64Array, bh: Float64Array, bl: Float64Array) => void) =>
+    nsPerRow(() => {
+      const rh = new Float64Array(packedLength(n));
+      const rl = new Float64Array(packedLength(n));
+      let done = 0;
+      for (; done < rows; done += m) fold(rh, rl, staged.slice(), low.slice());
+      return done;
+    });
+  const rawSums = (add: () => void) =>
+    nsPerRow(() => {
+      let done = 0;
+      for (; done < rows * 8; done += block.rows) add();
+      return done;
+    });
+  return {
+    p,
+    fold: throughAccumulator(() => new Accumulator(shape), rows * 8),
+    foldDD: throughAccumulator(() => new Accumulator(shape, { precision: 'double-double' }), rows),
+    rawDD: kernel === null ? null : rawDD((rh, rl, bh, bl) => kernel.foldDD(n, rh, rl, bh, bl, m, m)),
+    rawDDJs: rawDD((rh, rl, bh, bl) => householderFoldDD(n, rh, rl, bh, bl, m, m)),
+    residuals: throughAccumulator(() => new Accumulator(shape, { anchor, factor: false }), rows * 8),
+    rawResiduals:
+      kernel === null
+        ? null
+        : rawSums(() => kernel.residualSums(layout, block.values, p + 1, 0, block.rows, anchor.coefficients, split.hi, split.lo, 0.5, sums)),
+    rawResidualsJs: rawSums(() => addResidualSums(layout, block.values, p + 1, 0, block.rows, anchor.coefficients, split.hi, split.lo, 0.5, sums, counts)),
+  };
 }

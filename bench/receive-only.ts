@@ -17,7 +17,9 @@ await Promise.all(
     await client.connect();
     try {
       await prepareReadSession(client);
-      for await (const chunk of streamCopyChunks(client, query)) bytes += chunk.byteLength;
+      for await (const pieces of streamCopyChunks(client, query)) {
+        for (let i = 0; i < pieces.count; i++) bytes += pieces.ranges[2 * i + 1]! - pieces.ranges[2 * i]!;
+      }
     } finally {
       await client.end();
     }

@@ -1,9 +1,9 @@
 import { writeFileSync } from 'node:fs';
 import os from 'node:os';
-import { benchAccuracy } from './e2e-bench.js';
+import { ACCURACY_WORKLOADS, benchAccuracy } from './e2e-bench.js';
 import type { AccuracyFigure } from './e2e-bench.js';
-import { benchKernels, benchRawKernels } from './kernel-bench.js';
-import type { KernelFigure } from './kernel-bench.js';
+import { benchCompensated, benchKernels, benchRawKernels } from './kernel-bench.js';
+import type { CompensatedFigure, KernelFigure } from './kernel-bench.js';
 import { measureWorkload, WORKLOADS } from './workloads.js';
 import type { WorkloadFigure } from './workloads.js';
 
@@ -35,11 +35,25 @@ console.log(
   `accumulator fold at p = 200: ${fold200.gflops.toFixed(2)} GFLOP/s; ` +
     `plain TypeScript kernel ${ts200.toFixed(2)} GFLOP/s (target ≥ 2.9: ratio ${(ts200 / 2.9).toFixed(2)})`,
 );
+const compensated: CompensatedFigure[] = [];
+console.log('\nwhat accuracy costs per row (ns; through the Accumulator, and raw kernels WebAssembly SIMD / TypeScript)');
+console.log('p     double fold  double-double fold (×double)  raw dd wasm / ts  residual sums (×double)  raw sums wasm / ts');
+for (const p of [5, 20, 50, 200]) {
+  const c = benchCompensated(p);
+  compensated.push(c);
+  const raw = (w: number | null, js: number) => `${w === null ? 'n/a' : w.toFixed(0)} / ${js.toFixed(0)}`;
+  console.log(
+    `${String(p).padEnd(4)}  ${c.fold.toFixed(0).padStart(10)}  ${c.foldDD.toFixed(0).padStart(10)} (${(c.foldDD / c.fold).toFixed(1).padStart(5)}×)           ` +
+      `${raw(c.rawDD, c.rawDDJs).padStart(16)}  ${c.residuals.toFixed(0).padStart(10)} (${(c.residuals / c.fold).toFixed(2).padStart(5)}×)      ${raw(c.rawResiduals, c.rawResidualsJs).padStart(14)}`,
+  );
+}
 const workloads: WorkloadFigure[] = [];
 console.log('\nend to end from PostgreSQL (medians of 3; floors measured in the same run)');
 console.log('workload              rows        terms  conns  psql COPY  receive  fit     fit/COPY (target)  fit/receive  peak RSS  fit CPU  server CPU  GFLOP/s');
-const only = process.env['ROWFOLD_BENCH_ONLY'];
-for (const w of WORKLOADS.filter((x) => only === undefined || x.name.includes(only))) {
+// ROWFOLD_BENCH_ONLY: comma-separated parts of workload names to run (all when unset).
+const only = process.env['ROWFOLD_BENCH_ONLY']?.split(',').map((x) => x.trim());
+const selected = (name: string) => only === undefined || only.some((o) => name.includes(o));
+for (const w of WORKLOADS.filter((x) => selected(x.name))) {
   try {
     const f = await measureWorkload(w);
     workloads.push(f);
@@ -53,18 +67,24 @@ for (const w of WORKLOADS.filter((x) => only === undefined || x.name.includes(on
     console.log(`${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
   }
 }
-let accuracy: AccuracyFigure | null = null;
-try {
-  accuracy = await benchAccuracy(1_000_000, 50);
-  console.log(
-    `\naccuracy auto vs fast · 1,000,000 rows × 50 terms (well conditioned): fast ${accuracy.fastSeconds.toFixed(2)} s, ` +
-      `auto ${accuracy.autoSeconds.toFixed(2)} s (${(accuracy.overhead * 100).toFixed(1)}% over fast; target ≤ 5%), ` +
-      `auto passes ${accuracy.autoPasses}, estimated digits ${accuracy.estimatedDigits.toFixed(1)}`,
-  );
-} catch (err) {
-  console.log(`accuracy case skipped: ${err instanceof Error ? err.message : String(err)}`);
+const accuracy: AccuracyFigure[] = [];
+console.log('\naccuracy auto against fast, same table, same run (medians of 3; each fit in a process of its own)');
+console.log('workload                 rows        terms  conns  fast      auto      auto/fast (target)  auto path             fast digits  auto digits  auto peak RSS');
+for (const w of ACCURACY_WORKLOADS.filter((x) => selected(x.name))) {
+  try {
+    const a = await benchAccuracy(w);
+    accuracy.push(a);
+    const path = `${a.autoAccuracy}, ${a.autoPasses} pass${a.autoPasses > 1 ? 'es' : ''}${a.refinementSteps > 0 ? ` (${a.refinementSteps} step${a.refinementSteps > 1 ? 's' : ''})` : ''}`;
+    console.log(
+      `${a.name.padEnd(22)}  ${a.rows.toLocaleString('en-US').padStart(10)}  ${String(a.terms).padStart(5)}  ${String(a.parallel).padStart(5)}  ` +
+        `${a.fastSeconds.toFixed(2).padStart(6)}s  ${a.autoSeconds.toFixed(2).padStart(6)}s  ${a.ratio.toFixed(2).padStart(8)} (≤ ${a.target})  ` +
+        `${path.padEnd(20)}  ${(a.fastDigits ?? Number.NaN).toFixed(1).padStart(11)}  ${(a.autoDigits ?? Number.NaN).toFixed(1).padStart(11)}  ${a.autoPeakRssMb.toFixed(0).padStart(8)} MB`,
+    );
+  } catch (err) {
+    console.log(`${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
+  }
 }
 writeFileSync(
   new URL('../../bench/results.json', import.meta.url),
-  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, workloads, accuracy }, null, 2) + '\n',
+  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, compensated, workloads, accuracy }, null, 2) + '\n',
 );

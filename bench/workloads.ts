@@ -2,9 +2,13 @@ import { spawnSync } from 'node:child_process';
 import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import pg from 'pg';
 import { runFit } from '../src/run/run-fit.js';
 import { SERVER_ALLOCATOR_WARMUP } from '../src/source/read-design.js';
+import { BENCH_SCHEMA, benchUrl } from './bench-url.js';
+import { ensureAccuracyTable, ensureUniformTable } from './tables.js';
+import type { ResponseKind } from './tables.js';
+
+export { benchUrl } from './bench-url.js';
 
 /** One end-to-end workload of the speed targets. */
 export interface Workload {
@@ -17,6 +21,8 @@ export interface Workload {
   readonly parallel: number;
   /** Target for fit time / psql binary COPY into /dev/null. */
   readonly target: number;
+  /** The table is an accuracy table of this kind (bench/tables.ts); else uniform columns. */
+  readonly kind?: ResponseKind;
 }
 
 /** What was measured for a workload (medians of the repeats; floors measured in the same run). */
@@ -35,42 +41,21 @@ export interface WorkloadFigure extends Workload {
   readonly gflops: number;
 }
 
-/** The workloads of the speed targets (issue 6). */
+/**
+ * The workloads of the speed targets (issues 6 and 11). T200 and T20 read the zero-intercept
+ * tables of the accuracy bench (their values do not change the speed of one pass).
+ */
 export const WORKLOADS: readonly Workload[] = [
-  { name: 'T200 QR', table: 't1000000x200', rows: 1_000_000, terms: 200, segments: 1, method: 'qr', parallel: 1, target: 0.65 },
-  { name: 'T20 QR', table: 't10000000x20', rows: 10_000_000, terms: 20, segments: 1, method: 'qr', parallel: 2, target: 0.65 },
+  { name: 'T200 QR', table: 'z1000000x200', kind: 'zero-intercept', rows: 1_000_000, terms: 200, segments: 1, method: 'qr', parallel: 1, target: 0.85 },
+  { name: 'T20 QR', table: 'z10000000x20', kind: 'zero-intercept', rows: 10_000_000, terms: 20, segments: 1, method: 'qr', parallel: 2, target: 0.7 },
   { name: '10,000 segments QR', table: 's10000x1000x10', rows: 10_000_000, terms: 10, segments: 10_000, method: 'qr', parallel: 2, target: 0.8 },
-  { name: 'T200 XᵀX', table: 't1000000x200', rows: 1_000_000, terms: 200, segments: 1, method: 'normal', parallel: 2, target: 0.55 },
+  { name: 'T200 XᵀX', table: 'z1000000x200', kind: 'zero-intercept', rows: 1_000_000, terms: 200, segments: 1, method: 'normal', parallel: 2, target: 0.55 },
 ];
 
-const HOST = process.env['PGHOST'] ?? '127.0.0.1';
-const USER = process.env['PGUSER'] ?? 'postgres';
-const DB = 'rowfold_bench';
-
-export function benchUrl(db = DB): string {
-  return `postgres://${encodeURIComponent(USER)}@${HOST}:${process.env['PGPORT'] ?? 5432}/${db}`;
-}
-
-/** Creates the bench database and a workload's table when missing (random uniform columns). */
-export async function ensureWorkloadTable(w: Workload): Promise<void> {
-  const admin = new pg.Client({ connectionString: benchUrl('postgres') });
-  await admin.connect();
-  const exists = await admin.query('select 1 from pg_database where datname = $1', [DB]);
-  if (exists.rowCount === 0) await admin.query(`create database ${DB}`);
-  await admin.end();
-  const c = new pg.Client({ connectionString: benchUrl() });
-  await c.connect();
-  try {
-    const have = await c.query('select 1 from pg_class where relname = $1', [w.table]);
-    if (have.rowCount !== 0) return;
-    console.log(`creating ${w.table} (${w.rows.toLocaleString('en-US')} rows × ${w.terms} terms) …`);
-    const cols = Array.from({ length: w.terms }, (_, j) => `random() as x${j + 1}`).join(', ');
-    const seg = w.segments > 1 ? `g % ${w.segments} as s, ` : '';
-    await c.query(`create table ${w.table} as select ${seg}${cols}, random() as y from generate_series(1, ${w.rows}) g`);
-    await c.query(`vacuum analyze ${w.table}`);
-  } finally {
-    await c.end();
-  }
+/** Creates a workload's table when missing. */
+async function ensureWorkloadTable(w: Workload): Promise<void> {
+  if (w.kind === undefined) await ensureUniformTable(w);
+  else await ensureAccuracyTable({ rows: w.rows, terms: w.terms, kind: w.kind });
 }
 
 function median(xs: number[]): number {
@@ -92,6 +77,29 @@ function serverChildCpu(): number | null {
     }
   }
   return null;
+}
+
+/** What bench/fit-once.js reports of each model. */
+export interface FitOnceModel {
+  readonly accuracy: string;
+  readonly passes: number;
+  readonly refinementSteps: number;
+  readonly estimatedDigits: number | null;
+}
+
+/**
+ * One fit of `spec` in a process of its own (bench/fit-once.js) under /usr/bin/time: wall
+ * seconds, peak RSS, CPU, and what it reports of its models.
+ */
+export function timedFit(
+  spec: string,
+  parallel: number,
+  accuracy: 'fast' | 'auto',
+): { seconds: number; rssMb: number; cpu: number; rows: number; models: FitOnceModel[] } {
+  const dist = new URL('.', import.meta.url);
+  const t = timed(process.execPath, [new URL('fit-once.js', dist).pathname, spec, benchUrl(), String(parallel), '-', accuracy]);
+  const out = JSON.parse(t.stdout) as { rows: number; models: FitOnceModel[] };
+  return { seconds: t.seconds, rssMb: t.rssMb, cpu: t.cpu, rows: out.rows, models: out.models };
 }
 
 /** Runs a command under /usr/bin/time: wall seconds, peak RSS (MB), user + system CPU. */
@@ -117,7 +125,7 @@ export async function measureWorkload(w: Workload, repeats = 3): Promise<Workloa
   const terms = Array.from({ length: w.terms }, (_, j) => `x${j + 1}`).join(', ');
   writeFileSync(
     spec,
-    `name: bench_${w.table}_${w.method}\nsource: ${w.table}\nresponse: y\nterms: [${terms}]\nmethod: ${w.method}\n` +
+    `name: bench_${w.table}_${w.method}\nschema: ${BENCH_SCHEMA}\nsource: ${w.table}\nresponse: y\nterms: [${terms}]\nmethod: ${w.method}\n` +
       (w.segments > 1 ? 'segment_by: [s]\n' : ''),
   );
   const dry = await runFit({ specPath: spec, db: benchUrl(), dryRun: true });

@@ -3,6 +3,13 @@ import { householderFoldDD } from '../numeric/householder-fold-dd.js';
 import { packedRowStart } from '../numeric/packed.js';
 import type { FoldCounts, FoldLayout } from './accumulator-state.js';
 import { FoldWorkspace } from './fold-workspace.js';
+import { wasmCompensated } from './wasm-kernel.js';
+
+/** The double-double Householder kernel: WebAssembly SIMD when built, else TypeScript. */
+function kernelDD(): typeof householderFoldDD {
+  const wasm = wasmCompensated();
+  return wasm === null ? householderFoldDD : (n, rh, rl, bh, bl, m, ld) => wasm.foldDD(n, rh, rl, bh, bl, m, ld);
+}
 
 const SW = dd();
 const T = dd();
@@ -11,7 +18,8 @@ const T = dd();
  * Folds checked rows `from … to-1` of a block into the double-double factor `rh` + `rl`
  * by Householder QR in double-double arithmetic. Values come one double each, or as
  * (high, low) pairs when `layout.pairs` (numeric columns carried beyond double); the
- * weight's square root and each x·√w are formed in double-double. Unshifted.
+ * weight's square root and each x·√w are formed in double-double. Unshifted. The
+ * WebAssembly SIMD kernel folds when it is built (two rows of the block per SIMD step).
  */
 export function foldRowsDD(
   layout: FoldLayout,
@@ -34,6 +42,7 @@ export function foldRowsDD(
   const bl = both.subarray(m * n, 2 * m * n);
   const yCol = (n - 1) * m;
   let fill = 0;
+  const fold = kernelDD();
   const stride = layout.pairs ? 2 : 1;
   const put = (at: number, off: number) => {
     // x·√w in double-double (exact when unweighted and x is a double).
@@ -60,11 +69,11 @@ export function foldRowsDD(
     counts.sumWeights += w;
     if (weighted) counts.sumLogWeights += Math.log(w);
     if (++fill === m) {
-      householderFoldDD(n, rh, rl, bh, bl, m, m);
+      fold(n, rh, rl, bh, bl, m, m);
       fill = 0;
     }
   }
-  if (fill > 0) householderFoldDD(n, rh, rl, bh, bl, fill, m);
+  if (fill > 0) fold(n, rh, rl, bh, bl, fill, m);
 }
 
 /**
@@ -91,5 +100,5 @@ export function mergeFactorDD(
       bl[j * n + i] = ol[rs + j - i]!;
     }
   }
-  householderFoldDD(n, rh, rl, bh, bl, n, n);
+  kernelDD()(n, rh, rl, bh, bl, n, n);
 }

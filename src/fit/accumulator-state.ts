@@ -1,3 +1,5 @@
+import type { TrackingState } from './accumulator-residual-tracking.js';
+
 /** The columns an accumulator folds, by name, for shape checks and error messages. */
 export interface DesignShape {
   /** Names of the design columns supplied in each block row (the intercept excluded). */
@@ -44,6 +46,28 @@ export interface AccumulatorState {
   readonly sumWeights: number;
   /** Σ ln w over folded rows (the log-likelihood of a weighted fit needs it). */
   readonly sumLogWeights: number;
+  /**
+   * For an accumulator of a refinement pass (see RefinementAnchor): its residual sums
+   * (layout in numeric/residual-sums.ts); the factor is then empty.
+   */
+  readonly residuals?: Float64Array | undefined;
+  /** Residual sums gathered with the factor (see ResidualTracking), when tracked. */
+  readonly tracking?: TrackingState | undefined;
+}
+
+/**
+ * What a refinement pass forms each row's residual against: instead of folding a factor,
+ * an accumulator with an anchor sums, in compensated arithmetic, the gradient Xᵀ W r and
+ * the sums of squares at these coefficients (accumulator-fold-residuals.ts).
+ */
+export interface RefinementAnchor {
+  /**
+   * Coefficients in the coordinates of the data as given (no shift), intercept first when
+   * there is one, then one per term; 0 for an aliased term.
+   */
+  readonly coefficients: Float64Array;
+  /** A centre near the weighted mean of the response, for the total sum of squares. */
+  readonly centre: number;
 }
 
 /** The running counts a fold adds to (rows, weights), kept beside the factor. */

@@ -1,16 +1,35 @@
 import { choleskyPacked } from '../numeric/gram-update.js';
 import { packedLength } from '../numeric/packed.js';
+import { mergeResidualSums, residualSumsLength } from '../numeric/residual-sums.js';
 import type { RowBlock } from '../numeric/row-block.js';
 import { blockColumnNames, checkBlockRows, fitErrorContext } from './accumulator-check.js';
 import { foldRowsDD, mergeFactorDD } from './accumulator-fold-dd.js';
 import { foldRowsNormal, mergeGram } from './accumulator-fold-normal.js';
 import { foldRowsQr, mergeFactorQr } from './accumulator-fold-qr.js';
+import { foldRowsResiduals } from './accumulator-fold-residuals.js';
+import { anchorOfFactor, ResidualTracking, solvedTracking } from './accumulator-residual-tracking.js';
 import { firstRowShift, moveToShift } from './accumulator-shift.js';
-import type { AccumulatorState, DesignShape, FoldCounts, FoldLayout, FoldMethod, FoldPrecision } from './accumulator-state.js';
+import type {
+  AccumulatorState,
+  DesignShape,
+  FoldCounts,
+  FoldLayout,
+  FoldMethod,
+  FoldPrecision,
+  RefinementAnchor,
+} from './accumulator-state.js';
 import { FitInputError } from './fit-input-error.js';
 import { FoldWorkspace, sharedWorkspace } from './fold-workspace.js';
+import { solve } from './solve.js';
 
-export type { AccumulatorState, DesignShape, FoldMethod, FoldPrecision } from './accumulator-state.js';
+export type { AccumulatorState, DesignShape, FoldMethod, FoldPrecision, RefinementAnchor } from './accumulator-state.js';
+
+/** Rows at which a tracked small model is checked once for digits it already has (see moveAnchor). */
+const COMFORT_ROWS = 16384;
+/** Largest order checked: the check solves the model, O(order³). */
+const COMFORT_ORDER = 64;
+/** Estimated digits at which a tracked small model gives its tracking up (see moveAnchor). */
+const COMFORT_DIGITS = 14.5;
 
 /**
  * The running least-squares state of one model: the R factor of the augmented weighted
@@ -23,8 +42,10 @@ export type { AccumulatorState, DesignShape, FoldMethod, FoldPrecision } from '.
  *
  * This class checks, counts, shifts and serialises; the fold algorithms live one per file:
  * Householder QR in double (accumulator-fold-qr.ts), the Gram update of the normal
- * equations (accumulator-fold-normal.ts) and Householder QR in double-double
- * (accumulator-fold-dd.ts).
+ * equations (accumulator-fold-normal.ts), Householder QR in double-double
+ * (accumulator-fold-dd.ts); given an `anchor` it also sums, in compensated arithmetic, the
+ * residuals against the anchor's coefficients (accumulator-fold-residuals.ts) — with
+ * `factor: false`, as a refinement pass does, instead of folding a factor.
  *
  * @example
  * const acc = new Accumulator({ terms: ['x'], response: 'y', intercept: true });
@@ -47,6 +68,12 @@ export class Accumulator {
   /** Low parts of R when the precision is double-double. */
   private readonly rLow: Float64Array | undefined;
   private cholesky: Float64Array | undefined;
+  /** Residual sums against `anchor`, when there is one. */
+  private readonly sums: Float64Array | undefined;
+  /** The coefficients a refinement pass forms residuals against, or undefined. */
+  readonly anchor: RefinementAnchor | undefined;
+  /** Residual sums gathered with the factor (option `track`), or undefined. */
+  private readonly tracking: ResidualTracking | undefined;
   private readonly workspace: FoldWorkspace;
   private shiftBy: Float64Array | undefined;
   private readonly counts: FoldCounts = { rows: 0, zeroWeightRows: 0, sumWeights: 0, sumLogWeights: 0 };
@@ -63,6 +90,16 @@ export class Accumulator {
        * more than double precision (numeric columns) reach a double-double fold intact.
        */
       pairs?: boolean;
+      /** Sum residuals against these coefficients (see RefinementAnchor). */
+      anchor?: RefinementAnchor | undefined;
+      /** Fold the factor (default true); false with an anchor: residual sums only. */
+      factor?: boolean;
+      /**
+       * Gather residual sums with the factor (double-precision QR only): against this fixed
+       * anchor, or, with `'follow'`, against the solution of the rows folded so far (see
+       * ResidualTracking) — a refinement step that costs no extra pass.
+       */
+      track?: RefinementAnchor | 'follow' | undefined;
     } = {},
   ) {
     this.shape = shape;
@@ -72,14 +109,42 @@ export class Accumulator {
       throw new RangeError('double-double precision is available for the qr method only');
     }
     this.pairs = options.pairs ?? false;
-    if (this.pairs && this.precision !== 'double-double') {
-      throw new RangeError('values in high/low pairs need double-double precision');
+    this.anchor = options.anchor;
+    const folds = options.factor ?? true;
+    if (!folds && this.anchor === undefined) throw new RangeError('an accumulator without a factor needs an anchor');
+    if (this.pairs && this.precision !== 'double-double' && folds) {
+      throw new RangeError('values in high/low pairs need double-double precision or residual sums only');
     }
     this.order = shape.terms.length + (shape.intercept ? 1 : 0) + 1;
+    if (this.anchor !== undefined && this.anchor.coefficients.length !== this.order - 1) {
+      throw new RangeError(`an anchor needs ${this.order - 1} coefficients, got ${this.anchor.coefficients.length}`);
+    }
     this.label = options.label;
     this.workspace = options.workspace ?? sharedWorkspace;
-    this.r = new Float64Array(packedLength(this.order));
+    this.r = new Float64Array(folds ? packedLength(this.order) : 0);
     this.rLow = this.precision === 'double-double' ? new Float64Array(this.r.length) : undefined;
+    this.sums = this.anchor === undefined ? undefined : new Float64Array(residualSumsLength(this.order - 1));
+    if (options.track !== undefined) {
+      if (this.method !== 'qr' || this.precision !== 'double' || this.pairs || !folds || this.anchor !== undefined) {
+        throw new RangeError('residual tracking needs a double-precision QR factor of single values');
+      }
+      this.tracking = new ResidualTracking(this.order - 1, options.track === 'follow' ? undefined : options.track);
+    }
+  }
+
+  /** The residual sums of a refinement pass (undefined otherwise; read-only view). */
+  get residuals(): Float64Array | undefined {
+    return this.sums;
+  }
+
+  /**
+   * The residual sums gathered with the factor (option `track`) — against `anchor`, with the
+   * anchor's moves (`drift`, see ResidualTracking) and a bound on their rounding of the
+   * residual sum of squares — or undefined without tracking or when it was given up.
+   */
+  get tracked(): { anchor: RefinementAnchor; sums: Float64Array; drift: Float64Array; rssError: number } | undefined {
+    const t = this.tracking;
+    return t === undefined || !t.valid ? undefined : { anchor: t.anchor, sums: t.sums, drift: t.drift, rssError: t.rssError };
   }
 
   /** Low parts of the double-double factor (undefined in double precision). */
@@ -167,14 +232,15 @@ export class Accumulator {
       other.order !== this.order ||
       other.shape.intercept !== this.shape.intercept ||
       other.method !== this.method ||
-      other.precision !== this.precision
+      other.precision !== this.precision ||
+      other.anchor !== this.anchor
     ) {
       throw new FitInputError(
         `cannot merge a factor of order ${other.order} into one of order ${this.order}: the models differ`,
         fitErrorContext(this.label),
       );
     }
-    this.absorb(other.r, other.rLow, other.shiftBy, other.counts);
+    this.absorb(other.r, other.rLow, other.shiftBy, other.counts, other.sums, other.tracking);
   }
 
   /** A copy of the state, for storage or transfer to another thread. */
@@ -189,6 +255,8 @@ export class Accumulator {
       zeroWeightRows: this.counts.zeroWeightRows,
       sumWeights: this.counts.sumWeights,
       sumLogWeights: this.counts.sumLogWeights,
+      ...(this.sums === undefined ? {} : { residuals: this.sums.slice() }),
+      ...(this.tracking === undefined ? {} : { tracking: this.tracking.state() }),
     };
   }
 
@@ -200,7 +268,32 @@ export class Accumulator {
     if ((state.factorLow === undefined) !== (this.rLow === undefined)) {
       throw new FitInputError('cannot merge factors of different precision', fitErrorContext(this.label));
     }
-    this.absorb(state.factor, state.factorLow, state.shift, state);
+    if ((state.residuals === undefined) !== (this.sums === undefined) || (state.residuals !== undefined && state.residuals.length !== this.sums!.length)) {
+      throw new FitInputError('cannot merge residual sums with a state that has none', fitErrorContext(this.label));
+    }
+    // A state without residual tracking (stored, or from a split run's partition) ends this
+    // one's tracking; a state's tracking is ignored by an accumulator without.
+    const tracking = state.tracking === undefined || this.tracking === undefined ? undefined : new ResidualTracking(this.order - 1, undefined, state.tracking);
+    this.absorb(state.factor, state.factorLow, state.shift, state, state.residuals, tracking);
+  }
+
+  /**
+   * Merges stored state whose rows this accumulator's fixed tracking anchor solves — a
+   * refit's previous solution, correct to `error` per coefficient — so that a refit's
+   * refinement needs only the new rows' residuals: their gradient at the anchor is taken as
+   * zero, and the error, weighted by their rows, joins the tracking's drift (see
+   * solvedTracking).
+   */
+  mergeSolvedState(state: AccumulatorState, error: Float64Array): void {
+    const t = this.tracking;
+    if (t === undefined || t.follow || state.factorLow !== undefined || state.method !== 'qr') {
+      throw new RangeError('mergeSolvedState needs a double-precision QR state and tracking against a fixed anchor');
+    }
+    if (state.order !== this.order || state.factor.length !== this.r.length) {
+      throw new FitInputError(`stored factor has order ${state.order}; this model needs ${this.order}`, fitErrorContext(this.label));
+    }
+    const seeded = solvedTracking(state.factor, this.order, state.shift, this.shape.intercept, state.rows, t.anchor, error);
+    this.absorb(state.factor, undefined, state.shift, state, undefined, new ResidualTracking(this.order - 1, undefined, seeded));
   }
 
   /** Folds another factor in and adds its counts: the common body of merge and mergeState. */
@@ -209,8 +302,23 @@ export class Accumulator {
     low: Float64Array | undefined,
     shift: Float64Array | undefined,
     counts: Readonly<FoldCounts>,
+    sums: Float64Array | undefined,
+    tracking?: ResidualTracking,
   ): void {
-    this.mergeFactor(factor, low, shift);
+    if (this.sums !== undefined) mergeResidualSums(this.sums, sums!);
+    if (this.tracking !== undefined) {
+      // Before the factors merge: each side's sums move with its own rows' factor.
+      if (tracking === undefined) this.tracking.abandon();
+      else {
+        this.tracking.mergeFrom(
+          tracking,
+          { factor: this.r.slice(), shift: this.shiftBy, rows: this.counts.rows },
+          { factor, shift, rows: counts.rows },
+          this.order,
+        );
+      }
+    }
+    if (this.r.length > 0) this.mergeFactor(factor, low, shift);
     this.counts.rows += counts.rows;
     this.counts.zeroWeightRows += counts.zeroWeightRows;
     this.counts.sumWeights += counts.sumWeights;
@@ -225,6 +333,9 @@ export class Accumulator {
       method: this.method,
       precision: this.precision,
       pairs: this.pairs,
+      anchor: this.anchor,
+      factor: this.r.length > 0,
+      ...(this.tracking === undefined ? {} : { track: this.tracking.follow ? ('follow' as const) : this.tracking.anchor }),
     });
     copy.mergeState(this.state());
     return copy;
@@ -258,6 +369,12 @@ export class Accumulator {
 
   private foldChecked(v: Float64Array, width: number, from: number, to: number): void {
     const layout = this.layout();
+    if (this.sums !== undefined) {
+      // Counted once: by the factor's fold when there is one.
+      const counts = this.r.length > 0 ? { rows: 0, zeroWeightRows: 0, sumWeights: 0, sumLogWeights: 0 } : this.counts;
+      foldRowsResiduals(layout, this.anchor!, this.sums, v, width, from, to, counts);
+      if (this.r.length === 0) return;
+    }
     if (this.rLow !== undefined) {
       foldRowsDD(layout, this.r, this.rLow, v, width, from, to, this.counts, this.workspace);
       return;
@@ -268,7 +385,38 @@ export class Accumulator {
       return;
     }
     if (this.shiftBy === undefined && this.shifts) this.shiftBy = firstRowShift(layout, v, width, from, to);
-    foldRowsQr(layout, this.r, v, width, from, to, this.shiftBy, this.counts, this.workspace);
+    const t = this.tracking;
+    if (t === undefined) {
+      foldRowsQr(layout, this.r, v, width, from, to, this.shiftBy, this.counts, this.workspace);
+      return;
+    }
+    // With tracking, the range is cut where the anchor moves (row counts are a guide: rows of
+    // weight zero make a move come a little later).
+    for (let at = from; at < to; ) {
+      const end = t.follow && t.valid ? Math.min(to, at + Math.max(1, t.nextMove - this.counts.rows)) : to;
+      foldRowsQr(layout, this.r, v, width, at, end, this.shiftBy, this.counts, this.workspace);
+      t.fold(layout, v, width, at, end);
+      at = end;
+      if (t.follow && t.valid && this.counts.rows >= t.nextMove) this.moveAnchor(t);
+    }
+  }
+
+  /**
+   * Moves a following anchor to the solution of the rows folded so far (later at twice the
+   * rows). Tracking is given up for a small model whose solution is estimated at 14.5
+   * digits or more after 16,384 rows: its coefficients are far enough from zero that the
+   * fast solve will vouch for them (estimates fall by about half a digit per tenfold rows
+   * for a coefficient near zero), and the sums would only cost time.
+   */
+  private moveAnchor(t: ResidualTracking): void {
+    const rows = this.counts.rows;
+    t.nextMove = 2 * Math.max(t.nextMove, rows);
+    const next = anchorOfFactor(this.r, this.order, this.shiftBy, this.shape.intercept);
+    if (next === undefined) return;
+    t.moveTo(next, this.r, this.order, this.shiftBy, rows);
+    if (rows >= COMFORT_ROWS && rows < 2 * COMFORT_ROWS && this.order <= COMFORT_ORDER && (solve(this).estimatedDigits ?? 0) >= COMFORT_DIGITS) {
+      t.abandon();
+    }
   }
 
   private mergeFactor(other: Float64Array, otherLow?: Float64Array, otherShift?: Float64Array): void {

@@ -53,15 +53,22 @@ export interface FitSolution {
   readonly logLik: number | null;
   readonly aic: number | null;
   readonly bic: number | null;
-  /** 2-norm condition number of the column-scaled design (kept columns). */
+  /**
+   * 2-norm condition number of the column-scaled design as given (kept columns, the
+   * intercept a column of √w): independent of row order and of any internal shift.
+   */
   readonly condition: number | null;
   /** Relative tolerance (on unit-norm columns) used for the rank decision. */
   readonly rankTolerance: number;
   /**
-   * Arithmetic of the published numbers: `fast` (double precision throughout) or
-   * `extended` (a double-double factor and refined solves).
+   * How the published numbers were computed: `fast` (a double-precision factor, one pass),
+   * `refined` (the double factor's solution corrected by iterative refinement, residuals
+   * summed in double-double in further passes; see refinementSteps) or `extended` (a
+   * double-double factor and refined solves).
    */
-  readonly accuracy: 'fast' | 'extended';
+  readonly accuracy: 'fast' | 'refined' | 'extended';
+  /** Refinement steps taken (each one streamed pass over the model's rows); 0 unless `refined`. */
+  readonly refinementSteps: number;
   /**
    * Estimated correct significant digits of the least accurate estimate or standard
    * error, from the condition of the scaled factor and the size of the residual.

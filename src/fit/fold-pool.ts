@@ -92,6 +92,9 @@ export class FoldPool {
         ...(options.precision === undefined ? {} : { precision: options.precision }),
         ...(options.pairs === undefined ? {} : { pairs: options.pairs }),
         ...(options.only === undefined ? {} : { only: [...options.only] }),
+        ...(options.anchors === undefined ? {} : { anchors: [...options.anchors] }),
+        ...(options.factor === undefined ? {} : { factor: options.factor }),
+        ...(options.track === undefined ? {} : { track: options.track === 'follow' ? options.track : [...options.track] }),
       },
     };
     this.slots = Array.from({ length: threads }, () => {

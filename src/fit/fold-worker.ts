@@ -1,6 +1,6 @@
 import { parentPort, workerData } from 'node:worker_threads';
 
-import type { AccumulatorState, DesignShape } from './accumulator.js';
+import type { AccumulatorState, DesignShape, RefinementAnchor } from './accumulator.js';
 import { SegmentedFit } from './segmented-fit.js';
 import type { SegmentedFitOptions } from './segmented-fit.js';
 
@@ -8,7 +8,11 @@ import type { SegmentedFitOptions } from './segmented-fit.js';
 export interface FoldWorkerData {
   readonly shape: DesignShape;
   readonly keyNames: readonly string[];
-  readonly options: Omit<SegmentedFitOptions, 'only'> & { readonly only?: readonly string[] };
+  readonly options: Omit<SegmentedFitOptions, 'only' | 'anchors' | 'track'> & {
+    readonly only?: readonly string[];
+    readonly anchors?: readonly (readonly [string, RefinementAnchor])[];
+    readonly track?: 'follow' | readonly (readonly [string, RefinementAnchor])[];
+  };
 }
 
 /** A message to a fold thread. */
@@ -44,8 +48,13 @@ export type FoldWorkerReply =
 if (parentPort !== null) {
   const port = parentPort;
   const data = workerData as FoldWorkerData;
-  const { only, ...rest } = data.options;
-  const options: SegmentedFitOptions = { ...rest, ...(only === undefined ? {} : { only: new Set(only) }) };
+  const { only, anchors, track, ...rest } = data.options;
+  const options: SegmentedFitOptions = {
+    ...rest,
+    ...(only === undefined ? {} : { only: new Set(only) }),
+    ...(anchors === undefined ? {} : { anchors: new Map(anchors) }),
+    ...(track === undefined ? {} : { track: track === 'follow' ? track : new Map(track) }),
+  };
   const fits = new Map<number, SegmentedFit>();
   const keyTables = new Map<number, (readonly (string | null)[])[]>();
   let failed = false;
@@ -87,7 +96,9 @@ if (parentPort !== null) {
     const reply: FoldWorkerReply = { type: 'states', segments };
     port.postMessage(
       reply,
-      segments.flatMap((s) => [s.state.factor.buffer as ArrayBuffer, ...(s.state.factorLow === undefined ? [] : [s.state.factorLow.buffer as ArrayBuffer])]),
+      segments.flatMap((s) =>
+        [s.state.factor, s.state.factorLow, s.state.residuals, s.state.tracking?.sums].filter((a) => a !== undefined).map((a) => a.buffer as ArrayBuffer),
+      ),
     );
   });
 }

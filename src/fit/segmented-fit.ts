@@ -1,6 +1,6 @@
 import type { RowBlock } from '../numeric/row-block.js';
 import { Accumulator } from './accumulator.js';
-import type { DesignShape, FoldMethod, FoldPrecision } from './accumulator.js';
+import type { DesignShape, FoldMethod, FoldPrecision, RefinementAnchor } from './accumulator.js';
 
 /** How the accumulators of a SegmentedFit fold, and which segments it keeps. */
 export interface SegmentedFitOptions {
@@ -10,6 +10,16 @@ export interface SegmentedFitOptions {
   readonly pairs?: boolean;
   /** Fold only these segments (by key text); rows of others are passed over. */
   readonly only?: ReadonlySet<string>;
+  /** Per segment (by key text), coefficients to sum residuals against (see RefinementAnchor). */
+  readonly anchors?: ReadonlyMap<string, RefinementAnchor>;
+  /** Fold the factors (default true); false: residual sums against `anchors` only. */
+  readonly factor?: boolean;
+  /**
+   * Gather residual sums with each factor (see ResidualTracking): against the solution so far
+   * (`'follow'`), or against a fixed anchor per segment (by key text; segments without one
+   * are not tracked).
+   */
+  readonly track?: 'follow' | ReadonlyMap<string, RefinementAnchor>;
 }
 
 /** One segment's accumulator with its key. */
@@ -175,8 +185,10 @@ export class SegmentedFit {
     if (!s) {
       const label =
         this.keyNames.length === 0 ? undefined : this.keyNames.map((n, i) => `${n}=${key[i] ?? 'NULL'}`).join(', ');
-      const { method, precision, pairs } = this.options;
-      s = { key, keyText, acc: new Accumulator(this.shape, { label, method, precision, pairs }) };
+      const { method, precision, pairs, factor } = this.options;
+      const anchor = this.options.anchors?.get(keyText);
+      const track = this.options.track instanceof Map ? this.options.track.get(keyText) : this.options.track;
+      s = { key, keyText, acc: new Accumulator(this.shape, { label, method, precision, pairs, anchor, track, ...(factor === undefined ? {} : { factor }) }) };
       this.segments.set(keyText, s);
     }
     return s;

@@ -1,156 +1,184 @@
-import { tQuantile } from '../numeric/distributions.js';
 import { dd, ddAdd, ddDiv, ddMul } from '../numeric/double-double.js';
-import { packedIndex } from '../numeric/packed.js';
-import { solveUpper } from '../numeric/triangular.js';
-import type { Accumulator } from './accumulator.js';
-import type { CoefficientResult, FitSolution } from './fit-solution.js';
-import { coefficientInference, modelStatistics } from './fit-statistics.js';
-import { solve } from './solve.js';
+import { householderFoldDD } from '../numeric/householder-fold-dd.js';
+import { packedIndex, packedLength } from '../numeric/packed.js';
+import { residualSum } from '../numeric/residual-sums.js';
+import { refineTriangularDD } from '../numeric/triangular-dd.js';
+import type { Accumulator, RefinementAnchor } from './accumulator.js';
+import type { FitSolution } from './fit-solution.js';
+import { assembleSolution, emptyUnlessSolvable } from './solve.js';
 import type { SolveOptions } from './solve.js';
+import { digitsOf, perturbationErrors, stdErrorErrors } from './solve-digits.js';
+import { analyseFactor } from './solve-factor.js';
 
 const T = dd();
 const S = dd();
 
+/** Unit roundoff of double-double arithmetic, about 2⁻¹⁰⁵ (Hida, Li and Bailey 2001). */
+const U_DD = Number.EPSILON * Number.EPSILON;
+
 /**
- * Solves a model whose factor was folded in double-double arithmetic: the rank decision,
- * notes and shape come from the ordinary solve of the rounded factor; then estimates,
- * standard errors and the sums of squares are recomputed to about 30 digits — triangular
- * solves by iterative refinement against the double-double factor (each step gains about
- * −log10(κ·ε) digits, κ the column-scaled condition), sums of squares read off the
- * factor in double-double — and rounded once.
- *
- * A model with aliased terms keeps the ordinary solution (the reduced factor would need a
- * double-double rank-revealing step, which is not built); its notes say so.
+ * Residual sums formed, in the same pass as the double-double fold, against another
+ * solution of the same model (the fast one, under `accuracy: auto`): the independent check
+ * of the double-double solution that gives its digit estimate.
  */
-export function solveExtended(acc: Accumulator, options: SolveOptions = {}): FitSolution {
-  const base = solve(acc, options);
+export interface ExtendedCheck {
+  readonly anchor: RefinementAnchor;
+  readonly sums: Float64Array;
+}
+
+/**
+ * Solves a model whose factor was folded in double-double arithmetic. The rank decision,
+ * notes and shape come from the factor's high part (as the ordinary solve makes them); the
+ * kept columns' double-double factor — re-triangularised when terms are aliased, so the
+ * reduced model gets the digits too — then gives the estimates, standard errors and sums
+ * of squares to about 30 digits (triangular solves by iterative refinement against it,
+ * sums of squares read off it), rounded once.
+ *
+ * The digit estimate is a posteriori when `check` is given: one step of refinement from
+ * the check's anchor, its exact residual gradient solved against the double-double factor,
+ * must land on the same estimates; their distance, per coefficient, is the error taken.
+ * Without a check it is the perturbation estimate with double-double's unit roundoff.
+ */
+export function solveExtended(acc: Accumulator, options: SolveOptions = {}, check?: ExtendedCheck): FitSolution {
   const low = acc.factorLow;
   if (low === undefined) throw new RangeError('solveExtended needs a double-double accumulator');
-  if (base.status !== 'ok' && base.status !== 'no_residual_df') return base;
-  if (base.aliased.length > 0) {
-    return { ...base, notes: [...base.notes, 'extended precision not applied: the model has aliased terms'] };
-  }
-  const n = acc.order;
-  const pd = n - 1;
-  const hi = acc.factor;
-  const at = (i: number, j: number) => packedIndex(n, i, j);
-  // Dense double copy of R_X for the correction solves.
-  const rx = new Float64Array(pd * pd);
-  for (let i = 0; i < pd; i++) for (let j = i; j < pd; j++) rx[i * pd + j] = hi[at(i, j)]!;
+  const empty = emptyUnlessSolvable(acc, options);
+  if (empty !== null) return empty;
+  const f = analyseFactor(acc, options.rankTolerance);
+  const { kept, rank: k } = f.qr;
+  const { uh, ul, yh, yl } = keptFactor(acc.order, acc.factor, low, kept);
 
-  /** Solves R_X x = b (b double-double) by refinement; returns x as hi/lo arrays. */
-  const refinedSolve = (bh: Float64Array, bl: Float64Array): [Float64Array, Float64Array] => {
-    const xh = new Float64Array(pd);
-    const xl = new Float64Array(pd);
-    const r = new Float64Array(pd);
-    for (let iter = 0; iter < 8; iter++) {
-      // r = b − R x, accumulated in double-double.
-      for (let i = 0; i < pd; i++) {
-        let sh = bh[i]!;
-        let sl = bl[i]!;
-        for (let j = i; j < pd; j++) {
-          const o = at(i, j);
-          ddMul(hi[o]!, low[o]!, xh[j]!, xl[j]!, T);
-          ddAdd(sh, sl, -T.hi, -T.lo, S);
-          sh = S.hi;
-          sl = S.lo;
-        }
-        r[i] = sh;
-      }
-      solveUpper(pd, rx, pd, r);
-      let change = 0;
-      for (let i = 0; i < pd; i++) {
-        ddAdd(xh[i]!, xl[i]!, r[i]!, 0, S);
-        xh[i] = S.hi;
-        xl[i] = S.lo;
-        const rel = Math.abs(r[i]!) / Math.max(Math.abs(S.hi), Number.MIN_VALUE);
-        if (rel > change) change = rel;
-      }
-      if (change < 1e-31) break;
-    }
-    return [xh, xl];
-  };
-
-  // Estimates: R_X β = z, z the response column above the diagonal.
-  const zh = new Float64Array(pd);
-  const zl = new Float64Array(pd);
-  for (let i = 0; i < pd; i++) {
-    zh[i] = hi[at(i, pd)]!;
-    zl[i] = low[at(i, pd)]!;
-  }
-  const [betaH] = refinedSolve(zh, zl);
-
-  // Sums of squares off the factor, in double-double.
-  const sumSquares = (rows: number[]): [number, number] => {
+  // Estimates: R β = z, z the response column above the diagonal.
+  const [bh, bl] = refineTriangularDD(k, uh, ul, yh.subarray(0, k), yl.subarray(0, k));
+  const sumSquares = (from: number, to: number): [number, number] => {
     let sh = 0;
     let sl = 0;
-    for (const i of rows) {
-      const o = at(i, pd);
-      ddMul(hi[o]!, low[o]!, hi[o]!, low[o]!, T);
+    for (let i = from; i < to; i++) {
+      ddMul(yh[i]!, yl[i]!, yh[i]!, yl[i]!, T);
       ddAdd(sh, sl, T.hi, T.lo, S);
       sh = S.hi;
       sl = S.lo;
     }
     return [sh, sl];
   };
-  const icpt = acc.shape.intercept ? 1 : 0;
-  const range = (a: number, b: number) => Array.from({ length: Math.max(0, b - a) }, (_, i) => a + i);
-  const [rssH, rssL] = sumSquares([pd]);
-  const [tssH, tssL] = sumSquares(range(icpt, n));
-  const [essH, essL] = sumSquares(range(icpt, pd));
+  const icpt = f.intercept ? 1 : 0;
+  const [rssH, rssL] = sumSquares(k, k + 1);
+  const tss = sumSquares(icpt, k + 1).reduce((a, b) => a + b);
+  const ess = sumSquares(icpt, k).reduce((a, b) => a + b);
   const rows = acc.rows;
-  const df = rows - pd;
-  const notes = [...base.notes];
+  const df = rows - k;
 
-  if (df <= 0) {
-    const coefficients = base.coefficients.map((c, j) => ({ ...c, estimate: betaH[j]! }));
-    return { ...base, coefficients, notes, accuracy: 'extended', estimatedDigits: extendedDigits(base) };
-  }
-
-  // Row j of R_X⁻¹ gives var(β_j)/σ²; columns of the inverse by refined solves.
-  const invSq = new Float64Array(pd * 2); // per row j: Σ_k (R⁻¹)_jk² as hi/lo
-  const eh = new Float64Array(pd);
-  const el = new Float64Array(pd);
-  for (let k = 0; k < pd; k++) {
-    eh.fill(0);
-    eh[k] = 1;
-    const [ch, cl] = refinedSolve(eh, el);
-    for (let j = 0; j <= k; j++) {
-      ddMul(ch[j]!, cl[j]!, ch[j]!, cl[j]!, T);
-      ddAdd(invSq[2 * j]!, invSq[2 * j + 1]!, T.hi, T.lo, S);
-      invSq[2 * j] = S.hi;
-      invSq[2 * j + 1] = S.lo;
+  // Row j of R⁻¹ gives var(β_j)/σ²; columns of the inverse by refined solves.
+  let stdErrors: Float64Array | undefined;
+  if (df > 0) {
+    const invSq = new Float64Array(k * 2);
+    const eh = new Float64Array(k);
+    const el = new Float64Array(k);
+    for (let c = 0; c < k; c++) {
+      eh.fill(0);
+      eh[c] = 1;
+      const [ch, cl] = refineTriangularDD(k, uh, ul, eh, el);
+      for (let j = 0; j <= c; j++) {
+        ddMul(ch[j]!, cl[j]!, ch[j]!, cl[j]!, T);
+        ddAdd(invSq[2 * j]!, invSq[2 * j + 1]!, T.hi, T.lo, S);
+        invSq[2 * j] = S.hi;
+        invSq[2 * j + 1] = S.lo;
+      }
+    }
+    // σ² = RSS / df in double-double; standard errors σ·‖row j of R⁻¹‖.
+    ddDiv(rssH, rssL, df, 0, S);
+    const s2h = S.hi;
+    const s2l = S.lo;
+    stdErrors = new Float64Array(k);
+    for (let j = 0; j < k; j++) {
+      ddMul(s2h, s2l, invSq[2 * j]!, invSq[2 * j + 1]!, T);
+      const v = T.hi;
+      stdErrors[j] = Math.sqrt(v) + (v > 0 ? T.lo / (2 * Math.sqrt(v)) : 0);
     }
   }
-  // σ² = RSS / df in double-double; standard errors σ·‖row j of R⁻¹‖.
-  ddDiv(rssH, rssL, df, 0, S);
-  const s2h = S.hi;
-  const s2l = S.lo;
-  const q = tQuantile(1 - (1 - base.confidence) / 2, df);
-  const coefficients: CoefficientResult[] = base.coefficients.map((c, j) => {
-    ddMul(s2h, s2l, invSq[2 * j]!, invSq[2 * j + 1]!, T);
-    const v = T.hi;
-    const se = Math.sqrt(v) + (v > 0 ? T.lo / (2 * Math.sqrt(v)) : 0);
-    return coefficientInference(c, betaH[j]!, se, q, df);
-  });
+  const estimates = bh.map((h, j) => h + bl[j]!);
   const rss = rssH + rssL;
-  return {
-    ...base,
-    notes,
-    accuracy: 'extended',
-    estimatedDigits: extendedDigits(base),
+
+  let errors: Float64Array;
+  if (check !== undefined) {
+    const q = acc.order - 1;
+    const gh = new Float64Array(k);
+    const gl = new Float64Array(k);
+    kept.forEach((j, pos) => {
+      const g = residualSum(check.sums, j, q + j);
+      gh[pos] = g.hi;
+      gl[pos] = g.lo;
+    });
+    const [th, tl] = refineTriangularDD(k, uh, ul, gh, gl, true);
+    const [dh, dl] = refineTriangularDD(k, uh, ul, th, tl);
+    errors = estimates.map((b, pos) => {
+      ddAdd(check.anchor.coefficients[kept[pos]!]!, 0, dh[pos]!, dl[pos]!, T);
+      ddAdd(T.hi, T.lo, -bh[pos]!, -bl[pos]!, S);
+      return Math.abs(S.hi);
+    });
+  } else {
+    const betaScaled = estimates.map((b, pos) => b * f.scale[kept[pos]!]!);
+    errors = perturbationErrors(f, betaScaled, rss, rows, U_DD).estimate;
+  }
+  const estimatedDigits = digitsOf(estimates, { estimate: errors, stdError: stdErrorErrors(f, U_DD) });
+  return assembleSolution(acc, f, options, {
+    estimates,
     rss,
-    ...modelStatistics({ rss, ess: essH + essL, tss: tssH + tssL, rows, rank: pd, intercept: icpt === 1, sumLogWeights: acc.sumLogWeights }),
-    coefficients,
-  };
+    ess,
+    tss,
+    accuracy: 'extended',
+    refinementSteps: 0,
+    estimatedDigits,
+    ...(stdErrors === undefined ? {} : { stdErrors }),
+  });
 }
 
 /**
- * The same perturbation estimate as the double path with the unit roundoff of
- * double-double (about ε²) in place of ε: −log10 of the error gains −log10 ε ≈ 15.65
- * digits, and the published doubles cap it at 15.
+ * The double-double triangular factor of the kept design columns and the response: R_X
+ * (dense row-major `k × k`, high and low parts) and the response column (`k + 1` entries,
+ * the last one √RSS). Without aliased columns that is R itself; otherwise the kept columns
+ * of R (a trapezoid) are triangularised again by a double-double Householder fold, so the
+ * reduced model is solved to the same digits.
  */
-function extendedDigits(base: FitSolution): number | null {
-  if (base.estimatedDigits === null) return null;
-  return Math.min(15, base.estimatedDigits - Math.log10(Number.EPSILON));
+function keptFactor(
+  n: number,
+  hi: Float64Array,
+  lo: Float64Array,
+  kept: readonly number[],
+): { uh: Float64Array; ul: Float64Array; yh: Float64Array; yl: Float64Array } {
+  const k = kept.length;
+  const cols = [...kept, n - 1];
+  const nk = k + 1;
+  let rh: Float64Array;
+  let rl: Float64Array;
+  if (k === n - 1) {
+    rh = hi;
+    rl = lo;
+  } else {
+    // Rows of R as a block of n rows (column-major, leading dimension n), folded into an empty factor.
+    const bh = new Float64Array(n * nk);
+    const bl = new Float64Array(n * nk);
+    cols.forEach((col, c) => {
+      for (let i = 0; i <= col; i++) {
+        bh[c * n + i] = hi[packedIndex(n, i, col)]!;
+        bl[c * n + i] = lo[packedIndex(n, i, col)]!;
+      }
+    });
+    rh = new Float64Array(packedLength(nk));
+    rl = new Float64Array(packedLength(nk));
+    householderFoldDD(nk, rh, rl, bh, bl, n, n);
+  }
+  const uh = new Float64Array(k * k);
+  const ul = new Float64Array(k * k);
+  const yh = new Float64Array(nk);
+  const yl = new Float64Array(nk);
+  for (let i = 0; i < nk; i++) {
+    for (let j = i; j < k; j++) {
+      uh[i * k + j] = rh[packedIndex(nk, i, j)]!;
+      ul[i * k + j] = rl[packedIndex(nk, i, j)]!;
+    }
+    yh[i] = rh[packedIndex(nk, i, k)]!;
+    yl[i] = rl[packedIndex(nk, i, k)]!;
+  }
+  return { uh, ul, yh, yl };
 }

@@ -49,3 +49,18 @@ export function upperTimesTranspose(k: number, a: Float64Array): Float64Array {
   }
   return out;
 }
+
+/**
+ * Solves `Uᵀ x = b` for upper-triangular `U` (so `Uᵀ` is lower-triangular) by forward
+ * substitution.
+ *
+ * Unchecked kernel. `u` is dense row-major with leading dimension `ld`; the system is
+ * the leading `k × k` block. `x` holds `b` on entry and the solution on exit.
+ */
+export function solveUpperTransposed(k: number, u: Float64Array, ld: number, x: Float64Array): void {
+  for (let i = 0; i < k; i++) {
+    let s = x[i]!;
+    for (let j = 0; j < i; j++) s -= u[j * ld + i]! * x[j]!;
+    x[i] = s / u[i * ld + i]!;
+  }
+}

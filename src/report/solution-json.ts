@@ -27,6 +27,7 @@ export function solutionToJson(s: FitSolution): Record<string, unknown> {
     bic: num(s.bic),
     condition: num(s.condition),
     accuracy: s.accuracy,
+    refinement_steps: s.refinementSteps,
     estimated_digits: num(s.estimatedDigits),
     aliased: s.aliased,
     coefficients: s.coefficients.map((c) => ({

@@ -8,6 +8,7 @@ import type { DesignPlan, DesignScope } from '../plan/design-plan.js';
 import { bucketExpression, parseRefitBounds, refitBoundsQuery, refitFilter } from '../plan/refit-scope.js';
 import type { RefitBounds } from '../plan/refit-scope.js';
 import type { DbSession } from '../source/database.js';
+import type { SolvedAnchor } from './refit-anchors.js';
 import { queryAll } from '../source/query-helpers.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { loadFitStates } from '../store/index.js';
@@ -29,6 +30,8 @@ export interface RefitStart {
   readonly prior: readonly FitStateRecord[];
   /** Scopes of the first (state) pass and of a double-double pass over every row. */
   readonly scope: { readonly first: DesignScope; readonly extended: DesignScope };
+  /** Previous solutions the new rows' residuals are summed against (see previousSolutions). */
+  readonly solved?: ReadonlyMap<string, SolvedAnchor>;
 }
 
 /** The model accumulators of a refit, and what it stores and records besides. */
@@ -143,7 +146,9 @@ export function finishRefit(
   const windowed = spec.window !== null;
   const keyOf = (segment: Readonly<Record<string, string | null>> | null) =>
     spec.segmentBy.map((c) => segment?.[c] ?? null);
-  const fit = new SegmentedFit(shape, spec.segmentBy, { method });
+  const solved = start.solved ?? new Map<string, SolvedAnchor>();
+  const track = new Map([...solved].map(([k, s]) => [k, s.anchor]));
+  const fit = new SegmentedFit(shape, spec.segmentBy, { method, ...(track.size > 0 ? { track } : {}) });
   const fresh = new SegmentedFit(shape, spec.segmentBy, { method });
   const before = new Map<string, { acc: Accumulator; runId: number | null }>();
   const buckets = new Map<string, { key: (string | null)[]; bucket: string; acc: Accumulator }>();
@@ -168,7 +173,9 @@ export function finishRefit(
     }
     b.acc.mergeState(rec.state);
     if (inWindow(rec.bucket)) {
-      fit.ensure(key).acc.mergeState(rec.state);
+      const previous = solved.get(keyText);
+      if (previous !== undefined) fit.ensure(key).acc.mergeSolvedState(rec.state, previous.error);
+      else fit.ensure(key).acc.mergeState(rec.state);
       bucketOf(key, rec.bucket).acc.mergeState(rec.state);
     }
   }

@@ -16,7 +16,9 @@ import type { ModelRecord, StoreDatabase } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { finishRefit, startRefit, storedStates } from './refit.js';
 import type { RefitOutcome, RefitStart } from './refit.js';
+import { certifyDigits } from './accuracy-passes.js';
 import { readPass } from './read-pass.js';
+import { previousSolutions } from './refit-anchors.js';
 import { toolVersion } from './tool-version.js';
 
 /** The spec file could not be read (missing, unreadable): a usage error, not a failed fit. */
@@ -59,7 +61,7 @@ export interface FittedModel {
   readonly segment: Record<string, string | null> | null;
   readonly segmentKey: string;
   readonly solution: FitSolution;
-  /** Streamed passes over the data the run took (2 when `auto` added a double-double pass). */
+  /** Streamed passes over this model's rows (more than 1 when `auto` refined it or folded it in double-double). */
   readonly passes: number;
 }
 
@@ -131,6 +133,8 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel), req.full === true);
       return planFit(session, spec, parallel, refit.scope, guard);
     });
+    // An incremental refit refines from the previous solutions (no pass over the stored rows).
+    if (refit !== null) refit = { ...(refit as RefitStart), solved: await previousSolutions(db, spec, refit) };
     const base = { spec, plan, connection: database.display };
     if (req.dryRun) {
       return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
@@ -179,9 +183,6 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
   }
 }
 
-/** Estimated correct digits below which `accuracy: auto` takes a double-double pass. */
-export const AUTO_EXTENDED_BELOW_DIGITS = 13.5;
-
 /**
  * The arithmetic and plan of a run's passes: the first pass (double precision, or double-double
  * when `accuracy: extended` and the run is not a refit) and the double-double pass that `auto`
@@ -192,6 +193,8 @@ export function passesOf(
   plan: DesignPlan,
   req: Pick<RunFitRequest, 'read' | 'accuracy'>,
   refit: RefitStart | null,
+  /** False for a split run's partitions, whose stored partial factors keep no residual sums. */
+  tracking = true,
 ): {
   accuracy: 'auto' | 'fast' | 'extended';
   extendedPlan: DesignPlan;
@@ -208,12 +211,18 @@ export function passesOf(
   };
   // A refit folds its first pass in double precision, the arithmetic of stored state.
   const ddFirst = accuracy === 'extended' && refit === null;
+  // auto gathers a refinement step in the first pass when its values are the data's own
+  // (numeric columns arrive rounded to float8 in the first pass: their step needs a pass of its own).
+  const exact = tracking && accuracy === 'auto' && spec.method === 'qr' && extendedOptions.pairs !== true;
+  // A refit's new rows are summed against the previous solutions, a fresh fit's against the solution so far.
+  const solved = refit?.solved === undefined ? undefined : new Map([...refit.solved].map(([k, s]) => [k, s.anchor]));
+  const track = !exact ? undefined : refit === null ? ('follow' as const) : solved !== undefined && solved.size > 0 ? solved : undefined;
   return {
     accuracy,
     extendedPlan,
     extendedOptions,
     firstPlan: ddFirst ? extendedPlan : plan,
-    firstOptions: ddFirst ? extendedOptions : { method: spec.method },
+    firstOptions: ddFirst ? extendedOptions : { method: spec.method, ...(track === undefined ? {} : { track }) },
   };
 }
 
@@ -256,21 +265,15 @@ export async function readAndSolve(
   const solutions = new Map<string, FitSolution>();
   for (const s of all.states()) solutions.set(s.keyText, solveOne(s));
 
-  // auto: one more pass, in double-double, for the models double precision cannot vouch for.
-  // (With a refit, `extended` is this pass for every segment, over all its rows.)
-  let passes = 1;
-  if (accuracy === 'auto' || (accuracy === 'extended' && refit !== null)) {
-    const weak = new Set(
-      [...solutions]
-        .filter(([, f]) => accuracy === 'extended' || (f.estimatedDigits !== null && f.estimatedDigits < AUTO_EXTENDED_BELOW_DIGITS))
-        .map(([k]) => k),
-    );
-    if (weak.size > 0) {
-      passes = 2;
-      const second = await readPass(database, extendedPlan, spec, req, { ...extendedOptions, only: weak }, progress);
-      for (const s of second.fit.states()) solutions.set(s.keyText, solveOne(s));
-    }
-  }
+  // auto: more passes for the models double precision cannot vouch for (refinement, or a
+  // double-double fold). With a refit, `extended` is a double-double pass for every segment.
+  const passes =
+    accuracy === 'auto' || (accuracy === 'extended' && refit !== null)
+      ? await certifyDigits(
+          { database, spec, req, accuracy, plan: extendedPlan, pairs: extendedOptions.pairs === true, models: all.states(), progress },
+          solutions,
+        )
+      : new Map<string, number>();
 
   const models: FittedModel[] = [];
   let rowsUsed = 0;
@@ -284,7 +287,7 @@ export async function readAndSolve(
     rowsUsed += solution.rows;
     zeroWeight += solution.zeroWeightRows;
     const segment = keyNames.length === 0 ? null : Object.fromEntries(keyNames.map((n, i) => [n, s.key[i] ?? null]));
-    models.push({ segment, segmentKey: keyNames.length === 0 ? '' : s.keyText, solution, passes });
+    models.push({ segment, segmentKey: keyNames.length === 0 ? '' : s.keyText, solution, passes: passes.get(s.keyText) ?? 1 });
   }
   if (done !== undefined) {
     // A refit's counts are of the rows it read; its models also hold the stored rows.

@@ -70,7 +70,7 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
             );
           }
           const plan = designPlanFromJson(run.plan);
-          const { firstPlan, firstOptions } = passesOf(spec, plan, {}, null);
+          const { firstPlan, firstOptions } = passesOf(spec, plan, {}, null, false);
           const shape = { terms: firstPlan.columns, response: spec.response, weight: spec.weight ?? undefined, intercept: spec.intercept };
           const fit = new SegmentedFit(shape, firstPlan.keyNames, firstOptions);
           for (const f of partials.factors) fit.ensure(f.key).acc.mergeState(f.state);

@@ -57,7 +57,7 @@ export async function foldPartition(req: PartitionRequest): Promise<PartitionOut
     }
     const spec = splitRunSpec(run);
     return await keepSplitRunAlive(store, req.schema, req.runId, splitLeaseSeconds(spec.split?.jobTimeoutSeconds ?? 0), async () => {
-      const { firstPlan, firstOptions } = passesOf(spec, designPlanFromJson(run.plan), {}, null);
+      const { firstPlan, firstOptions } = passesOf(spec, designPlanFromJson(run.plan), {}, null, false);
       const one = { ...firstPlan, queries: [firstPlan.queries[req.partition]!] };
       const started = performance.now();
       const { fit, counts } = await readPass(database, one, spec, { specPath: spec.origin, signal: req.signal }, firstOptions, { rows: 0, last: started, started }).catch(

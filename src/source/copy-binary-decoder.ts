@@ -41,6 +41,16 @@ export interface CopyBinaryDecoderOptions {
 }
 
 /**
+ * Consecutive pieces of a byte stream that arrived together: `bytes[ranges[2i] … ranges[2i+1])`
+ * for i < `count`, in stream order (the CopyData payloads of one socket read, say).
+ */
+export interface CopyPieces {
+  readonly bytes: Uint8Array;
+  readonly ranges: Int32Array;
+  readonly count: number;
+}
+
+/**
  * A block of decoded rows: the V value columns row-major in `values` (width V), and per row
  * the id of its segment key in `keys` (an index into {@link CopyBinaryDecoder.keyTable}).
  *
@@ -258,7 +268,35 @@ export class CopyBinaryDecoder {
   write(chunk: Uint8Array, onBlock: (block: DecodedBlock) => void): void {
     this.#checkUsable('write');
     try {
-      this.#decode(chunk, onBlock);
+      const end = chunk.byteLength;
+      if (end === 0) return;
+      this.#decode(Buffer.from(chunk.buffer, chunk.byteOffset, end), new DataView(chunk.buffer, chunk.byteOffset, end), 0, end, onBlock);
+    } catch (error) {
+      this.#fail(error);
+      throw error;
+    }
+  }
+
+  /**
+   * Decodes the next pieces of the stream as they arrived, without copying them together:
+   * `pieces.bytes[ranges[2i] … ranges[2i+1])` for i < `count`, in order (for example the
+   * payloads of the protocol's CopyData messages within one socket read). The same as
+   * {@link write} of each piece in turn.
+   *
+   * @throws CopyDecodeError on a malformed stream or a value column that is not float8
+   */
+  writePieces(pieces: CopyPieces, onBlock: (block: DecodedBlock) => void): void {
+    this.#checkUsable('write');
+    try {
+      const { bytes: chunk, ranges, count } = pieces;
+      const bytes = Buffer.from(chunk.buffer, chunk.byteOffset, chunk.byteLength);
+      const view = new DataView(chunk.buffer, chunk.byteOffset, chunk.byteLength);
+      for (let i = 0; i < count; i++) {
+        const from = ranges[2 * i]!;
+        const to = ranges[2 * i + 1]!;
+        if (from < 0 || to > chunk.byteLength || from > to) throw new RangeError(`piece ${i} (${from}..${to}) is outside its ${chunk.byteLength} bytes`);
+        if (to > from) this.#decode(bytes, view, from, to, onBlock);
+      }
     } catch (error) {
       this.#fail(error);
       throw error;
@@ -328,12 +366,9 @@ export class CopyBinaryDecoder {
     }
   }
 
-  #decode(chunk: Uint8Array, onBlock: (block: DecodedBlock) => void): void {
-    const end = chunk.byteLength;
-    if (end === 0) return;
-    const bytes = Buffer.from(chunk.buffer, chunk.byteOffset, end);
-    const view = new DataView(chunk.buffer, chunk.byteOffset, end);
-    let pos = 0;
+  /** Decodes `bytes[start … end)`, the next bytes of the stream (`view` over the same bytes). */
+  #decode(bytes: Buffer, view: DataView, start: number, end: number, onBlock: (block: DecodedBlock) => void): void {
+    let pos = start;
     while (pos < end) {
       switch (this.#phase) {
         case Phase.Signature: {

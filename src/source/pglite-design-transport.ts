@@ -2,6 +2,7 @@ import type { PGlite, ParserOptions } from '@electric-sql/pglite';
 import { escapeLiteral } from 'pg';
 
 import type { SqlTemplate } from '../plan/sql-template.js';
+import type { CopyPieces } from './copy-binary-decoder.js';
 import type { DesignTransport } from './design-transport.js';
 import { pgliteQuery } from './pglite-query.js';
 
@@ -38,7 +39,7 @@ export function pgliteDesignTransport(pglite: PGlite, designParsers: ParserOptio
   };
 }
 
-async function* copyChunks(pglite: PGlite, query: SqlTemplate, signal?: AbortSignal): AsyncGenerator<Uint8Array, void, undefined> {
+async function* copyChunks(pglite: PGlite, query: SqlTemplate, signal?: AbortSignal): AsyncGenerator<CopyPieces, void, undefined> {
   let blob: Blob | undefined;
   try {
     const result = await pgliteQuery(pglite, `COPY (${query.toInline(escapeLiteral)}\n) TO '/dev/blob' (FORMAT binary)`);
@@ -53,7 +54,8 @@ async function* copyChunks(pglite: PGlite, query: SqlTemplate, signal?: AbortSig
   if (blob === undefined) throw new Error('the embedded database returned no COPY output');
   for (let at = 0; at < blob.size; at += CHUNK_BYTES) {
     signal?.throwIfAborted();
-    yield new Uint8Array(await blob.slice(at, at + CHUNK_BYTES).arrayBuffer());
+    const bytes = new Uint8Array(await blob.slice(at, at + CHUNK_BYTES).arrayBuffer());
+    yield { bytes, ranges: Int32Array.of(0, bytes.byteLength), count: 1 };
   }
 }
 

@@ -186,8 +186,8 @@ export async function readDesignFrom(transport: DesignTransport, req: DesignRead
     await transport.exec(SESSION_SETUP);
     req.signal?.throwIfAborted();
     if (reader instanceof CopyBinaryDecoder) {
-      for await (const chunk of transport.copyChunks(req.query, req.signal)) {
-        reader.write(chunk, onBlock);
+      for await (const pieces of transport.copyChunks(req.query, req.signal)) {
+        reader.writePieces(pieces, onBlock);
         if (pending.length > 0) await settle();
       }
     } else {

@@ -17,6 +17,8 @@ export type { RunStart } from './start-run.js';
 export type * from './store-database.js';
 export type { FitStateRecord } from './fit-state-record.js';
 export { loadFitStates } from './load-fit-states.js';
+export { loadModelEstimates } from './load-model-estimates.js';
+export type { ModelEstimates } from './load-model-estimates.js';
 export { writeFitStates } from './write-fit-states.js';
 export { writeRefitRecord } from './write-refit-record.js';
 export type { DriftRecord, RefitRecord } from './write-refit-record.js';

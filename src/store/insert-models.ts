@@ -42,6 +42,7 @@ const MODEL_COLUMNS: readonly UnnestColumn<ModelRecord>[] = [
   { name: 'accuracy', kind: 'text', value: (m) => m.solution.accuracy },
   { name: 'passes', kind: 'int4', value: (m) => integerText(m.passes ?? 1, 'passes') },
   f8('estimated_digits', (m) => m.solution.estimatedDigits),
+  { name: 'refinement_steps', kind: 'int4', value: (m) => integerText(m.solution.refinementSteps, 'refinementSteps') },
 ];
 
 /**

@@ -82,12 +82,14 @@ export interface ModelsTable {
   condition_number: number | null;
   rank_tolerance: number | null;
   aliased_terms: string[];
-  /** fast (double precision) or extended (double-double); migration 0002. */
-  accuracy: ColumnType<'fast' | 'extended', 'fast' | 'extended' | undefined, 'fast' | 'extended'>;
+  /** fast (double precision), refined (iterative refinement; migration 0006) or extended (double-double); migration 0002. */
+  accuracy: ColumnType<'fast' | 'refined' | 'extended', 'fast' | 'refined' | 'extended' | undefined, 'fast' | 'refined' | 'extended'>;
   /** Streamed passes the run took; migration 0002. */
   passes: ColumnType<number, number | undefined, number>;
   /** Estimated correct significant digits; migration 0002. */
   estimated_digits: number | null;
+  /** Refinement steps the model took; migration 0006. */
+  refinement_steps: ColumnType<number, number | undefined, number>;
 }
 
 /** `coefficients`: one row per model and term. */

@@ -297,7 +297,7 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
     });
   });
 
-  it('with accuracy auto, the merge takes the double-double pass over every partition for models double precision cannot vouch for', async () => {
+  it('with accuracy auto, the merge takes the extra pass over every partition for models double precision cannot vouch for', async () => {
     // A quartic in raw powers of x near 1000: the double-precision factor falls short of 13.5 digits.
     await tdb.query(`create table quartic as select g as id, (array['A','B'])[1 + g % 2] as seg, (1000 + g / 100.0)::float8 as x,
                        (3 + 2 * (1000 + g / 100.0) + 1e-3 * power(1000 + g / 100.0, 2) + sin(g))::float8 as y
@@ -313,8 +313,8 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
     const models = async (id: number) =>
       (await tdb.query(`select segment_key, passes, accuracy, rows from rowfold.models where run_id = $1 order by segment_key`, [id])).rows;
     expect(await models(start.runId)).toEqual([
-      { segment_key: '["A"]', passes: 2, accuracy: 'extended', rows: '1500' },
-      { segment_key: '["B"]', passes: 2, accuracy: 'extended', rows: '1500' },
+      { segment_key: '["A"]', passes: 2, accuracy: 'refined', rows: '1500' },
+      { segment_key: '["B"]', passes: 2, accuracy: 'refined', rows: '1500' },
     ]);
     expect(await models(wholeRun)).toEqual(await models(start.runId));
     const estimates = async (id: number) =>

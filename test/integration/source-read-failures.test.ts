@@ -186,6 +186,29 @@ describe.skipIf(ON_EMBEDDED)('client state after an early stop', () => {
     }
   });
 
+  it('copy mode: notices raised mid-COPY reach the client, and after an error mid-COPY the same client queries again', async () => {
+    await tdb.query(`create or replace function noisy(i int) returns float8 language plpgsql as $$
+      begin if i % 2500 = 0 then raise notice 'row %', i; end if; return i; end $$`);
+    const client = new pg.Client({ connectionString: tdb.url });
+    await client.connect();
+    const notices: string[] = [];
+    client.on('notice', (n) => notices.push(n.message ?? ''));
+    try {
+      let rows = 0;
+      const counts = await readDesign(client, request(new SqlTemplate(['SELECT (i % 3)::text, noisy(i) FROM generate_series(1, 10000) i']), 'copy'), (b) => void (rows += b.rows));
+      expect(counts.rowsEmitted).toBe(10000);
+      expect(rows).toBe(10000);
+      expect(notices).toEqual(['row 2500', 'row 5000', 'row 7500', 'row 10000']);
+      const error = await failureOf(
+        readDesign(client, request(new SqlTemplate(['SELECT i::text, (1.0 / (5000 - i))::float8 FROM generate_series(1, 10000) i']), 'copy'), () => {}),
+      );
+      expect((error as DesignReadError).code).toBe('22012');
+      expect((await client.query('SELECT 1 AS one')).rows).toEqual([{ one: 1 }]);
+    } finally {
+      await client.end();
+    }
+  });
+
   it('a plain client after a completed copy read is at rest and reusable', async () => {
     const client = new pg.Client({ connectionString: tdb.url });
     await client.connect();

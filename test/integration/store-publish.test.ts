@@ -117,6 +117,7 @@ function expectedModel(m: ModelRecord) {
     accuracy: s.accuracy,
     passes: m.passes ?? 1,
     estimated_digits: s.estimatedDigits,
+    refinement_steps: s.refinementSteps,
   };
 }
 

@@ -1,0 +1,312 @@
+import { mergeResidualSums, residualSum, residualSumsLength } from '../numeric/residual-sums.js';
+import { packedIndex } from '../numeric/packed.js';
+import type { FoldCounts, FoldLayout, RefinementAnchor } from './accumulator-state.js';
+import { foldRowsResiduals } from './accumulator-fold-residuals.js';
+
+/** Unit roundoff of double precision (2⁻⁵³). */
+const U = Number.EPSILON / 2;
+
+/** Rows after which an anchor that follows the solution first moves (see ResidualTracking). */
+export const FIRST_ANCHOR_ROWS = 256;
+
+/** Everything residual tracking holds, in plain form (see AccumulatorState.tracking). */
+export interface TrackingState {
+  readonly coefficients: Float64Array;
+  readonly centre: number;
+  readonly sums: Float64Array;
+  /**
+   * Σ over anchor moves of rows·|T·Δc| per coefficient: the moves in the coordinates of the
+   * factor as folded (T the shift's transform, so a shifted intercept moves by
+   * Δc₀ + Σ c_j Δc_j, signs and all).
+   */
+  readonly drift: Float64Array;
+  /** A bound on the rounding the anchor moves left in the residual sum of squares. */
+  readonly rssError: number;
+  readonly follow: boolean;
+  readonly nextMove: number;
+  /** False once tracking was given up (the sums then mean nothing). */
+  readonly valid: boolean;
+}
+
+/**
+ * Residual sums gathered in the same pass as the factor — the refinement step of a pass that
+ * is read anyway. Rows are summed (numeric/residual-sums.ts) against an anchor: a fixed one
+ * (a refit's previous solution), or one that follows the solution of the rows folded so far
+ * (`follow`): zero at first, then the double factor's solution after 256 rows, 512, 1024 …
+ * When the anchor moves by d, the sums move with it exactly in algebra — g(c + d) =
+ * g(c) − G d and RSS(c + d) = RSS(c) − 2dᵀg(c) + dᵀG d, G the Gram matrix of the rows so far
+ * read off the factor — and in arithmetic with the factor's error times d, so the moves
+ * are kept (`drift`) for the digit estimate: early moves are large but weigh few rows,
+ * late ones weigh many rows but are small (the solution settles as rows come).
+ */
+export class ResidualTracking {
+  anchor: RefinementAnchor;
+  readonly sums: Float64Array;
+  readonly drift: Float64Array;
+  rssError: number;
+  readonly follow: boolean;
+  nextMove: number;
+  valid: boolean;
+  private static readonly scratch: FoldCounts = { rows: 0, zeroWeightRows: 0, sumWeights: 0, sumLogWeights: 0 };
+
+  constructor(q: number, anchor: RefinementAnchor | undefined, state?: TrackingState) {
+    if (state !== undefined) {
+      this.anchor = { coefficients: state.coefficients.slice(), centre: state.centre };
+      this.sums = state.sums.slice();
+      this.drift = state.drift.slice();
+      this.rssError = state.rssError;
+      this.follow = state.follow;
+      this.nextMove = state.nextMove;
+      this.valid = state.valid;
+      return;
+    }
+    this.anchor = anchor ?? { coefficients: new Float64Array(q), centre: 0 };
+    this.sums = new Float64Array(residualSumsLength(q));
+    this.drift = new Float64Array(q);
+    this.rssError = 0;
+    this.follow = anchor === undefined;
+    this.nextMove = this.follow ? FIRST_ANCHOR_ROWS : Number.POSITIVE_INFINITY;
+    this.valid = true;
+  }
+
+  /** A plain copy, for storage or transfer to another thread. */
+  state(): TrackingState {
+    return {
+      coefficients: this.anchor.coefficients.slice(),
+      centre: this.anchor.centre,
+      sums: this.sums.slice(),
+      drift: this.drift.slice(),
+      rssError: this.rssError,
+      follow: this.follow,
+      nextMove: this.nextMove,
+      valid: this.valid,
+    };
+  }
+
+  /** Adds rows `from … to-1` of a checked block to the sums (the factor's fold counts them). */
+  fold(layout: FoldLayout, v: Float64Array, width: number, from: number, to: number): void {
+    if (this.valid) foldRowsResiduals(layout, this.anchor, this.sums, v, width, from, to, ResidualTracking.scratch);
+  }
+
+  /** Gives tracking up (the sums are dropped; a later pass must refine instead). */
+  abandon(): void {
+    this.valid = false;
+    this.sums.fill(0);
+  }
+
+  /**
+   * Moves the anchor to `next` over `rows` rows whose Gram matrix the packed factor `factor`
+   * (order `order`, folded from columns shifted by `shift`) holds.
+   */
+  moveTo(next: RefinementAnchor, factor: Float64Array, order: number, shift: Float64Array | undefined, rows: number): void {
+    if (!this.valid) {
+      this.anchor = next;
+      return;
+    }
+    const q = order - 1;
+    const d = next.coefficients.map((c, j) => c - this.anchor.coefficients[j]!);
+    shiftSums(this, d, gramTimes(factor, order, shift, d), rows, shift);
+    // The centre only shifts Σw(y − c) and Σw(y − c)²: re-centred in the same algebra.
+    const dc = next.centre - this.anchor.centre;
+    if (dc !== 0) recentre(this.sums, q, dc, factorWeightSum(factor, order));
+    this.anchor = next;
+  }
+
+  /**
+   * Adds another tracking of the same model over other rows. The sums of the side with fewer
+   * rows are moved to the other side's anchor first (with their own rows' factor), so the
+   * move weighs as few rows as it can.
+   */
+  mergeFrom(
+    other: ResidualTracking,
+    mine: { factor: Float64Array; shift: Float64Array | undefined; rows: number },
+    theirs: { factor: Float64Array; shift: Float64Array | undefined; rows: number },
+    order: number,
+  ): void {
+    if (!other.valid || !this.valid) {
+      this.abandon();
+      return;
+    }
+    if (mine.rows === 0) {
+      this.adopt(other);
+      return;
+    }
+    if (theirs.rows === 0) return;
+    const q = order - 1;
+    if (mine.rows < theirs.rows) this.moveTo(other.anchor, mine.factor, order, mine.shift, mine.rows);
+    const moved = new ResidualTracking(q, undefined, other.state());
+    moved.moveTo(this.anchor, theirs.factor, order, theirs.shift, theirs.rows);
+    mergeResidualSums(this.sums, moved.sums);
+    for (let j = 0; j < q; j++) this.drift[j] = this.drift[j]! + moved.drift[j]!;
+    this.rssError += moved.rssError;
+    this.nextMove = Math.max(this.nextMove, other.nextMove);
+  }
+
+  /** Takes another tracking's state as its own (this one holds no rows). */
+  private adopt(other: ResidualTracking): void {
+    const s = other.state();
+    this.anchor = { coefficients: s.coefficients, centre: s.centre };
+    this.sums.set(s.sums);
+    this.drift.set(s.drift);
+    this.rssError = s.rssError;
+    this.nextMove = s.nextMove;
+    this.valid = s.valid;
+  }
+}
+
+/**
+ * g(c + d) = g(c) − G d and RSS(c + d) = RSS(c) − 2dᵀg(c) + dᵀGd, with the move's drift (in the
+ * folded coordinates of `shift`) and rounding.
+ */
+function shiftSums(t: ResidualTracking, d: Float64Array, gd: Float64Array, rows: number, shift: Float64Array | undefined): void {
+  const q = d.length;
+  const s = t.sums;
+  let dg = 0;
+  let dgd = 0;
+  let folded0 = d[0]!;
+  if (shift !== undefined) for (let j = 1; j < q; j++) folded0 += shift[j - 1]! * d[j]!;
+  for (let j = 0; j < q; j++) {
+    const g = residualSum(s, j, q + j);
+    dg += d[j]! * (g.hi + g.lo);
+    dgd += d[j]! * gd[j]!;
+    addTo(s, j, q + j, -gd[j]!);
+    t.drift[j] = t.drift[j]! + rows * Math.abs(j === 0 ? folded0 : d[j]!);
+  }
+  const rss = residualSum(s, 2 * q, 2 * q + 1);
+  t.rssError += U * (Math.abs(rss.hi) + 2 * Math.abs(dg) + Math.abs(dgd));
+  addTo(s, 2 * q, 2 * q + 1, -2 * dg);
+  addTo(s, 2 * q, 2 * q + 1, dgd);
+}
+
+/** Adds `a` to the (sum, error) pair at `sumAt`, `errAt` with TwoSum. */
+function addTo(s: Float64Array, sumAt: number, errAt: number, a: number): void {
+  const x = s[sumAt]!;
+  const t = x + a;
+  const z = t - x;
+  s[errAt] = s[errAt]! + (x - (t - z) + (a - z));
+  s[sumAt] = t;
+}
+
+/** Σw(y − c) and Σw(y − c)² re-centred from c to c + dc: S₁ − dc·W and S₂ − 2dc·S₁ + dc²·W. */
+function recentre(s: Float64Array, q: number, dc: number, w: number): void {
+  const s1 = residualSum(s, 2 * q + 2, 2 * q + 3);
+  const one = s1.hi + s1.lo;
+  addTo(s, 2 * q + 4, 2 * q + 5, -2 * dc * one);
+  addTo(s, 2 * q + 4, 2 * q + 5, dc * dc * w);
+  addTo(s, 2 * q + 2, 2 * q + 3, -dc * w);
+}
+
+/** Σw read off a factor with an intercept (R₀₀²), else 0 (no centring without an intercept). */
+function factorWeightSum(factor: Float64Array, order: number): number {
+  return order > 1 ? factor[packedIndex(order, 0, 0)]! ** 2 : 0;
+}
+
+/**
+ * G d for the Gram matrix G of the design as given, from the packed factor R of the design
+ * folded with its term columns shifted by `shift` (undefined: not shifted): the design as
+ * given is the folded one times T (T₀ⱼ = c_j), so G = TᵀRᵀRT.
+ */
+export function gramTimes(factor: Float64Array, order: number, shift: Float64Array | undefined, d: Float64Array): Float64Array {
+  const q = order - 1;
+  const v = d.slice();
+  if (shift !== undefined) for (let j = 1; j < q; j++) v[0] = v[0]! + shift[j - 1]! * d[j]!;
+  const rv = new Float64Array(q);
+  for (let i = 0; i < q; i++) {
+    let s = 0;
+    for (let j = i; j < q; j++) s += factor[packedIndex(order, i, j)]! * v[j]!;
+    rv[i] = s;
+  }
+  const g = new Float64Array(q);
+  for (let j = 0; j < q; j++) {
+    let s = 0;
+    for (let i = 0; i <= j; i++) s += factor[packedIndex(order, i, j)]! * rv[i]!;
+    g[j] = s;
+  }
+  if (shift !== undefined) for (let j = 1; j < q; j++) g[j] = g[j]! + shift[j - 1]! * g[0]!;
+  return g;
+}
+
+/**
+ * The solution of the rows a packed factor holds, as the next anchor of a following tracking:
+ * back-substitution on R (no rank decision: undefined when a diagonal entry is below 1e-12
+ * of its column's norm, and the anchor then waits for more rows), the intercept recovered
+ * from the shift, and the weighted mean of the response as the centre. An anchor needs no
+ * accuracy of its own: the sums are exact about any anchor.
+ */
+export function anchorOfFactor(
+  factor: Float64Array,
+  order: number,
+  shift: Float64Array | undefined,
+  intercept: boolean,
+): RefinementAnchor | undefined {
+  const q = order - 1;
+  const b = new Float64Array(q);
+  for (let i = q - 1; i >= 0; i--) {
+    let s = factor[packedIndex(order, i, q)]!;
+    for (let j = i + 1; j < q; j++) s -= factor[packedIndex(order, i, j)]! * b[j]!;
+    const diag = factor[packedIndex(order, i, i)]!;
+    let column = 0;
+    for (let r = 0; r <= i; r++) column = Math.hypot(column, factor[packedIndex(order, r, i)]!);
+    if (!(Math.abs(diag) > 1e-12 * column)) return undefined;
+    b[i] = s / diag;
+  }
+  let centre = 0;
+  if (intercept) {
+    centre = factor[packedIndex(order, 0, q)]! / factor[0]! + (shift?.[q - 1] ?? 0);
+    if (shift !== undefined) {
+      b[0] = b[0]! + shift[q - 1]!;
+      for (let j = 1; j < q; j++) b[0] = b[0]! - shift[j - 1]! * b[j]!;
+    }
+  }
+  return { coefficients: b, centre };
+}
+
+/**
+ * Residual tracking over the rows a packed factor holds, against `anchor` taken as their
+ * solution (a refit's previous, certified solution): the gradient there is taken as zero —
+ * off by the Gram matrix times the anchor's error, which joins the drift as
+ * rows·|T·error| — the residual sum of squares is the factor's last diagonal squared, and
+ * Σw(y − c), Σw(y − c)² are read off its response column (c the anchor's centre).
+ */
+export function solvedTracking(
+  factor: Float64Array,
+  order: number,
+  shift: Float64Array | undefined,
+  intercept: boolean,
+  rows: number,
+  anchor: RefinementAnchor,
+  error: Float64Array,
+): TrackingState {
+  const q = order - 1;
+  const sums = new Float64Array(residualSumsLength(q));
+  const rss = factor[packedIndex(order, q, q)]! ** 2;
+  sums[2 * q] = rss;
+  let s2 = 0;
+  for (let i = 0; i <= q; i++) s2 += factor[packedIndex(order, i, q)]! ** 2;
+  if (intercept) {
+    // Row 0: R₀₀ = ±√Σw and R₀,y = Σw(y − c_y)/R₀₀, c_y the response's shift.
+    const w = factor[0]! ** 2;
+    const s1 = factor[0]! * factor[packedIndex(order, 0, q)]!;
+    const d = anchor.centre - (shift?.[q - 1] ?? 0);
+    sums[2 * q + 2] = s1 - d * w;
+    sums[2 * q + 4] = s2 - 2 * d * s1 + d * d * w;
+  } else {
+    sums[2 * q + 4] = s2;
+  }
+  const drift = error.map((e) => rows * Math.abs(e));
+  if (shift !== undefined) {
+    let folded = Math.abs(error[0]!);
+    for (let j = 1; j < q; j++) folded += Math.abs(shift[j - 1]! * error[j]!);
+    drift[0] = rows * folded;
+  }
+  return {
+    coefficients: anchor.coefficients.slice(),
+    centre: anchor.centre,
+    sums,
+    drift,
+    rssError: U * rss * Math.sqrt(Math.max(1, rows)),
+    follow: false,
+    nextMove: Number.POSITIVE_INFINITY,
+    valid: true,
+  };
+}
