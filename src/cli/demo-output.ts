@@ -81,7 +81,7 @@ export function demoJson(r: RunDemoResult, specPath: string): unknown {
       rows_read: f.rowsRead,
       rows_used: f.rowsUsed,
       rows_skipped: f.rowsSkipped,
-      segments: f.models.length,
+      segments: f.modelCount,
       seconds: f.seconds,
     },
     coverage: {

@@ -4,7 +4,9 @@ import { solutionToJson } from '../report/solution-json.js';
 import { formatSegmentsTable } from '../report/segments-table.js';
 import { formatSolution } from '../report/terminal-summary.js';
 import { formatCount } from '../report/format-number.js';
+import { CoefficientDistribution } from '../report/coefficient-distribution.js';
 import { runFitExclusive } from '../run/run-fit-exclusive.js';
+import { ModelSpool } from './model-spool.js';
 import type { RunFitResult } from '../run/run-fit.js';
 import { CliError, ExitCode } from './exit-codes.js';
 import { progressReporter } from './progress-reporter.js';
@@ -50,8 +52,17 @@ export function fitCommand(y: Argv): Argv {
       }
       const progress = progressReporter();
       let result: RunFitResult;
+      // --json: every model is written to a spool file as it is published, and the document
+      // streamed from it afterwards (a million models never become one string).
+      const spool = args.json && !args.dryRun ? await ModelSpool.open() : undefined;
+      const distribution = new CoefficientDistribution();
       try {
         result = await runFitExclusive({
+          keepModels: SHOWN_MODELS,
+          onModel: (m) => {
+            spool?.add(m);
+            if (!args.json) distribution.add(m.solution);
+          },
           specPath: args.spec,
           db: args.db,
           parallel,
@@ -62,11 +73,17 @@ export function fitCommand(y: Argv): Argv {
           full: args.full,
           onProgress: args.json ? undefined : progress.update,
         });
+        if (spool !== undefined) {
+          const head = JSON.stringify(runJson(result));
+          // The run object, then the models array streamed from the spool.
+          await spool.writeDocument(head.slice(0, -1) + ',"models":[', ']}\n');
+        }
       } finally {
         progress.done();
+        await spool?.close();
       }
       if (args.dryRun) process.stdout.write(args.json ? JSON.stringify(dryRunJson(result)) + '\n' : dryRunText(result));
-      else process.stdout.write(args.json ? JSON.stringify(runJson(result)) + '\n' : runText(result));
+      else if (!args.json) process.stdout.write(runText(result, distribution));
     },
   );
 }
@@ -80,11 +97,10 @@ function runJson(r: RunFitResult): unknown {
       rows_read: r.rowsRead,
       rows_used: r.rowsUsed,
       rows_skipped: r.rowsSkipped,
-      segments: r.models.length,
+      segments: r.modelCount,
       seconds: r.seconds,
       ...(r.refit === undefined ? {} : refitJson(r.refit)),
     },
-    models: r.models.map((m) => ({ segment: m.segment, ...solutionToJson(m.solution), passes: m.passes })),
   };
 }
 
@@ -108,14 +124,18 @@ function refitJson(refit: NonNullable<RunFitResult['refit']>): Record<string, un
 
 /** Up to this many models the text output shows each in full; above, a line per model. */
 const FULL_MODELS_UP_TO = 5;
+/** Up to this many models the text output has a line for each; above, the distribution and the first few. */
+const SHOWN_MODELS = 50;
+/** Models listed after the distribution when there are more than {@link SHOWN_MODELS}. */
+const FIRST_MODELS = 10;
 
-function runText(r: RunFitResult): string {
+function runText(r: RunFitResult, distribution: CoefficientDistribution): string {
   const out: string[] = [];
   const skipped = Object.entries(r.rowsSkipped).map(([k, n]) => `${formatCount(n)} ${k}`);
   out.push(
     `fit ${r.spec.name} · run ${r.runId} · ${r.connection} · ${formatCount(r.rowsRead)} rows read, ${formatCount(r.rowsUsed)} used` +
       (skipped.length ? ` (skipped: ${skipped.join(', ')})` : '') +
-      ` · ${r.models.length} model${r.models.length === 1 ? '' : 's'} · ${r.seconds.toFixed(2)} s`,
+      ` · ${formatCount(r.modelCount)} model${r.modelCount === 1 ? '' : 's'} · ${r.seconds.toFixed(2)} s`,
   );
   if (r.refit !== undefined) {
     for (const note of r.refit.record.notes) out.push(note);
@@ -129,7 +149,7 @@ function runText(r: RunFitResult): string {
   }
   const title = (m: RunFitResult['models'][number]) =>
     m.segment === null ? r.spec.name : Object.entries(m.segment).map(([k, v]) => `${k}=${v ?? 'NULL'}`).join(', ');
-  if (r.models.length <= FULL_MODELS_UP_TO) {
+  if (r.modelCount <= FULL_MODELS_UP_TO) {
     for (const m of r.models) out.push('', formatSolution(title(m), m.solution));
   } else {
     // Many segments: one line each for the first few terms, then the first model in full.
@@ -138,10 +158,14 @@ function runText(r: RunFitResult): string {
     const terms = allTerms.slice(0, 3);
     const keys = r.plan.keyNames;
     const label = (m: RunFitResult['models'][number]) => (keys.length === 1 ? (m.segment?.[keys[0]!] ?? 'NULL') : title(m));
-    out.push('', formatSegmentsTable(r.models.map((m) => ({ label: label(m), solution: m.solution })), {
+    const many = r.modelCount > SHOWN_MODELS;
+    if (many) out.push('', distribution.format(), '', `the first ${FIRST_MODELS} of ${formatCount(r.modelCount)} models:`);
+    const shown = many ? r.models.slice(0, FIRST_MODELS) : r.models;
+    out.push(many ? '' : '', formatSegmentsTable(shown.map((m) => ({ label: label(m), solution: m.solution })), {
       segmentHeading: keys.length === 1 ? keys[0]! : 'segment',
       terms,
     }));
+    if (many) out.push(`(every model in ${r.spec.schema}.latest_models and latest_coefficients, or use --json; \`rowfold report\` shows the segments that stand out)`);
     if (allTerms.length > terms.length) out.push(`(${terms.length} of ${allTerms.length} terms shown; all in ${r.spec.schema}.latest_coefficients, or use --json)`);
     out.push('', formatSolution(title(first), first.solution));
   }

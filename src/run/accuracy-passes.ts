@@ -37,7 +37,7 @@ export interface AccuracyPassInput {
  * and a double-double fold for models whose conditioning defeats refinement, whose
  * refinement stalls, or whose pass saw other rows than the factor holds (a refit's late
  * rows, rows that landed between passes). Every pass reads only the segments that need it,
- * filtered in the database. `solutions` is updated in place; the passes over each model's
+ * filtered in the database. `solutions` (which may hold only the models that need more) is updated in place; the passes over each model's
  * rows (the first included) are returned by segment key text for the models that took more.
  */
 export async function certifyDigits(input: AccuracyPassInput, solutions: Map<string, FitSolution>): Promise<Map<string, number>> {
@@ -48,7 +48,9 @@ export async function certifyDigits(input: AccuracyPassInput, solutions: Map<str
   const corrections = new Map<string, number>();
   const steps = new Map<string, number>();
   for (const s of input.models) {
-    let fit = solutions.get(s.keyText)!;
+    // The caller may leave out models that need nothing more.
+    let fit = solutions.get(s.keyText);
+    if (fit === undefined) continue;
     if (fit.status !== 'ok' && fit.status !== 'no_residual_df') continue;
     if (input.accuracy === 'extended') {
       extend.add(s.keyText);

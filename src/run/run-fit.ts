@@ -12,11 +12,11 @@ import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
 import { createStoreDb, failRun, migrate, publishRun, startRun, writeFitStates, writeRefitRecord, writeRunResult } from '../store/index.js';
-import type { ModelRecord, StoreDatabase } from '../store/index.js';
+import type { ModelRecord, RunResult, StoreDatabase } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { finishRefit, startRefit, storedStates } from './refit.js';
 import type { RefitOutcome, RefitStart } from './refit.js';
-import { certifyDigits } from './accuracy-passes.js';
+import { AUTO_TARGET_DIGITS, certifyDigits } from './accuracy-passes.js';
 import { readPass } from './read-pass.js';
 import { previousSolutions } from './refit-anchors.js';
 import { toolVersion } from './tool-version.js';
@@ -54,7 +54,17 @@ export interface RunFitRequest {
    * and a started run is marked failed with the signal's reason.
    */
   readonly signal?: AbortSignal | undefined;
+  /**
+   * Models the result keeps (the first in key order). Default {@link DEFAULT_KEEP_MODELS}: a
+   * run of a million segments publishes them all without holding them.
+   */
+  readonly keepModels?: number | undefined;
+  /** Called with every model as it is published (inside the run's transaction, before it commits). */
+  readonly onModel?: ((model: FittedModel) => void) | undefined;
 }
+
+/** Models a {@link RunFitResult} keeps unless the request says otherwise. */
+export const DEFAULT_KEEP_MODELS = 1000;
 
 /** One published model. */
 export interface FittedModel {
@@ -75,6 +85,12 @@ export interface RunFitResult {
   readonly rowsUsed: number;
   readonly rowsSkipped: Record<string, number>;
   readonly seconds: number;
+  /** How many models the run published. */
+  readonly modelCount: number;
+  /**
+   * The first models published (in order of their key text), at most `keepModels` of them;
+   * every model goes to `onModel` and to the result tables.
+   */
   readonly models: readonly FittedModel[];
   /** For a fit with a watermark or window: full or incremental, notes, watermarks, drift tests. */
   readonly refit?: RefitOutcome | undefined;
@@ -137,7 +153,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     if (refit !== null) refit = { ...(refit as RefitStart), solved: await previousSolutions(db, spec, refit) };
     const base = { spec, plan, connection: database.display };
     if (req.dryRun) {
-      return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
+      return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, modelCount: 0, models: [] };
     }
     await migrate(db, spec.schema);
     req.signal?.throwIfAborted();
@@ -146,21 +162,9 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     try {
       const out = await readAndSolve(reads, spec, plan, req, refit);
       req.signal?.throwIfAborted();
-      const result = {
-        rowsRead: out.rowsRead,
-        rowsUsed: out.rowsUsed,
-        rowsSkipped: out.rowsSkipped,
-        seconds: out.seconds,
-        models: out.models.map(
-          (m): ModelRecord => ({
-            segment: m.segment,
-            segmentKey: m.segmentKey,
-            method: spec.method,
-            solution: m.solution,
-            passes: m.passes,
-          }),
-        ),
-      };
+      const kept: FittedModel[] = [];
+      let seconds = 0;
+      const result = publishable(spec, out, req, kept, (t) => (seconds = t));
       const done = out.refit;
       if (done === undefined) await publishRun(db, spec.schema, runId, result);
       else {
@@ -171,7 +175,8 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
           await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
         });
       }
-      return { ...base, runId, ...out };
+      const { rowsRead, rowsUsed, rowsSkipped, modelCount } = out;
+      return { ...base, runId, rowsRead, rowsUsed, rowsSkipped, seconds, modelCount, models: kept, refit: done };
     } catch (e) {
       await failRun(db, spec.schema, runId, req.signal?.aborted === true ? req.signal.reason : e).catch(() => undefined);
       throw e;
@@ -181,6 +186,42 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     await db.destroy();
     await database.close();
   }
+}
+
+/**
+ * The run result to publish from a solved run: its models as a one-time iterable that hands
+ * each to `req.onModel`, keeps the first `req.keepModels` in `kept` and stops at an abort;
+ * `seconds` is told the run's duration once every model is taken.
+ */
+export function publishable(
+  spec: FitSpec,
+  out: SolvedRun,
+  req: Pick<RunFitRequest, 'keepModels' | 'onModel' | 'signal'>,
+  kept: FittedModel[],
+  onSeconds: (seconds: number) => void = () => undefined,
+): RunResult {
+  const keep = req.keepModels ?? DEFAULT_KEEP_MODELS;
+  function* records(): Generator<ModelRecord> {
+    let n = 0;
+    for (const m of out.models()) {
+      if ((++n & 1023) === 0) req.signal?.throwIfAborted();
+      req.onModel?.(m);
+      if (kept.length < keep) kept.push(m);
+      yield { segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes };
+    }
+    req.signal?.throwIfAborted();
+  }
+  return {
+    rowsRead: out.rowsRead,
+    rowsUsed: out.rowsUsed,
+    rowsSkipped: out.rowsSkipped,
+    seconds: () => {
+      const s = out.seconds();
+      onSeconds(s);
+      return s;
+    },
+    models: records(),
+  };
 }
 
 /**
@@ -227,6 +268,23 @@ export function passesOf(
 }
 
 /**
+ * A run read and ready to publish: its counts, and its models solved one by one as they are
+ * taken ({@link SolvedRun.models} runs once), so that no more than a batch of solved models is
+ * held at any segment count.
+ */
+export interface SolvedRun {
+  readonly rowsRead: number;
+  readonly rowsUsed: number;
+  readonly rowsSkipped: Record<string, number>;
+  /** Seconds since the run's first read began (call once every model is published). */
+  readonly seconds: () => number;
+  readonly modelCount: number;
+  /** The models in order of their key text, each solved as it is taken. */
+  readonly models: () => Generator<FittedModel>;
+  readonly refit?: RefitOutcome | undefined;
+}
+
+/**
  * Read (unless `folded` brings the first pass already folded, as the merge of a split run
  * does), solve, take the double-double pass `accuracy` asks for, and gather the models and
  * counts to publish.
@@ -238,7 +296,7 @@ export async function readAndSolve(
   req: RunFitRequest,
   refit: RefitStart | null = null,
   folded?: { fit: SegmentedFit; counts: DesignReadCounts[] },
-): Promise<Omit<RunFitResult, 'spec' | 'plan' | 'connection' | 'runId'>> {
+): Promise<SolvedRun> {
   const started = performance.now();
   const progress = { rows: 0, last: started, started };
   const { accuracy, extendedPlan, extendedOptions, firstPlan, firstOptions } = passesOf(spec, plan, req, refit);
@@ -262,47 +320,60 @@ export async function readAndSolve(
     s.acc.precision === 'double-double'
       ? solveExtended(s.acc, { confidence: spec.confidence })
       : solve(s.acc, { confidence: spec.confidence });
+  const states = all.states();
+  // Solutions held across the passes: only of the models the passes after the first take up
+  // (auto: short of the target digits; extended refit: every solved model). The others are
+  // solved as they are published.
   const solutions = new Map<string, FitSolution>();
-  for (const s of all.states()) solutions.set(s.keyText, solveOne(s));
+  const more = accuracy === 'auto' || (accuracy === 'extended' && refit !== null);
+  if (more) {
+    for (const s of states) {
+      const fit = solveOne(s);
+      if (fit.status !== 'ok' && fit.status !== 'no_residual_df') continue;
+      if (accuracy === 'extended' || (fit.estimatedDigits !== null && fit.estimatedDigits < AUTO_TARGET_DIGITS)) {
+        solutions.set(s.keyText, fit);
+      }
+    }
+  }
 
   // auto: more passes for the models double precision cannot vouch for (refinement, or a
   // double-double fold). With a refit, `extended` is a double-double pass for every segment.
   const passes =
-    accuracy === 'auto' || (accuracy === 'extended' && refit !== null)
+    more && solutions.size > 0
       ? await certifyDigits(
-          { database, spec, req, accuracy, plan: extendedPlan, pairs: extendedOptions.pairs === true, models: all.states(), progress },
+          { database, spec, req, accuracy: accuracy as 'auto' | 'extended', plan: extendedPlan, pairs: extendedOptions.pairs === true, models: states, progress },
           solutions,
         )
       : new Map<string, number>();
 
-  const models: FittedModel[] = [];
   let rowsUsed = 0;
   let zeroWeight = 0;
-  for (const s of all.states()) {
-    const solution = solutions.get(s.keyText)!;
-    if (spec.method === 'normal') {
-      const problem = normalEquationsProblem(solution);
-      if (problem !== null) throw new Error(`${s.acc.label === undefined ? '' : `segment ${s.acc.label}: `}${problem}`);
-    }
-    rowsUsed += solution.rows;
-    zeroWeight += solution.zeroWeightRows;
-    const segment = keyNames.length === 0 ? null : Object.fromEntries(keyNames.map((n, i) => [n, s.key[i] ?? null]));
-    models.push({ segment, segmentKey: keyNames.length === 0 ? '' : s.keyText, solution, passes: passes.get(s.keyText) ?? 1 });
-  }
-  if (done !== undefined) {
+  for (const s of done === undefined ? states : first.fit.states()) {
     // A refit's counts are of the rows it read; its models also hold the stored rows.
-    rowsUsed = 0;
-    zeroWeight = 0;
-    for (const s of first.fit.states()) {
-      rowsUsed += s.acc.rows;
-      zeroWeight += s.acc.zeroWeightRows;
+    rowsUsed += s.acc.rows;
+    zeroWeight += s.acc.zeroWeightRows;
+  }
+  let taken = false;
+  function* models(): Generator<FittedModel> {
+    if (taken) throw new Error('the models of a run are solved once');
+    taken = true;
+    for (let i = 0; i < states.length; i++) {
+      const s = states[i]!;
+      const solution = solutions.get(s.keyText) ?? solveOne(s);
+      if (spec.method === 'normal') {
+        const problem = normalEquationsProblem(solution);
+        if (problem !== null) throw new Error(`${s.acc.label === undefined ? '' : `segment ${s.acc.label}: `}${problem}`);
+      }
+      const segment = keyNames.length === 0 ? null : Object.fromEntries(keyNames.map((n, j) => [n, s.key[j] ?? null]));
+      yield { segment, segmentKey: keyNames.length === 0 ? '' : s.keyText, solution, passes: passes.get(s.keyText) ?? 1 };
     }
   }
   return {
     rowsRead,
     rowsUsed,
     rowsSkipped: skippedByReason(plan, counts, zeroWeight),
-    seconds: (performance.now() - started) / 1000,
+    seconds: () => (performance.now() - started) / 1000,
+    modelCount: states.length,
     models,
     refit: done,
   };

@@ -5,8 +5,7 @@ import type { ConnectionTarget } from '../source/connection-target.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { createStoreDb, deletePartials, failRunsAndPartials, loadPartialFactors, loadSplitRun, recordSplitRunSeconds, writeRunResult } from '../store/index.js';
-import type { ModelRecord } from '../store/index.js';
-import { passesOf, readAndSolve } from './run-fit.js';
+import { passesOf, publishable, readAndSolve } from './run-fit.js';
 import { keepSplitRunAlive, splitLeaseSeconds } from './split-lease.js';
 import { splitRunSpec } from './split-partition.js';
 
@@ -82,18 +81,16 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
               throw sourceChangedError(e, req.runId) ?? e;
             })
             .finally(() => reads.release());
-          const models = out.models.map(
-            (m): ModelRecord => ({ segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes }),
-          );
-          const result = { rowsRead: out.rowsRead, rowsUsed: out.rowsUsed, rowsSkipped: out.rowsSkipped, seconds: out.seconds, models };
           req.signal?.throwIfAborted();
+          // Models solved as they are published, batch by batch (none kept).
+          const result = publishable(spec, out, { keepModels: 0, signal: req.signal }, []);
           await store.transaction().execute(async (trx) => {
             await writeRunResult(trx, req.schema, req.runId, result);
             // The run's seconds are its whole duration, with the parts beside it in split_runs.
             await recordSplitRunSeconds(trx, req.schema, req.runId, (performance.now() - started) / 1000);
             await deletePartials(trx, req.schema, req.runId);
           });
-          return { outcome: 'published', rowsRead: out.rowsRead, segments: models.length };
+          return { outcome: 'published', rowsRead: out.rowsRead, segments: out.modelCount };
         } catch (e) {
           // Another attempt of this merge (an expired job retried while this one ran) may have
           // published, and removed the partials, in the meantime: then this one is done.

@@ -49,7 +49,7 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
     if (job.kind === 'fit') {
       if (spec.split === null) {
         const r = await runFitExclusive({ specPath, db: opts.db, env: opts.env, onRunStarted: dropRun, signal }, { onLocked: dropLock });
-        return { run_id: r.runId, rows_read: r.rowsRead, rows_used: r.rowsUsed, segments: r.models.length, seconds: r.seconds };
+        return { run_id: r.runId, rows_read: r.rowsRead, rows_used: r.rowsUsed, segments: r.modelCount, seconds: r.seconds };
       }
       const started = await startSplitFit({
         specPath,

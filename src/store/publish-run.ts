@@ -16,9 +16,13 @@ export interface RunResult {
   readonly rowsUsed: number;
   /** Rows left out, by reason, e.g. `{ 'null:temp_c': 12, zero_weight: 5 }`. */
   readonly rowsSkipped: Readonly<Record<string, number>>;
-  /** Duration of the fit in seconds. */
-  readonly seconds: number;
-  readonly models: readonly ModelRecord[];
+  /** Duration of the fit in seconds (a function: read once every model is written). */
+  readonly seconds: number | (() => number);
+  /**
+   * The models, in any order. An iterable is consumed once, batch by batch, so a caller that
+   * solves as it yields never holds more than a batch of solved models.
+   */
+  readonly models: Iterable<ModelRecord> | AsyncIterable<ModelRecord>;
 }
 
 /** Options of {@link publishRun}. */
@@ -29,6 +33,7 @@ export interface PublishOptions {
 
 const DEFAULT_BATCH_SIZE = 5000;
 const COEFFICIENT_BATCH_ROWS = 50_000;
+
 
 /**
  * Publishes a run in one transaction: all its models and coefficients (set-based inserts, one
@@ -84,15 +89,27 @@ export async function writeRunResult(
     throw new Error(`run ${runId} has already ${run.status}; only a running run can be published`);
   }
 
-  try {
-    for (let start = 0; start < result.models.length; start += batchSize) {
-      const batch = result.models.slice(start, start + batchSize);
+  // Batch by batch: a batch of models is written (and let go) before the next is taken.
+  let segmentCount = 0;
+  let batch: ModelRecord[] = [];
+  const flush = async () => {
+    if (batch.length === 0) return;
+    try {
       const ids = await insertModels(trx, schema, runId, run.fit_name, batch);
       await insertCoefficientsOf(trx, schema, runId, batch, ids);
+    } catch (error) {
+      throw explainInsertFailure(error, runId, batch);
     }
-  } catch (error) {
-    throw explainInsertFailure(error, runId, result.models);
+    segmentCount += batch.length;
+    batch = [];
+  };
+  for await (const model of result.models) {
+    batch.push(model);
+    if (batch.length >= batchSize) await flush();
   }
+  await flush();
+  const seconds = typeof result.seconds === 'function' ? result.seconds() : result.seconds;
+  if (!(Number.isFinite(seconds) && seconds >= 0)) throw new RangeError(`seconds must be a finite number ≥ 0, got ${seconds}`);
 
   await trx
     .withSchema(schema)
@@ -103,8 +120,8 @@ export async function writeRunResult(
       rows_read: result.rowsRead,
       rows_used: result.rowsUsed,
       rows_skipped: JSON.stringify(result.rowsSkipped),
-      segment_count: result.models.length,
-      seconds: result.seconds,
+      segment_count: segmentCount,
+      seconds,
     })
     .where('run_id', '=', runIdText(runId))
     .execute();
@@ -140,8 +157,9 @@ function checkResult(result: RunResult): void {
       throw new RangeError(`rowsSkipped["${reason}"] must be a whole number ≥ 0, got ${count}`);
     }
   }
-  if (!(Number.isFinite(result.seconds) && result.seconds >= 0)) {
-    throw new RangeError(`seconds must be a finite number ≥ 0, got ${result.seconds}`);
+  const seconds = result.seconds;
+  if (typeof seconds === 'number' && !(Number.isFinite(seconds) && seconds >= 0)) {
+    throw new RangeError(`seconds must be a finite number ≥ 0, got ${seconds}`);
   }
 }
 
@@ -151,7 +169,11 @@ function explainInsertFailure(error: unknown, runId: number, models: readonly Mo
   if (code !== '23505' || constraint !== 'models_run_id_segment_key_key') return error;
   const seen = new Set<string>();
   const duplicate = models.find((m) => (seen.has(m.segmentKey) ? true : (seen.add(m.segmentKey), false)));
-  const which = duplicate === undefined ? 'the same segment key' : `the segment key "${duplicate.segmentKey}"`;
+  // A key that repeats one of an earlier batch is named by the server's detail: (run_id, segment_key)=(7, key).
+  const detail = (error as { detail?: unknown }).detail;
+  const fromDetail = typeof detail === 'string' ? /=\(\d+, (.*)\) already exists/.exec(detail)?.[1] : undefined;
+  const key = duplicate?.segmentKey ?? fromDetail;
+  const which = key === undefined ? 'the same segment key' : `the segment key "${key}"`;
   return new Error(`run ${runId}: two models have ${which}; segment keys must be unique within a run`, {
     cause: error,
   });
