@@ -27,7 +27,8 @@ export function fitErrorContext(label: string | undefined, column?: string): { c
 export function checkBlockRows(
   shape: DesignShape,
   pairs: boolean,
-  label: string | undefined,
+  /** The segment's label, or a function that makes it (called only to name a bad value). */
+  labelOf: string | undefined | (() => string | undefined),
   block: RowBlock,
   from: number,
   to: number,
@@ -36,7 +37,6 @@ export function checkBlockRows(
   const v = block.values;
   const stride = pairs ? 2 : 1;
   const wcol = shape.weight === undefined ? -1 : width - stride;
-  const where = label === undefined ? '' : ` in segment ${label}`;
   for (let row = from; row < to; row++) {
     const base = row * width;
     // x − x is NaN exactly when x is NaN or ±Infinity: one test per row on the fast path.
@@ -48,6 +48,8 @@ export function checkBlockRows(
     const w = wcol < 0 ? 1 : v[base + wcol]!;
     if (probe === 0 && w >= 0) continue;
     const names = blockColumnNames(shape);
+    const label = typeof labelOf === 'function' ? labelOf() : labelOf;
+    const where = label === undefined ? '' : ` in segment ${label}`;
     for (let j = 0; j < width; j++) {
       const x = v[base + j]!;
       if (!Number.isFinite(x)) {

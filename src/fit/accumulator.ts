@@ -57,8 +57,11 @@ export class Accumulator {
   readonly shape: DesignShape;
   /** Order n of the factor: design columns including the intercept, plus the response. */
   readonly order: number;
-  /** Segment label used in error messages (optional). */
-  readonly label: string | undefined;
+  /** Segment label used in error messages (optional); made when first asked for. */
+  get label(): string | undefined {
+    return typeof this.labelOf === 'function' ? this.labelOf() : this.labelOf;
+  }
+  private readonly labelOf: string | (() => string) | undefined;
   readonly method: FoldMethod;
   readonly precision: FoldPrecision;
   /** Whether block values come as (hi, lo) pairs. */
@@ -81,7 +84,8 @@ export class Accumulator {
   constructor(
     shape: DesignShape,
     options: {
-      label?: string | undefined;
+      /** A function is called only when the label is needed (a hundred thousand segments need no labels made). */
+      label?: string | (() => string) | undefined;
       workspace?: FoldWorkspace;
       method?: FoldMethod;
       precision?: FoldPrecision;
@@ -119,7 +123,7 @@ export class Accumulator {
     if (this.anchor !== undefined && this.anchor.coefficients.length !== this.order - 1) {
       throw new RangeError(`an anchor needs ${this.order - 1} coefficients, got ${this.anchor.coefficients.length}`);
     }
-    this.label = options.label;
+    this.labelOf = options.label;
     this.workspace = options.workspace ?? sharedWorkspace;
     this.r = new Float64Array(folds ? packedLength(this.order) : 0);
     this.rLow = this.precision === 'double-double' ? new Float64Array(this.r.length) : undefined;
@@ -328,7 +332,7 @@ export class Accumulator {
   /** A new accumulator with the same shape and a copy of this one's state. */
   clone(): Accumulator {
     const copy = new Accumulator(this.shape, {
-      label: this.label,
+      label: this.labelOf,
       workspace: this.workspace,
       method: this.method,
       precision: this.precision,
@@ -353,7 +357,7 @@ export class Accumulator {
    * @throws FitInputError naming the column and segment of the first bad value.
    */
   check(block: RowBlock, from: number, to: number): void {
-    checkBlockRows(this.shape, this.pairs, this.label, block, from, to);
+    checkBlockRows(this.shape, this.pairs, this.labelOf, block, from, to);
   }
 
   /** How block rows map onto the factor, for the fold algorithms. */

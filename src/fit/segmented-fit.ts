@@ -42,6 +42,11 @@ function heldRows(width: number): number {
   return Math.max(4, Math.min(32, Math.floor(2048 / width)));
 }
 
+/** Above this many segments, each holds back fewer rows (memory over kernel calls). */
+const MANY_SEGMENTS = 4096;
+/** Bytes of held rows per segment when there are many. */
+const MANY_SEGMENTS_HELD_BYTES = 256;
+
 /** A block whose rows carry a segment key id (as a decoded COPY block does). */
 export interface KeyedBlock extends RowBlock {
   readonly keys: Int32Array;
@@ -124,7 +129,7 @@ export class SegmentedFit {
   /** Folds a run of one segment's rows, or holds it back when it is short (see {@link held}). */
   private foldRun(s: SegmentState, block: RowBlock, from: number, to: number): void {
     const width = block.width;
-    if (to - from >= heldRows(width) || width !== s.acc.blockWidth) {
+    if (to - from >= this.heldRowsOf(width) || width !== s.acc.blockWidth) {
       s.acc.fold(block, from, to);
       return;
     }
@@ -132,11 +137,20 @@ export class SegmentedFit {
     this.hold(s, this.heldFor(s, width), block, from, to);
   }
 
+  /**
+   * Rows a segment holds back: fewer once there are many segments, whose held rows would
+   * otherwise outweigh their factors (a 20-row segment would hold all its rows to the end).
+   */
+  private heldRowsOf(width: number): number {
+    const most = heldRows(width);
+    return this.segments.size <= MANY_SEGMENTS ? most : Math.max(2, Math.min(most, Math.floor(MANY_SEGMENTS_HELD_BYTES / (8 * width))));
+  }
+
   /** The held rows of a segment, made on first use. */
   private heldFor(s: SegmentState, width: number): Held {
     let h = this.held.get(s);
     if (h === undefined) {
-      h = { values: new Float64Array(heldRows(width) * width), rows: 0 };
+      h = { values: new Float64Array(this.heldRowsOf(width) * width), rows: 0 };
       this.held.set(s, h);
     }
     return h;
@@ -183,8 +197,8 @@ export class SegmentedFit {
     const keyText = JSON.stringify(key);
     let s = this.segments.get(keyText);
     if (!s) {
-      const label =
-        this.keyNames.length === 0 ? undefined : this.keyNames.map((n, i) => `${n}=${key[i] ?? 'NULL'}`).join(', ');
+      const names = this.keyNames;
+      const label = names.length === 0 ? undefined : () => names.map((n, i) => `${n}=${key[i] ?? 'NULL'}`).join(', ');
       const { method, precision, pairs, factor } = this.options;
       const anchor = this.options.anchors?.get(keyText);
       const track = this.options.track instanceof Map ? this.options.track.get(keyText) : this.options.track;

@@ -1,5 +1,6 @@
 import { sql } from 'kysely';
 import type { Kysely } from 'kysely';
+import type { CoefficientResult } from '../fit/fit-solution.js';
 import type { ModelRecord } from './model-record.js';
 import { float8Text, integerText } from './sql-array-values.js';
 import type { StoreDatabase } from './store-database.js';
@@ -11,6 +12,20 @@ const f8 = (name: string, get: (m: ModelRecord) => number | null): UnnestColumn<
   kind: 'float8',
   value: (m) => float8Text(get(m)),
 });
+
+/** A float8[] column from one field of every coefficient, as an array literal. */
+function f8s(name: string, get: (c: CoefficientResult) => number | null): UnnestColumn<ModelRecord> {
+  return {
+    name,
+    kind: 'float8[]',
+    value: (m) => {
+      let text = '{';
+      const cs = m.solution.coefficients;
+      for (let i = 0; i < cs.length; i++) text += (i === 0 ? '' : ',') + (float8Text(get(cs[i]!)) ?? 'NULL');
+      return text + '}';
+    },
+  };
+}
 
 const MODEL_COLUMNS: readonly UnnestColumn<ModelRecord>[] = [
   { name: 'segment', kind: 'jsonb', value: (m) => (m.segment === null ? null : JSON.stringify(m.segment)) },
@@ -43,11 +58,21 @@ const MODEL_COLUMNS: readonly UnnestColumn<ModelRecord>[] = [
   { name: 'passes', kind: 'int4', value: (m) => integerText(m.passes ?? 1, 'passes') },
   f8('estimated_digits', (m) => m.solution.estimatedDigits),
   { name: 'refinement_steps', kind: 'int4', value: (m) => integerText(m.solution.refinementSteps, 'refinementSteps') },
+  // The coefficients, one array per column (the coefficients view shows them one row per term).
+  { name: 'terms', kind: 'text[]', value: (m) => JSON.stringify(m.solution.coefficients.map((c) => c.term)) },
+  { name: 'term_aliased', kind: 'bool[]', value: (m) => `{${m.solution.coefficients.map((c) => (c.aliased ? 't' : 'f')).join(',')}}` },
+  f8s('estimates', (c) => c.estimate),
+  f8s('std_errors', (c) => c.stdError),
+  f8s('t_values', (c) => c.t),
+  f8s('p_values', (c) => c.p),
+  f8s('ci_lows', (c) => c.ciLow),
+  f8s('ci_highs', (c) => c.ciHigh),
+  f8s('vifs', (c) => c.vif),
 ];
 
 /**
- * Inserts one batch of models of a run in a single statement and returns their ids by
- * segment key (RETURNING order is not promised to follow the input, the key is unique).
+ * Inserts one batch of models of a run, with their coefficients as arrays, in a single
+ * statement.
  */
 export async function insertModels(
   trx: Kysely<StoreDatabase>,
@@ -55,8 +80,8 @@ export async function insertModels(
   runId: number,
   fitName: string,
   models: readonly ModelRecord[],
-): Promise<Map<string, string>> {
-  if (models.length === 0) return new Map();
+): Promise<void> {
+  if (models.length === 0) return;
   const insert = unnestInsert(
     schema,
     'models',
@@ -67,7 +92,5 @@ export async function insertModels(
     MODEL_COLUMNS,
     models,
   );
-  const result = await sql<{ model_id: string | number; segment_key: string }>`${insert}
-    returning model_id, segment_key`.execute(trx);
-  return new Map(result.rows.map((r) => [r.segment_key, String(r.model_id)]));
+  await insert.execute(trx);
 }

@@ -1,7 +1,5 @@
 import { sql } from 'kysely';
 import type { Kysely } from 'kysely';
-import { insertCoefficients } from './insert-coefficients.js';
-import type { CoefficientRow } from './insert-coefficients.js';
 import { insertModels } from './insert-models.js';
 import type { ModelRecord } from './model-record.js';
 import { runIdText } from './run-id.js';
@@ -27,12 +25,11 @@ export interface RunResult {
 
 /** Options of {@link publishRun}. */
 export interface PublishOptions {
-  /** Models per INSERT statement (their coefficients follow in statements of at most 50 000 rows). Default 5000. */
+  /** Models per INSERT statement (each with its coefficients as arrays). Default 5000. */
   readonly batchSize?: number;
 }
 
 const DEFAULT_BATCH_SIZE = 5000;
-const COEFFICIENT_BATCH_ROWS = 50_000;
 
 
 /**
@@ -95,8 +92,7 @@ export async function writeRunResult(
   const flush = async () => {
     if (batch.length === 0) return;
     try {
-      const ids = await insertModels(trx, schema, runId, run.fit_name, batch);
-      await insertCoefficientsOf(trx, schema, runId, batch, ids);
+      await insertModels(trx, schema, runId, run.fit_name, batch);
     } catch (error) {
       throw explainInsertFailure(error, runId, batch);
     }
@@ -125,26 +121,6 @@ export async function writeRunResult(
     })
     .where('run_id', '=', runIdText(runId))
     .execute();
-}
-
-async function insertCoefficientsOf(
-  trx: Kysely<StoreDatabase>,
-  schema: string,
-  runId: number,
-  models: readonly ModelRecord[],
-  ids: ReadonlyMap<string, string>,
-): Promise<void> {
-  let rows: CoefficientRow[] = [];
-  for (const model of models) {
-    const modelId = ids.get(model.segmentKey);
-    if (modelId === undefined) throw new Error(`no model id came back for segment key "${model.segmentKey}"`);
-    model.solution.coefficients.forEach((coefficient, termIndex) => rows.push({ modelId, termIndex, coefficient }));
-    if (rows.length >= COEFFICIENT_BATCH_ROWS) {
-      await insertCoefficients(trx, schema, runId, rows);
-      rows = [];
-    }
-  }
-  await insertCoefficients(trx, schema, runId, rows);
 }
 
 function checkResult(result: RunResult): void {

@@ -2,7 +2,7 @@ import { sql } from 'kysely';
 import type { RawBuilder } from 'kysely';
 
 /** How one column travels: the array type it is bound as, and how it is read back out. */
-export type UnnestKind = 'text' | 'float8' | 'int8' | 'int4' | 'bool' | 'jsonb' | 'text[]';
+export type UnnestKind = 'text' | 'float8' | 'int8' | 'int4' | 'bool' | 'jsonb' | 'text[]' | 'float8[]' | 'bool[]';
 
 /** A column filled from one array parameter. */
 export interface UnnestColumn<R> {
@@ -18,7 +18,7 @@ export interface ConstantColumn {
   readonly value: RawBuilder<unknown>;
 }
 
-// jsonb and text[] travel as text: jsonb because JSON text is exact for strings, text[] because
+// jsonb and the array kinds travel as text: jsonb because JSON text is exact for strings, text[] because
 // unnest() flattens a two-dimensional array instead of yielding one array per row.
 const PARAM_TYPE: Record<UnnestKind, string> = {
   text: 'text[]',
@@ -28,11 +28,16 @@ const PARAM_TYPE: Record<UnnestKind, string> = {
   bool: 'boolean[]',
   jsonb: 'text[]',
   'text[]': 'text[]',
+  'float8[]': 'text[]',
+  'bool[]': 'text[]',
 };
 
 function readBack(kind: UnnestKind, ref: RawBuilder<unknown>): RawBuilder<unknown> {
   if (kind === 'jsonb') return sql`${ref}::jsonb`;
   if (kind === 'text[]') return sql`array(select jsonb_array_elements_text(${ref}::jsonb))`;
+  // Number and boolean arrays travel as array literals ({1.5,NaN,NULL}): no names to escape.
+  if (kind === 'float8[]') return sql`${ref}::float8[]`;
+  if (kind === 'bool[]') return sql`${ref}::boolean[]`;
   return ref;
 }
 

@@ -136,14 +136,18 @@ function expectedCoefficients(m: ModelRecord) {
   }));
 }
 
+/** Columns of models that hold the coefficients (migration 0007); they are read through the coefficients view. */
+const COEFFICIENT_ARRAYS = ['terms', 'term_aliased', 'estimates', 'std_errors', 't_values', 'p_values', 'ci_lows', 'ci_highs', 'vifs'];
+
 async function modelsOf(runId: number) {
-  return db
+  const rows = await db
     .withSchema(SCHEMA)
     .selectFrom('models')
     .selectAll()
     .where('run_id', '=', String(runId))
     .orderBy('segment_key')
     .execute();
+  return rows.map((r) => Object.fromEntries(Object.entries(r).filter(([k]) => !COEFFICIENT_ARRAYS.includes(k))) as typeof r);
 }
 
 async function coefficientsOf(modelId: string) {
