@@ -20,6 +20,7 @@ import { AUTO_TARGET_DIGITS, certifyDigits } from './accuracy-passes.js';
 import { readPass } from './read-pass.js';
 import { previousSolutions } from './refit-anchors.js';
 import { toolVersion } from './tool-version.js';
+import { collectGarbage, MODELS_PER_COLLECTION } from './collect-garbage.js';
 
 /** The spec file could not be read (missing, unreadable): a usage error, not a failed fit. */
 export class SpecFileError extends Error {
@@ -205,6 +206,7 @@ export function publishable(
     let n = 0;
     for (const m of out.models()) {
       if ((++n & 1023) === 0) req.signal?.throwIfAborted();
+      if (n % MODELS_PER_COLLECTION === 0) collectGarbage();
       req.onModel?.(m);
       if (kept.length < keep) kept.push(m);
       yield { segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes };
@@ -321,6 +323,8 @@ export async function readAndSolve(
       ? solveExtended(s.acc, { confidence: spec.confidence })
       : solve(s.acc, { confidence: spec.confidence });
   const states = all.states();
+  // The read's garbage (blocks, key buffers) goes before the models' comes.
+  if (states.length >= MODELS_PER_COLLECTION) collectGarbage();
   // Solutions held across the passes: only of the models the passes after the first take up
   // (auto: short of the target digits; extended refit: every solved model). The others are
   // solved as they are published.
