@@ -36,7 +36,7 @@ export async function loadReportRun(
     });
   if (run === undefined) throw await noSucceededRun(db, schema, fit);
 
-  const [newer, modelRows, coefficientRows] = await Promise.all([
+  const [newer, modelRows] = await Promise.all([
     store
       .selectFrom('runs')
       .select(['run_id', 'status', 'error_message'])
@@ -45,33 +45,52 @@ export async function loadReportRun(
       .orderBy('run_id')
       .execute(),
     store.selectFrom('models').selectAll().where('run_id', '=', run.run_id).orderBy('segment_key').execute(),
-    store
+  ]);
+
+  // Coefficients come as arrays on the model rows (migration 0007); a run published before
+  // keeps them as rows of the coefficients view.
+  const byModel = new Map<string, ReportCoefficient[]>();
+  if (modelRows.some((m) => m.terms === null)) {
+    const coefficientRows = await store
       .selectFrom('coefficients')
       .selectAll()
       .where('run_id', '=', run.run_id)
       .orderBy('model_id')
       .orderBy('term_index')
-      .execute(),
-  ]);
-
-  const byModel = new Map<string, ReportCoefficient[]>();
-  for (const c of coefficientRows) {
-    const id = String(c.model_id);
-    let list = byModel.get(id);
-    if (list === undefined) byModel.set(id, (list = []));
-    list.push({
-      termIndex: c.term_index,
-      term: c.term,
-      aliased: c.aliased,
-      estimate: num(c.estimate),
-      stdError: num(c.std_error),
-      t: num(c.t),
-      p: num(c.p),
-      ciLow: num(c.ci_low),
-      ciHigh: num(c.ci_high),
-      vif: num(c.vif),
-    });
+      .execute();
+    for (const c of coefficientRows) {
+      const id = String(c.model_id);
+      let list = byModel.get(id);
+      if (list === undefined) byModel.set(id, (list = []));
+      list.push({
+        termIndex: c.term_index,
+        term: c.term,
+        aliased: c.aliased,
+        estimate: num(c.estimate),
+        stdError: num(c.std_error),
+        t: num(c.t),
+        p: num(c.p),
+        ciLow: num(c.ci_low),
+        ciHigh: num(c.ci_high),
+        vif: num(c.vif),
+      });
+    }
   }
+  const coefficientsOf = (m: (typeof modelRows)[number]): ReportCoefficient[] => {
+    if (m.terms === null) return byModel.get(String(m.model_id)) ?? [];
+    return m.terms.map((term, i) => ({
+      termIndex: i,
+      term,
+      aliased: m.term_aliased?.[i] === true,
+      estimate: num(m.estimates?.[i]),
+      stdError: num(m.std_errors?.[i]),
+      t: num(m.t_values?.[i]),
+      p: num(m.p_values?.[i]),
+      ciLow: num(m.ci_lows?.[i]),
+      ciHigh: num(m.ci_highs?.[i]),
+      vif: num(m.vifs?.[i]),
+    }));
+  };
   const keyNames = keyNamesOf(run.spec_text);
   const models = modelRows.map(
     (m): ReportModel => ({
@@ -103,7 +122,7 @@ export async function loadReportRun(
       bic: num(m.bic),
       conditionNumber: num(m.condition_number),
       aliasedTerms: m.aliased_terms ?? [],
-      coefficients: byModel.get(String(m.model_id)) ?? [],
+      coefficients: coefficientsOf(m),
     }),
   );
 

@@ -1,3 +1,4 @@
+import { renderConditionSummary } from './many-segments.js';
 import { conditionChartSpec, CONDITION_WATCH } from './condition-chart.js';
 import type { ConditionPoint } from './condition-chart.js';
 import { escapeHtml } from './escape-html.js';
@@ -12,7 +13,7 @@ const SEGMENTS_LISTED = 12;
  * Condition numbers per segment (chart) and the aliased terms of the segments that have any
  * (table, one row per distinct set of aliased terms).
  */
-export async function renderConditioningSection(models: readonly ReportModel[], segmentColumns: readonly string[]): Promise<string> {
+export async function renderConditioningSection(models: readonly ReportModel[], segmentColumns: readonly string[], many = false): Promise<string> {
   const out: string[] = ['<section id="conditioning">', '<h2>Conditioning and aliased terms</h2>'];
   out.push(
     `<p class="lead">The condition number of the column-scaled design measures how nearly the estimated terms are linear combinations of each other. ` +
@@ -24,7 +25,10 @@ export async function renderConditioningSection(models: readonly ReportModel[], 
     .map((m) => ({ segment: m.shortLabel, condition: m.conditionNumber!, aliased: m.aliasedTerms.length }));
   const missing = models.length - points.length;
   out.push('<div class="charts">');
-  if (points.length > 0) {
+  if (many) {
+    // A point per segment would not be read at this count: the distribution, the largest among the standouts.
+    out.push(renderConditionSummary(models));
+  } else if (points.length > 0) {
     const caption = missing > 0 ? `No condition number for ${missing} segment${missing === 1 ? '' : 's'} (nothing estimated).` : undefined;
     out.push(await renderFigure(conditionChartSpec(points, segmentTitleOf(segmentColumns)), 'condition number per segment', caption, 'chart-condition'));
   } else {

@@ -11,13 +11,22 @@ const OPEN_SEGMENTS = 5;
  * rounded for reading; every cell keeps the stored value in `data-value`. With more than a
  * few segments an overview table links to each block.
  */
-export function renderModelSection(models: readonly ReportModel[]): string {
+export function renderModelSection(models: readonly ReportModel[], many?: { total: number; fitName: string }): string {
   const out: string[] = ['<section id="models">', '<h2>Models and coefficients by segment</h2>'];
-  out.push(
-    `<p class="lead">${models.length} model${models.length === 1 ? '' : 's'}, in segment-key order${
-      models.length > OPEN_SEGMENTS ? `; the first ${OPEN_SEGMENTS} are open, click a segment to open or close it` : ''
-    }.</p>`,
-  );
+  if (many !== undefined) {
+    // Many segments: tables of the segments that stand out only (see many-segments.ts).
+    out.push(
+      `<p class="lead">${formatCount(models.length)} of ${formatCount(many.total)} models: the segments that stand out (see <a href="#standouts">why</a>), in segment-key order. ` +
+        `To put any other segment here, with its residual plots, run <code>rowfold report ${escapeHtml(many.fitName)} --segment KEY</code> ` +
+        '(KEY: the segment\'s value, <code>col=value</code>, or its key as in <code>models.segment_key</code>); every model is in the result tables.</p>',
+    );
+  } else {
+    out.push(
+      `<p class="lead">${models.length} model${models.length === 1 ? '' : 's'}, in segment-key order${
+        models.length > OPEN_SEGMENTS ? `; the first ${OPEN_SEGMENTS} are open, click a segment to open or close it` : ''
+      }.</p>`,
+    );
+  }
   if (models.length > OPEN_SEGMENTS) out.push(renderOverview(models));
   models.forEach((m, i) => out.push(renderModel(m, i, i < OPEN_SEGMENTS)));
   out.push('</section>');

@@ -9,6 +9,7 @@ import { renderResidualSection } from './render-residual-section.js';
 import type { ResidualOutcome } from './render-residual-section.js';
 import type { ReportModel, ReportRun } from './report-run.js';
 import { REPORT_CSS } from './report-styles.js';
+import { MANY_SEGMENTS, renderDistributionSection, standouts } from './many-segments.js';
 
 /** Everything one report shows. */
 export interface ReportContent {
@@ -36,12 +37,15 @@ const SECTIONS: readonly [string, string][] = [
 export async function renderReportHtml(content: ReportContent): Promise<string> {
   const { run, context } = content;
   const title = `rowfold · fit ${run.fitName} · run ${run.runId}`;
+  const many = run.models.length > MANY_SEGMENTS;
+  // Many segments: distributions, the segments that stand out and their tables only.
+  const shown = many ? standouts(run.models, content.residualModel) : [];
   const sections = [
     renderAuditSection(run, context),
-    renderModelSection(run.models),
-    await renderAcrossSegmentsSection(run.models, run.segmentColumns),
+    many ? renderModelSection(shown.map((s) => s.model), { total: run.models.length, fitName: run.fitName }) : renderModelSection(run.models),
+    many ? renderDistributionSection(run.models, shown) : await renderAcrossSegmentsSection(run.models, run.segmentColumns),
     await renderResidualSection(content.residualModel, content.residuals),
-    await renderConditioningSection(run.models, run.segmentColumns),
+    await renderConditioningSection(run.models, run.segmentColumns, many),
     renderCautionsSection(run.models),
   ];
   const models = run.models.length;

@@ -90,9 +90,19 @@ export interface ModelsTable {
   estimated_digits: number | null;
   /** Refinement steps the model took; migration 0006. */
   refinement_steps: ColumnType<number, number | undefined, number>;
+  /** The coefficients as arrays, element i for term i (migration 0007; null for models of earlier runs). */
+  terms: ColumnType<string[] | null, never, never>;
+  term_aliased: ColumnType<boolean[] | null, never, never>;
+  estimates: ColumnType<(number | null)[] | null, never, never>;
+  std_errors: ColumnType<(number | null)[] | null, never, never>;
+  t_values: ColumnType<(number | null)[] | null, never, never>;
+  p_values: ColumnType<(number | null)[] | null, never, never>;
+  ci_lows: ColumnType<(number | null)[] | null, never, never>;
+  ci_highs: ColumnType<(number | null)[] | null, never, never>;
+  vifs: ColumnType<(number | null)[] | null, never, never>;
 }
 
-/** `coefficients`: one row per model and term. */
+/** `coefficients` (a view since migration 0007): one row per model and term. */
 export interface CoefficientsTable {
   model_id: Int8;
   run_id: Int8;
