@@ -4,8 +4,8 @@ import { ACCURACY_WORKLOADS, benchAccuracy } from './e2e-bench.js';
 import type { AccuracyFigure } from './e2e-bench.js';
 import { benchCompensated, benchKernels, benchRawKernels } from './kernel-bench.js';
 import type { CompensatedFigure, KernelFigure } from './kernel-bench.js';
-import { measureWorkload, WORKLOADS } from './workloads.js';
-import type { WorkloadFigure } from './workloads.js';
+import { measureReport, measureWorkload, REPORT_WORKLOAD, WORKLOADS } from './workloads.js';
+import type { ReportFigure, WorkloadFigure } from './workloads.js';
 
 // `npm run bench`: prints figures and writes bench/results.json. Targets live here, not
 // in timed unit tests: the plain-JavaScript fold must reach 2.9 GFLOP/s at p = 200 (the
@@ -60,11 +60,27 @@ for (const w of WORKLOADS.filter((x) => selected(x.name))) {
     console.log(
       `${f.name.padEnd(20)}  ${f.rows.toLocaleString('en-US').padStart(10)}  ${String(f.terms).padStart(5)}  ${String(f.parallel).padStart(5)}  ` +
         `${f.copyFloorSeconds.toFixed(2).padStart(8)}s  ${f.receiveFloorSeconds.toFixed(2).padStart(6)}s  ${f.fitSeconds.toFixed(2).padStart(5)}s  ` +
-        `${f.ratioToCopy.toFixed(2).padStart(8)} (≤ ${f.target})  ${f.ratioToReceive.toFixed(2).padStart(11)}  ${f.peakRssMb.toFixed(0).padStart(5)} MB  ` +
+        `${f.ratioToCopy.toFixed(2).padStart(8)} (≤ ${f.target})  ${f.ratioToReceive.toFixed(2).padStart(11)}  ${f.peakRssMb.toFixed(0).padStart(5)} MB${f.rssTargetMb === undefined ? '' : ` (≤ ${f.rssTargetMb})`}  ` +
         `${f.fitCpuSeconds.toFixed(1).padStart(6)}s  ${f.serverCpuSeconds === null ? '     n/a' : `${f.serverCpuSeconds.toFixed(1).padStart(8)}s`}  ${f.gflops.toFixed(1).padStart(6)}`,
     );
   } catch (err) {
     console.log(`${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
+  }
+}
+const reports: ReportFigure[] = [];
+{
+  const w = WORKLOADS.find((x) => x.name === REPORT_WORKLOAD.workload)!;
+  if (workloads.some((f) => f.name === w.name)) {
+    try {
+      const r = measureReport(w);
+      reports.push(r);
+      console.log(
+        `\nrowfold report on the ${w.name} fit (median of 3): ${r.seconds.toFixed(1)} s (≤ ${REPORT_WORKLOAD.secondsTarget}), ` +
+          `peak RSS ${r.peakRssMb.toFixed(0)} MB (≤ ${REPORT_WORKLOAD.rssTargetMb}), HTML ${r.htmlMb.toFixed(2)} MB (≤ ${REPORT_WORKLOAD.htmlTargetMb})`,
+      );
+    } catch (err) {
+      console.log(`report on ${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
+    }
   }
 }
 const accuracy: AccuracyFigure[] = [];
@@ -86,5 +102,5 @@ for (const w of ACCURACY_WORKLOADS.filter((x) => selected(x.name))) {
 }
 writeFileSync(
   new URL('../../bench/results.json', import.meta.url),
-  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, compensated, workloads, accuracy }, null, 2) + '\n',
+  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, compensated, workloads, reports, accuracy }, null, 2) + '\n',
 );

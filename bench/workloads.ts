@@ -1,5 +1,5 @@
 import { spawnSync } from 'node:child_process';
-import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync, statSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { runFit } from '../src/run/run-fit.js';
@@ -23,6 +23,8 @@ export interface Workload {
   readonly target: number;
   /** The table is an accuracy table of this kind (bench/tables.ts); else uniform columns. */
   readonly kind?: ResponseKind;
+  /** Target for the fit's peak RSS (MB), where the issue sets one. */
+  readonly rssTargetMb?: number;
 }
 
 /** What was measured for a workload (medians of the repeats; floors measured in the same run). */
@@ -50,7 +52,36 @@ export const WORKLOADS: readonly Workload[] = [
   { name: 'T20 QR', table: 'z10000000x20', kind: 'zero-intercept', rows: 10_000_000, terms: 20, segments: 1, method: 'qr', parallel: 2, target: 0.7 },
   { name: '10,000 segments QR', table: 's10000x1000x10', rows: 10_000_000, terms: 10, segments: 10_000, method: 'qr', parallel: 2, target: 0.8 },
   { name: 'T200 XᵀX', table: 'z1000000x200', kind: 'zero-intercept', rows: 1_000_000, terms: 200, segments: 1, method: 'normal', parallel: 2, target: 0.55 },
+  // Issue 12: one small model per segment, rows of the segments interleaved (g % segments).
+  { name: '100,000 segments', table: 's100000x20x3', rows: 2_000_000, terms: 3, segments: 100_000, method: 'qr', parallel: 1, target: 4, rssTargetMb: 300 },
+  { name: '1,000,000 segments', table: 's1000000x10x3', rows: 10_000_000, terms: 3, segments: 1_000_000, method: 'qr', parallel: 1, target: 4, rssTargetMb: 400 },
 ];
+
+/** The report bench of issue 12: `rowfold report` on the fit of a workload (run by measureWorkload first). */
+export const REPORT_WORKLOAD = { workload: '100,000 segments', secondsTarget: 30, rssTargetMb: 400, htmlTargetMb: 10 } as const;
+
+/** What was measured of `rowfold report` (medians of the repeats, largest RSS). */
+export interface ReportFigure {
+  readonly workload: string;
+  readonly seconds: number;
+  readonly peakRssMb: number;
+  readonly htmlMb: number;
+}
+
+/** Times `rowfold report` on a workload's fit (in a process of its own), `repeats` times. */
+export function measureReport(w: Workload, repeats = 3): ReportFigure {
+  const dir = mkdtempSync(join(tmpdir(), 'rowfold-bench-report-'));
+  const out = join(dir, 'report.html');
+  const cli = new URL('../src/cli/main.js', new URL('.', import.meta.url)).pathname;
+  const seconds: number[] = [];
+  const rss: number[] = [];
+  for (let r = 0; r < repeats; r++) {
+    const t = timed(process.execPath, [cli, 'report', `bench_${w.table}_${w.method}`, '--db', benchUrl(), '--schema', BENCH_SCHEMA, '--out', out]);
+    seconds.push(t.seconds);
+    rss.push(t.rssMb);
+  }
+  return { workload: w.name, seconds: median(seconds), peakRssMb: Math.max(...rss), htmlMb: statSync(out).size / 1e6 };
+}
 
 /** Creates a workload's table when missing. */
 async function ensureWorkloadTable(w: Workload): Promise<void> {

@@ -40,15 +40,17 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
   const many = run.models.length > MANY_SEGMENTS;
   // Many segments: distributions, the segments that stand out and their tables only.
   const shown = many ? standouts(run.models, content.residualModel) : [];
+  const models = many ? renderModelSection(shown.map((s) => s.model), { total: run.models.length, fitName: run.fitName }) : renderModelSection(run.models);
+  const across = many ? renderDistributionSection(run.models, shown) : await renderAcrossSegmentsSection(run.models, run.segmentColumns);
   const sections = [
     renderAuditSection(run, context),
-    many ? renderModelSection(shown.map((s) => s.model), { total: run.models.length, fitName: run.fitName }) : renderModelSection(run.models),
-    many ? renderDistributionSection(run.models, shown) : await renderAcrossSegmentsSection(run.models, run.segmentColumns),
+    // Many segments: the distributions first, they say what the standouts stand out from.
+    ...(many ? [across, models] : [models, across]),
     await renderResidualSection(content.residualModel, content.residuals),
     await renderConditioningSection(run.models, run.segmentColumns, many),
     renderCautionsSection(run.models),
   ];
-  const models = run.models.length;
+  const count = run.models.length;
   return [
     '<!doctype html>',
     '<html lang="en">',
@@ -62,7 +64,7 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     '<body>',
     '<header class="page">',
     `<h1>Fit ${escapeHtml(run.fitName)}</h1>`,
-    `<p>Run ${escapeHtml(run.runId)} · ${models} model${models === 1 ? '' : 's'} · ended ${escapeHtml(run.endedAt.toISOString().slice(0, 10))}</p>`,
+    `<p>Run ${escapeHtml(run.runId)} · ${count} model${count === 1 ? '' : 's'} · ended ${escapeHtml(run.endedAt.toISOString().slice(0, 10))}</p>`,
     '</header>',
     `<nav class="contents">${SECTIONS.map(([id, name]) => `<a href="#${id}">${name}</a>`).join('')}</nav>`,
     '<main>',
