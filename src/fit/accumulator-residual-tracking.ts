@@ -2,6 +2,7 @@ import { mergeResidualSums, residualSum, residualSumsLength } from '../numeric/r
 import { packedIndex } from '../numeric/packed.js';
 import type { FoldCounts, FoldLayout, RefinementAnchor } from './accumulator-state.js';
 import { foldRowsResiduals } from './accumulator-fold-residuals.js';
+import type { Float64Slab } from './float64-slab.js';
 
 /** Unit roundoff of double precision (2⁻⁵³). */
 const U = Number.EPSILON / 2;
@@ -49,7 +50,7 @@ export class ResidualTracking {
   valid: boolean;
   private static readonly scratch: FoldCounts = { rows: 0, zeroWeightRows: 0, sumWeights: 0, sumLogWeights: 0 };
 
-  constructor(q: number, anchor: RefinementAnchor | undefined, state?: TrackingState) {
+  constructor(q: number, anchor: RefinementAnchor | undefined, state?: TrackingState, slab?: Float64Slab) {
     if (state !== undefined) {
       this.anchor = { coefficients: state.coefficients.slice(), centre: state.centre };
       this.sums = state.sums.slice();
@@ -60,9 +61,10 @@ export class ResidualTracking {
       this.valid = state.valid;
       return;
     }
-    this.anchor = anchor ?? { coefficients: new Float64Array(q), centre: 0 };
-    this.sums = new Float64Array(residualSumsLength(q));
-    this.drift = new Float64Array(q);
+    const take = (n: number) => (slab === undefined ? new Float64Array(n) : slab.take(n));
+    this.anchor = anchor ?? { coefficients: take(q), centre: 0 };
+    this.sums = take(residualSumsLength(q));
+    this.drift = take(q);
     this.rssError = 0;
     this.follow = anchor === undefined;
     this.nextMove = this.follow ? FIRST_ANCHOR_ROWS : Number.POSITIVE_INFINITY;

@@ -9,6 +9,7 @@ import { foldRowsQr, mergeFactorQr } from './accumulator-fold-qr.js';
 import { foldRowsResiduals } from './accumulator-fold-residuals.js';
 import { anchorOfFactor, ResidualTracking, solvedTracking } from './accumulator-residual-tracking.js';
 import { firstRowShift, moveToShift } from './accumulator-shift.js';
+import type { Float64Slab } from './float64-slab.js';
 import type {
   AccumulatorState,
   DesignShape,
@@ -79,6 +80,7 @@ export class Accumulator {
   private readonly tracking: ResidualTracking | undefined;
   private readonly workspace: FoldWorkspace;
   private shiftBy: Float64Array | undefined;
+  private readonly slab: Float64Slab | undefined;
   private readonly counts: FoldCounts = { rows: 0, zeroWeightRows: 0, sumWeights: 0, sumLogWeights: 0 };
 
   constructor(
@@ -87,6 +89,8 @@ export class Accumulator {
       /** A function is called only when the label is needed (a hundred thousand segments need no labels made). */
       label?: string | (() => string) | undefined;
       workspace?: FoldWorkspace;
+      /** Where the factor and sums are carved from (many small segments share slabs); default arrays of their own. */
+      slab?: Float64Slab | undefined;
       method?: FoldMethod;
       precision?: FoldPrecision;
       /**
@@ -125,14 +129,16 @@ export class Accumulator {
     }
     this.labelOf = options.label;
     this.workspace = options.workspace ?? sharedWorkspace;
-    this.r = new Float64Array(folds ? packedLength(this.order) : 0);
-    this.rLow = this.precision === 'double-double' ? new Float64Array(this.r.length) : undefined;
-    this.sums = this.anchor === undefined ? undefined : new Float64Array(residualSumsLength(this.order - 1));
+    this.slab = options.slab;
+    const take = (n: number) => (options.slab === undefined ? new Float64Array(n) : options.slab.take(n));
+    this.r = take(folds ? packedLength(this.order) : 0);
+    this.rLow = this.precision === 'double-double' ? take(this.r.length) : undefined;
+    this.sums = this.anchor === undefined ? undefined : take(residualSumsLength(this.order - 1));
     if (options.track !== undefined) {
       if (this.method !== 'qr' || this.precision !== 'double' || this.pairs || !folds || this.anchor !== undefined) {
         throw new RangeError('residual tracking needs a double-precision QR factor of single values');
       }
-      this.tracking = new ResidualTracking(this.order - 1, options.track === 'follow' ? undefined : options.track);
+      this.tracking = new ResidualTracking(this.order - 1, options.track === 'follow' ? undefined : options.track, undefined, options.slab);
     }
   }
 
@@ -388,7 +394,12 @@ export class Accumulator {
       foldRowsNormal(layout, this.r, v, width, from, to, this.counts, this.workspace);
       return;
     }
-    if (this.shiftBy === undefined && this.shifts) this.shiftBy = firstRowShift(layout, v, width, from, to);
+    if (this.shiftBy === undefined && this.shifts) {
+      const shift = firstRowShift(layout, v, width, from, to);
+      // Kept in the slab with the factor (the shift lives as long).
+      if (shift === undefined || this.slab === undefined) this.shiftBy = shift;
+      else (this.shiftBy = this.slab.take(shift.length)).set(shift);
+    }
     const t = this.tracking;
     if (t === undefined) {
       foldRowsQr(layout, this.r, v, width, from, to, this.shiftBy, this.counts, this.workspace);

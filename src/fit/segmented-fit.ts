@@ -1,5 +1,6 @@
 import type { RowBlock } from '../numeric/row-block.js';
 import { Accumulator } from './accumulator.js';
+import { Float64Slab } from './float64-slab.js';
 import type { DesignShape, FoldMethod, FoldPrecision, RefinementAnchor } from './accumulator.js';
 
 /** How the accumulators of a SegmentedFit fold, and which segments it keeps. */
@@ -75,6 +76,10 @@ export class SegmentedFit {
    * folded a few dozen at a time; {@link states} and {@link merge} fold what is left.
    */
   private readonly held = new Map<SegmentState, Held>();
+  /** The segments' factors and sums, in shared buffers (see Float64Slab). */
+  private readonly slab = new Float64Slab();
+  /** The held rows, in buffers of their own kind: let go at {@link flush}. */
+  private heldSlab = new Float64Slab();
 
   constructor(shape: DesignShape, keyNames: readonly string[] = [], options: SegmentedFitOptions = {}) {
     this.shape = shape;
@@ -150,7 +155,7 @@ export class SegmentedFit {
   private heldFor(s: SegmentState, width: number): Held {
     let h = this.held.get(s);
     if (h === undefined) {
-      h = { values: new Float64Array(this.heldRowsOf(width) * width), rows: 0 };
+      h = { values: this.heldSlab.take(this.heldRowsOf(width) * width), rows: 0 };
       this.held.set(s, h);
     }
     return h;
@@ -179,6 +184,7 @@ export class SegmentedFit {
     }
     this.held.clear();
     this.heldById = [];
+    this.heldSlab = new Float64Slab();
   }
 
   /** Merges another instance (another partition) into this one, segment by segment. */
@@ -202,7 +208,8 @@ export class SegmentedFit {
       const { method, precision, pairs, factor } = this.options;
       const anchor = this.options.anchors?.get(keyText);
       const track = this.options.track instanceof Map ? this.options.track.get(keyText) : this.options.track;
-      s = { key, keyText, acc: new Accumulator(this.shape, { label, method, precision, pairs, anchor, track, ...(factor === undefined ? {} : { factor }) }) };
+      const slab = this.slab;
+      s = { key, keyText, acc: new Accumulator(this.shape, { label, slab, method, precision, pairs, anchor, track, ...(factor === undefined ? {} : { factor }) }) };
       this.segments.set(keyText, s);
     }
     return s;
