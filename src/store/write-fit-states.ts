@@ -22,7 +22,23 @@ export async function writeFitStates(
   checkSchemaName(schema);
   const table = sql.id(schema, 'fit_states');
   await sql`delete from ${table} where fit_name = ${fitName}`.execute(trx);
-  if (states.length === 0) return;
+  // In batches: one statement per batch, so the statement text of 100,000 segments' factors is never built at once.
+  for (let start = 0; start < states.length; start += STATES_PER_STATEMENT) {
+    await insertStates(trx, schema, fitName, runId, states.slice(start, start + STATES_PER_STATEMENT));
+  }
+}
+
+/** Segment states per INSERT statement. */
+const STATES_PER_STATEMENT = 5000;
+
+async function insertStates(
+  trx: Kysely<StoreDatabase>,
+  schema: string,
+  fitName: string,
+  runId: number,
+  states: readonly FitStateRecord[],
+): Promise<void> {
+  const table = sql.id(schema, 'fit_states');
   const col = <T>(get: (s: FitStateRecord) => T) => states.map(get);
   await sql`
     insert into ${table} (fit_name, segment_key, bucket, design_hash, segment, run_id, watermark, watermark_type,

@@ -126,4 +126,33 @@ describe(`${SEGMENTS.toLocaleString('en-US')} segments through rowfold fit (issu
       await tdb.exec('drop trigger fail_on_last on rowfold.models; drop function rowfold.fail_on_last();');
     }
   }, 300_000);
+
+  it('an incremental refit of every segment (state written and read in batches) equals a full fit to 1e-10', async () => {
+    await tdb.query(`create table meters_w as select meter, x1, x2, y, 1 as batch from meters`);
+    const spec = writeSpec({ name: 'meters_refit', source: 'meters_w', response: 'y', terms: TERMS, segment_by: 'meter', watermark: 'batch' });
+    const first = await runCli(['fit', spec, '--db', tdb.url]);
+    expect(first.code, first.stderr).toBe(0);
+    const stored = await tdb.query<{ n: string }>(`select count(*) as n from rowfold.fit_states where fit_name = 'meters_refit'`);
+    expect(Number(stored.rows[0]!.n)).toBe(SEGMENTS);
+    // New rows for about a quarter of the old ones (most segments get some), then a refit that reads only them.
+    await tdb.query(`insert into meters_w select meter, x1 * 0.9, x2 + 0.1, y + 0.05, 2 from meters where (hashtext(meter || x1::text) & 7) < 2`);
+    const second = await runCli(['fit', spec, '--db', tdb.url, '--json']);
+    expect(second.code, second.stderr).toBe(0);
+    const doc = JSON.parse(second.stdout) as { run: { refit: string; rows_read: number }; models: { segment: { meter: string }; coefficients: { estimate: number }[] }[] };
+    expect(doc.run.refit).toBe('incremental');
+    const added = await tdb.query<{ n: string }>('select count(*) as n from meters_w where batch = 2');
+    expect(doc.run.rows_read).toBe(Number(added.rows[0]!.n));
+    const full = await runCli(['fit', writeSpec({ name: 'meters_full', source: 'meters_w', response: 'y', terms: TERMS, segment_by: 'meter' }), '--db', tdb.url, '--json']);
+    expect(full.code, full.stderr).toBe(0);
+    const all = JSON.parse(full.stdout) as typeof doc;
+    expect(doc.models).toHaveLength(SEGMENTS);
+    expect(all.models).toHaveLength(SEGMENTS);
+    doc.models.forEach((m, i) => {
+      const o = all.models[i]!;
+      expect(m.segment).toEqual(o.segment);
+      m.coefficients.forEach((c, j) => {
+        if (!close(c.estimate, o.coefficients[j]!.estimate)) throw new Error(`segment ${m.segment.meter}: ${c.estimate} against ${o.coefficients[j]!.estimate}`);
+      });
+    });
+  }, 600_000);
 });
