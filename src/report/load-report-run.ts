@@ -1,4 +1,4 @@
-import type { Kysely } from 'kysely';
+import type { Kysely, Selectable } from 'kysely';
 import type { FitStatus } from '../fit/fit-solution.js';
 import { checkSchemaName } from '../store/index.js';
 import type { StoreDatabase } from '../store/index.js';
@@ -36,47 +36,10 @@ export async function loadReportRun(
     });
   if (run === undefined) throw await noSucceededRun(db, schema, fit);
 
-  const [newer, modelRows] = await Promise.all([
-    store
-      .selectFrom('runs')
-      .select(['run_id', 'status', 'error_message'])
-      .where('fit_name', '=', fit)
-      .where('run_id', '>', run.run_id)
-      .orderBy('run_id')
-      .execute(),
-    store.selectFrom('models').selectAll().where('run_id', '=', run.run_id).orderBy('segment_key').execute(),
-  ]);
-
-  // Coefficients come as arrays on the model rows (migration 0007); a run published before
-  // keeps them as rows of the coefficients view.
+  const keyNames = keyNamesOf(run.spec_text);
+  // Coefficients of models from before migration 0007, which keep them as rows (filled below).
   const byModel = new Map<string, ReportCoefficient[]>();
-  if (modelRows.some((m) => m.terms === null)) {
-    const coefficientRows = await store
-      .selectFrom('coefficients')
-      .selectAll()
-      .where('run_id', '=', run.run_id)
-      .orderBy('model_id')
-      .orderBy('term_index')
-      .execute();
-    for (const c of coefficientRows) {
-      const id = String(c.model_id);
-      let list = byModel.get(id);
-      if (list === undefined) byModel.set(id, (list = []));
-      list.push({
-        termIndex: c.term_index,
-        term: c.term,
-        aliased: c.aliased,
-        estimate: num(c.estimate),
-        stdError: num(c.std_error),
-        t: num(c.t),
-        p: num(c.p),
-        ciLow: num(c.ci_low),
-        ciHigh: num(c.ci_high),
-        vif: num(c.vif),
-      });
-    }
-  }
-  const coefficientsOf = (m: (typeof modelRows)[number]): ReportCoefficient[] => {
+  function coefficientsOf(m: ModelRow): ReportCoefficient[] {
     if (m.terms === null) return byModel.get(String(m.model_id)) ?? [];
     return m.terms.map((term, i) => ({
       termIndex: i,
@@ -90,10 +53,9 @@ export async function loadReportRun(
       ciHigh: num(m.ci_highs?.[i]),
       vif: num(m.vifs?.[i]),
     }));
-  };
-  const keyNames = keyNamesOf(run.spec_text);
-  const models = modelRows.map(
-    (m): ReportModel => ({
+  }
+  function toReportModel(m: ModelRow): ReportModel {
+    return {
       modelId: String(m.model_id),
       segment: m.segment,
       segmentKey: m.segment_key,
@@ -123,8 +85,62 @@ export async function loadReportRun(
       conditionNumber: num(m.condition_number),
       aliasedTerms: m.aliased_terms ?? [],
       coefficients: coefficientsOf(m),
-    }),
-  );
+    };
+  }
+
+
+  const newer = await store
+    .selectFrom('runs')
+    .select(['run_id', 'status', 'error_message'])
+    .where('fit_name', '=', fit)
+    .where('run_id', '>', run.run_id)
+    .orderBy('run_id')
+    .execute();
+  // Pages of models in key order: the driver's rows of one page at a time, not of 100,000 models.
+  const modelRows: ModelRow[] = [];
+  const models: ReportModel[] = [];
+  for (let after: string | null = null; ; ) {
+    let page = store.selectFrom('models').selectAll().where('run_id', '=', run.run_id);
+    if (after !== null) page = page.where('segment_key', '>', after);
+    const rows = await page.orderBy('segment_key').limit(MODELS_PER_PAGE).execute();
+    for (const m of rows) {
+      if (m.terms === null) modelRows.push(m);
+      else models.push(toReportModel(m));
+    }
+    if (rows.length < MODELS_PER_PAGE) break;
+    after = rows[rows.length - 1]!.segment_key;
+  }
+
+  // Coefficients come as arrays on the model rows (migration 0007); a run published before
+  // keeps them as rows of the coefficients view.
+  if (modelRows.length > 0) {
+    const coefficientRows = await store
+      .selectFrom('coefficients')
+      .selectAll()
+      .where('run_id', '=', run.run_id)
+      .orderBy('model_id')
+      .orderBy('term_index')
+      .execute();
+    for (const c of coefficientRows) {
+      const id = String(c.model_id);
+      let list = byModel.get(id);
+      if (list === undefined) byModel.set(id, (list = []));
+      list.push({
+        termIndex: c.term_index,
+        term: c.term,
+        aliased: c.aliased,
+        estimate: num(c.estimate),
+        stdError: num(c.std_error),
+        t: num(c.t),
+        p: num(c.p),
+        ciLow: num(c.ci_low),
+        ciHigh: num(c.ci_high),
+        vif: num(c.vif),
+      });
+    }
+  }
+  // A run published before migration 0007 has all its coefficients as rows (a run is one or the other).
+  for (const m of modelRows) models.push(toReportModel(m));
 
   return {
     schema,
@@ -147,6 +163,11 @@ export async function loadReportRun(
     models,
   };
 }
+
+/** Models read per query. */
+const MODELS_PER_PAGE = 5000;
+
+type ModelRow = Selectable<StoreDatabase['models']>;
 
 /** A double or bigint column as a number: drivers hand int8 (and some doubles) over as text. */
 function num(v: unknown): number | null {

@@ -14,8 +14,8 @@ import { writeSpec } from '../support/run-cli.js';
 // and key table): the bound is stated per added segment.
 
 const cli = fileURLToPath(new URL('../../dist/src/cli/main.js', import.meta.url));
-/** Peak RSS the 180,000 added segments may add, per segment (bytes). */
-const PER_SEGMENT_BOUND_BYTES = 3000;
+/** Peak RSS the 180,000 added segments may add, per segment (bytes; measured 2,800 on a loaded machine, default accuracy). */
+const PER_SEGMENT_BOUND_BYTES = 3500;
 
 let tdb: TestDatabase;
 beforeAll(async () => {
@@ -56,5 +56,5 @@ it.skipIf(ON_EMBEDDED || !existsSync('/usr/bin/time') || !existsSync(cli))(
     console.log(`peak RSS: 20,000 segments ${small.toFixed(0)} MB, 200,000 segments ${large.toFixed(0)} MB (${perSegment.toFixed(0)} bytes per added segment)`);
     expect(perSegment).toBeLessThan(PER_SEGMENT_BOUND_BYTES);
   },
-  600_000,
+  1_200_000,
 );
