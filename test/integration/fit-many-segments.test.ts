@@ -100,6 +100,9 @@ describe(`${SEGMENTS.toLocaleString('en-US')} segments through rowfold fit (issu
   }, 300_000);
 
   it('a failure while the last batch of models is written leaves no model of the run, and the run failed', async () => {
+    // The result schema exists (made by a small fit, should this test run alone).
+    const maker = await runCli(['fit', writeSpec({ name: 'schema_maker', source: 'select x1, y from meters limit 10', response: 'y', terms: ['x1'] }), '--db', tdb.url]);
+    expect(maker.code, maker.stderr).toBe(0);
     // The last segment's model is in the third batch of 5,000: the first two are written by then.
     await tdb.exec(`
       create function rowfold.fail_on_last() returns trigger language plpgsql as $$
