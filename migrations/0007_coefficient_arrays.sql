@@ -3,7 +3,9 @@
 -- of a hundred thousand segments writes a hundred thousand rows, not half a million with a
 -- foreign-key check each. Readers keep the long form: `coefficients` becomes a view with the
 -- same columns, one row per model and term, over the rows of earlier runs (kept as they were, in
--- coefficient_rows) and the arrays of later ones.
+-- coefficient_rows) and the arrays of later ones. Filter the view by run_id or model_id with
+-- constants (they reach into it and use the keys); a join condition alone does not, so join
+-- through LATERAL as latest_coefficients does.
 
 alter table models
   add column terms text[],
@@ -53,7 +55,9 @@ where m.terms is not null;
 
 comment on view coefficients is 'One row per model and term, in the order of the terms in the model.';
 
--- latest_coefficients read the table by its identity: point it at the view (same columns).
+-- latest_coefficients read the table by its identity: point it at the coefficients of each
+-- latest model through LATERAL, so that a dashboard reading one fit reads that fit's models by
+-- their keys (a join with the coefficients view would unnest every model of every run first).
 create or replace view latest_coefficients as
 select
   lm.fit_name, lm.segment, lm.segment_key,
@@ -61,7 +65,19 @@ select
   c.ci_low, c.ci_high, c.vif,
   lm.run_started_at, lm.run_ended_at
 from latest_models lm
-join coefficients c on c.model_id = lm.model_id;
+cross join lateral (
+  select cr.model_id, cr.run_id, cr.term_index, cr.term, cr.aliased, cr.estimate, cr.std_error, cr.t, cr.p,
+    cr.ci_low, cr.ci_high, cr.vif
+  from coefficient_rows cr
+  where cr.model_id = lm.model_id
+  union all
+  select m.model_id, m.run_id, (u.ord - 1)::integer, u.term, u.aliased, u.estimate, u.std_error, u.t, u.p,
+    u.ci_low, u.ci_high, u.vif
+  from models m
+  cross join lateral unnest(m.terms, m.term_aliased, m.estimates, m.std_errors, m.t_values, m.p_values,
+    m.ci_lows, m.ci_highs, m.vifs) with ordinality as u(term, aliased, estimate, std_error, t, p, ci_low, ci_high, vif, ord)
+  where m.model_id = lm.model_id and m.terms is not null
+) c;
 
 -- The view's columns mean what the table's did: copy their comments.
 do $$

@@ -38,6 +38,8 @@ export async function loadModelEstimates(
       from ${sql.id(schema, 'models')} m
       join ${sql.id(schema, 'coefficients')} c on c.model_id = m.model_id
      where m.run_id = any(${sql.val([...runIds])}::bigint[])
+       -- The run filter on the view's side too: it reaches inside the view (a join condition does not).
+       and c.run_id = any(${sql.val([...runIds])}::bigint[])
      group by m.model_id, m.run_id, m.segment_key, m.status, m.rows, m.estimated_digits`.execute(db);
   for (const r of result.rows) {
     out.set(`${Number(r.run_id)}\u0000${r.segment_key}`, {
