@@ -21,7 +21,8 @@ import { postgresIds, ThrowawayCluster } from '../support/throwaway-cluster.js';
 // failed run leaves only its failed `runs` row, no models) and nothing is lost (the next run
 // succeeds, and a run left running is marked failed by it). Faults that stop or fill a server do
 // so to a throwaway cluster of this file's own (port 55410), never to the shared server.
-const CLUSTER_PORT = 55410;
+// A session running tests beside others sets its own port (ROWFOLD_TEST_CLUSTER_PORT).
+const CLUSTER_PORT = Number(process.env['ROWFOLD_TEST_CLUSTER_PORT'] ?? 55410);
 
 let tdb: TestDatabase;
 let cluster: ThrowawayCluster | undefined;
@@ -188,7 +189,7 @@ describe.skipIf(ON_EMBEDDED)('fault catalogue (server only: faults of a server, 
     const store = createStoreDb(new pg.Pool({ connectionString: url, max: 1 }));
     await migrate(store, 'space');
     await store.destroy();
-    await admin.query('alter table space.models set tablespace small; alter table space.coefficients set tablespace small');
+    await admin.query('alter table space.models set tablespace small; alter table space.coefficient_rows set tablespace small');
     await admin.query('create table filler (t text) tablespace small');
     const full = await admin.query(`insert into filler select repeat(md5(g::text), 30) from generate_series(1, 100000) g`).catch((e: unknown) => e);
     expect((full as { code?: string }).code).toBe('53100');
@@ -208,7 +209,7 @@ describe.skipIf(ON_EMBEDDED)('fault catalogue (server only: faults of a server, 
     ]);
   });
 
-  it('the result write fails for lack of rights (INSERT on the coefficients revoked): no models, a failed run row naming the cause', async () => {
+  it('the result write fails for lack of rights (INSERT on the models revoked): no models, a failed run row naming the cause', async () => {
     const role = `rowfold_f_${randomSuffix()}`;
     roles.push(role);
     await withAdminClient(tdb.name, async (c) => {
@@ -219,16 +220,16 @@ describe.skipIf(ON_EMBEDDED)('fault catalogue (server only: faults of a server, 
     const spec = writeSpec({ name: 'rights', schema: 'rights', source: 'obs', segment_by: 'seg', response: 'y', terms: ['x', 'z'] });
     const first = await runCli(['fit', spec, '--db', tdb.urlAs(role)]);
     expect(first.code, first.stderr).toBe(0);
-    await tdb.query(`revoke insert on rights.coefficients from ${pg.escapeIdentifier(role)}`);
+    await tdb.query(`revoke insert on rights.models from ${pg.escapeIdentifier(role)}`);
     const res = await runCli(['fit', spec, '--db', tdb.urlAs(role)]);
     expect(res.code).toBe(1);
-    expect(res.stderr).toMatch(/permission denied for table coefficients/);
+    expect(res.stderr).toMatch(/permission denied for table models/);
     const runs = await runsOf(tdb.url, 'rights', 'rights');
     expect(runs.map((r) => [r.status, r.models])).toEqual([
       ['succeeded', 3],
       ['failed', 0],
     ]);
-    expect(runs[1]!.error_message).toBe('[42501] permission denied for table coefficients');
+    expect(runs[1]!.error_message).toBe('[42501] permission denied for table models');
   });
 
   for (const setting of ['statement_timeout', 'lock_timeout'] as const) {
