@@ -9,6 +9,8 @@ import type { SolveOptions } from './solve.js';
 import { analyseFactor } from './solve-factor.js';
 import type { FactorAnalysis } from './solve-factor.js';
 import { digitsOf, stdErrorErrors } from './solve-digits.js';
+import { seedErrors } from './seed-errors.js';
+import type { SolvedSeed } from './accumulator-residual-tracking.js';
 
 /** Unit roundoff of double precision (2⁻⁵³). */
 const U = Number.EPSILON / 2;
@@ -70,6 +72,8 @@ export interface RefinementInput {
    */
   readonly drift?: Float64Array | undefined;
   readonly rssError?: number | undefined;
+  /** Stored rows whose gradient at the anchor was taken as zero (a refit's; see seedErrors). */
+  readonly seed?: SolvedSeed | undefined;
 }
 
 /** A refined solution, and the norm of its scaled correction (for the next step's rate). */
@@ -161,6 +165,10 @@ export function solveRefined(acc: Accumulator, input: RefinementInput, options: 
   const kappa = f.factorCondition ?? 1;
   const floor = (k * U) ** 2 * kappa * kappa * (size + Math.sqrt(rss));
   const errors = propagatedErrors(f, rate * (correction + moved) + floor);
+  if (input.seed !== undefined) {
+    const inherited = seedErrors(acc, f, input.seed);
+    errors.forEach((e, pos) => (errors[pos] = e + inherited[pos]!));
+  }
   // σ² comes from the pass's residual sum of squares: its rounding moves every standard error.
   const sigmaErr = rss > 0 ? (input.rssError ?? 0) / (2 * rss) : 0;
   const seErrors = stdErrorErrors(f, Number.EPSILON).map((e) => e + sigmaErr);
