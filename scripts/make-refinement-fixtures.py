@@ -236,6 +236,13 @@ def main():
     cases.append(case("offset-columns", "4,000 generated rows, five predictors about 10^6, response about 5*10^7, one true zero, noise uniform of width 1e-4.",
                       generated_rows(gen), [f"o{j + 1}" for j in range(5)], True, False, generated=gen))
 
+    # 10. Predictors far from zero whose effects cancel (y = x1 - x2 + ...): the response and
+    # the folded intercept are small, while the shifts make the rounding of the slopes a large
+    # error of the folded intercept.
+    gen = {"seed": 20261206, "rows": 3000, "coefficients": [1.0, -1.0, 0.0, 0.5, -0.5], "noise": 1e-6, "offset": 1e6}
+    cases.append(case("offset-cancelling", "3,000 generated rows, five predictors about 10^6 whose effects cancel (1, -1, 0, 0.5, -0.5), noise uniform of width 1e-6.",
+                      generated_rows(gen), [f"k{j + 1}" for j in range(5)], True, False, generated=gen))
+
     with open(OUT, "w") as fh:
         json.dump({"generator": GENERATOR, "library": LIBRARY, "cases": cases}, fh, indent=1)
         fh.write("\n")

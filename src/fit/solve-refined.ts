@@ -151,9 +151,9 @@ export function solveRefined(acc: Accumulator, input: RefinementInput, options: 
   // A posteriori: the error left is about the rate times this step's correction. The
   // measured rate (this correction over the previous one) replaces the predicted one when it
   // is larger and the correction is above the level at which the estimates' own rounding
-  // moves them (u·‖b̃‖), where the ratio says nothing.
+  // moves them (u·‖D|T||b|‖, see scaledSize), where the ratio says nothing.
   let rate = refinementRate(f);
-  const size = scaledNorm(f, estimates);
+  const size = scaledSize(f, estimates);
   if (input.previousCorrection !== undefined && correction > 16 * U * size) rate = Math.max(rate, correction / input.previousCorrection);
   // Sums gathered while the anchor moved carry each move's error, the factor's error times
   // the move, weighted by the share of the rows it was made over.
@@ -175,13 +175,19 @@ export function solveRefined(acc: Accumulator, input: RefinementInput, options: 
   return { solution: { ...solution, estimatedDigits: digitsOf(estimates, { estimate: errors, stdError: seErrors }) }, correction };
 }
 
-/** ‖b̃‖: the norm of coefficients (kept, coordinates as given) in the scaled coordinates of the factor as folded. */
-function scaledNorm(f: FactorAnalysis, estimates: Float64Array): number {
+/**
+ * The size of coefficients (kept, coordinates as given) in the scaled coordinates of the
+ * factor as folded, as their rounding sees it: ‖D·|T|·|b|‖, the intercept's entry
+ * |b₀| + Σ|c_j b_j|. An anchor held in the coordinates as given is rounded there: with large
+ * shifts its intercept's rounding, u·|b₀|, is a large error of the folded intercept
+ * b₀ + Σ c_j b_j − c_y, however small that is itself; so are the terms a residual cancels.
+ */
+function scaledSize(f: FactorAnalysis, estimates: Float64Array): number {
   const { kept } = f.qr;
-  let intercept = estimates[0]!;
-  if (f.shift !== undefined) for (let pos = 1; pos < kept.length; pos++) intercept += f.shift[kept[pos]! - 1]! * estimates[pos]!;
+  let intercept = Math.abs(estimates[0]!);
+  if (f.shift !== undefined) for (let pos = 1; pos < kept.length; pos++) intercept += Math.abs(f.shift[kept[pos]! - 1]! * estimates[pos]!);
   let size = 0;
-  kept.forEach((j, pos) => (size = Math.hypot(size, (pos === 0 ? intercept : estimates[pos]!) * f.scale[j]!)));
+  kept.forEach((j, pos) => (size = Math.hypot(size, (pos === 0 ? intercept : Math.abs(estimates[pos]!)) * f.scale[j]!)));
   return size;
 }
 

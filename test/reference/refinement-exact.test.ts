@@ -129,6 +129,43 @@ describe(`iterative refinement against exact rational solutions (${EXACT.library
     }
   });
 
+  it('a second refinement step keeps its estimate (±2) on every design, shifted columns included', () => {
+    for (const c of EXACT.cases) {
+      const acc = folded(c);
+      const first = refinementAnchor(acc, solve(acc));
+      const one = solveRefined(acc, { anchor: first, sums: folded(c, { anchor: first, factor: false }).residuals!, step: 1 });
+      const second = refinementAnchor(acc, one.solution);
+      const sums = folded(c, { anchor: second, factor: false }).residuals!;
+      const { solution } = solveRefined(acc, { anchor: second, sums, step: 2, previousCorrection: one.correction });
+      const got = exactLres(c, solution);
+      // The second correction is the first step's rounding: with shifted columns that is the
+      // rounding of the slopes times the shifts, a large error of the folded intercept. Taken
+      // for a stalled step, it made the estimate 0 beside LRE 15 (offset-cancelling).
+      expect(got.min, c.name).toBeGreaterThanOrEqual(13);
+      expect(Math.abs(solution.estimatedDigits! - got.min), c.name).toBeLessThanOrEqual(2);
+    }
+  });
+
+  it('the ±2 check can fail: a nudged solution, or the constant claim of the old rule, is caught on every design', () => {
+    const holds = (estimated: number, measured: number) => Math.abs(estimated - measured) <= 2;
+    const fastClaims: number[] = [];
+    for (const c of EXACT.cases) {
+      const acc = folded(c);
+      const fast = solve(acc);
+      fastClaims.push(fast.estimatedDigits!);
+      const anchor = refinementAnchor(acc, fast);
+      const { solution } = solveRefined(acc, { anchor, sums: folded(c, { anchor, factor: false }).residuals!, step: 1 });
+      expect(holds(solution.estimatedDigits!, exactLres(c, solution).min), c.name).toBe(true);
+      // The same solution with every estimate moved by 1e-10 of itself, its estimate kept: caught.
+      const nudged = { ...solution, coefficients: solution.coefficients.map((k) => ({ ...k, estimate: k.estimate === null ? null : k.estimate * (1 + 1e-10) })) };
+      expect(holds(solution.estimatedDigits!, exactLres(c, nudged).min), c.name).toBe(false);
+      // The rule the estimate replaced, min(15, fast + 15.65), claims 15 for the fast solution itself: caught.
+      expect(holds(Math.min(15, fast.estimatedDigits! + 15.65), exactLres(c, fast).min), c.name).toBe(false);
+    }
+    // The estimates are measured, not a constant: the fast ones spread over more than 3 digits.
+    expect(Math.max(...fastClaims) - Math.min(...fastClaims)).toBeGreaterThan(3);
+  });
+
   it('the reduced model of a rank-deficient design gets the double-double digits (issue 11, item 6)', () => {
     const c = EXACT.cases.find((x) => x.name === 'aliased')!;
     const fast = solve(folded(c));
