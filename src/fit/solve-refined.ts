@@ -153,8 +153,8 @@ export function solveRefined(acc: Accumulator, input: RefinementInput, options: 
   // is larger and the correction is above the level at which the estimates' own rounding
   // moves them (u·‖D|T||b|‖, see scaledSize), where the ratio says nothing.
   let rate = refinementRate(f);
-  const size = scaledSize(f, estimates);
-  if (input.previousCorrection !== undefined && correction > 16 * U * size) rate = Math.max(rate, correction / input.previousCorrection);
+  const rounding = U * scaledSize(f, estimates, true);
+  if (input.previousCorrection !== undefined && correction > 16 * rounding) rate = Math.max(rate, correction / input.previousCorrection);
   // Sums gathered while the anchor moved carry each move's error, the factor's error times
   // the move, weighted by the share of the rows it was made over.
   let moved = 0;
@@ -163,7 +163,7 @@ export function solveRefined(acc: Accumulator, input: RefinementInput, options: 
   // What the pass's arithmetic leaves: residuals formed as pairs (about (k·u)² relative to
   // the terms they cancel) whose gradient's error the solve amplifies by up to κ².
   const kappa = f.factorCondition ?? 1;
-  const floor = (k * U) ** 2 * kappa * kappa * (size + Math.sqrt(rss));
+  const floor = (k * U) ** 2 * kappa * kappa * (scaledSize(f, estimates, false) + Math.sqrt(rss));
   const errors = propagatedErrors(f, rate * (correction + moved) + floor);
   if (input.seed !== undefined) {
     const inherited = seedErrors(acc, f, input.seed);
@@ -177,17 +177,24 @@ export function solveRefined(acc: Accumulator, input: RefinementInput, options: 
 
 /**
  * The size of coefficients (kept, coordinates as given) in the scaled coordinates of the
- * factor as folded, as their rounding sees it: ‖D·|T|·|b|‖, the intercept's entry
- * |b₀| + Σ|c_j b_j|. An anchor held in the coordinates as given is rounded there: with large
- * shifts its intercept's rounding, u·|b₀|, is a large error of the folded intercept
- * b₀ + Σ c_j b_j − c_y, however small that is itself; so are the terms a residual cancels.
+ * factor as folded, ‖D·v‖. With `rounded`, v = |T|·|b| (the intercept's entry |b₀| + Σ|c_j b_j|):
+ * the size their rounding has there — an anchor is held in the coordinates as given and
+ * rounded there, and with large shifts its slopes' rounding times the shifts is a large error
+ * of the folded intercept, however small that is itself. Otherwise v has the intercept
+ * b₀ + Σ c_j b_j (the response's shift left in), the measure the residual floor below was
+ * calibrated with on the exact and NIST designs.
  */
-function scaledSize(f: FactorAnalysis, estimates: Float64Array): number {
+function scaledSize(f: FactorAnalysis, estimates: Float64Array, rounded: boolean): number {
   const { kept } = f.qr;
-  let intercept = Math.abs(estimates[0]!);
-  if (f.shift !== undefined) for (let pos = 1; pos < kept.length; pos++) intercept += Math.abs(f.shift[kept[pos]! - 1]! * estimates[pos]!);
+  let intercept = rounded ? Math.abs(estimates[0]!) : estimates[0]!;
+  if (f.shift !== undefined) {
+    for (let pos = 1; pos < kept.length; pos++) {
+      const t = f.shift[kept[pos]! - 1]! * estimates[pos]!;
+      intercept += rounded ? Math.abs(t) : t;
+    }
+  }
   let size = 0;
-  kept.forEach((j, pos) => (size = Math.hypot(size, (pos === 0 ? intercept : Math.abs(estimates[pos]!)) * f.scale[j]!)));
+  kept.forEach((j, pos) => (size = Math.hypot(size, (pos === 0 ? intercept : estimates[pos]!) * f.scale[j]!)));
   return size;
 }
 
