@@ -13,44 +13,49 @@ interface ProtocolConnection {
   query(text: string): void;
 }
 
-/** A CopyData message as pg's parser hands it on: the payload, a view into the bytes it parsed. */
-interface CopyDataMessage {
-  readonly chunk: Buffer;
-}
+/** Protocol message types (PostgreSQL frontend/backend protocol, "Message Formats"). */
+const COPY_DATA = 0x64; // 'd'
+const COPY_DONE = 0x63; // 'c'
+const COPY_OUT_RESPONSE = 0x48; // 'H'
+const ERROR_RESPONSE = 0x45; // 'E'
 
-/** The payloads of the CopyData messages of one socket read, gathered where they lie. */
-interface OpenPieces {
-  readonly base: ArrayBufferLike;
-  readonly bytes: Buffer;
-  ranges: Int32Array;
-  count: number;
-}
+/** Socket reads queued before the socket is paused (each up to 64 kB). */
+const QUEUED_READS = 4;
 
 /**
- * A `COPY … TO STDOUT` run as a pg submittable: pg's connection parses the protocol and hands
- * each CopyData message to {@link handleCopyData}, as it does for the COPY submittables of
- * other packages; notices, errors, CommandComplete and ReadyForQuery take pg's own paths.
- * The payloads are views into the bytes pg's parser holds, and they stay valid only until
- * the parser takes the socket's next read (it may write the next read over them). So the
- * payloads of one read are gathered where they lie — their ranges in one buffer, never
- * copied together — and the socket is paused at the first frame of every read: the parser
- * sees no more bytes until the reader has asked for the next read, by which time the decoder
- * is done with this one's (it copies only the tuple that straddles two reads). The read's
- * frames all arrive within one parse, so a microtask queued at the first frame hands them
- * on as one piece. TCP flow control holds the server back meanwhile.
+ * A `COPY … TO STDOUT` run as a pg submittable that reads the connection's socket itself and
+ * hands on, per socket read, where the CopyData payloads lie in it — the bytes are never
+ * copied together. Other messages (notices, parameter status) are passed whole to pg's own
+ * parser; at CopyDone, or at an ErrorResponse, the socket goes back to pg with the rest of
+ * the read, and pg reports the command's completion (or the error) to this query.
+ *
+ * Why not pg's own submittable hook (handleCopyData, one call per CopyData message, as other
+ * packages' COPY submittables use it): binary COPY sends one message per row, and pg's
+ * parser makes a message object and a Buffer view per message and emits it through two
+ * events; its views also live only until its next read, so the socket must pause at every
+ * read. Measured on 10,000,000 rows × 20 float8 over two connections, receiving only, that
+ * path took 6.3 s of CPU against this one's 4.0 s (and 1.6 times the wall time) on the same
+ * loaded machine, so this reader keeps the socket. It checks that it finds pg's one data
+ * listener to take over, and fails the read with a message if pg's layout ever changes.
  */
 class CopyOutReader {
   readonly text: string;
   private stream: Socket | undefined;
+  private pgData: ((chunk: Buffer) => void) | undefined;
   private readonly queue: CopyPieces[] = [];
-  private open: OpenPieces | undefined;
   private wake: (() => void) | undefined;
   private failure: unknown;
   private failed = false;
   private ready = false;
   private paused = false;
   private discarding = false;
-  private view: { base: ArrayBufferLike; bytes: Buffer } | undefined;
+  // Message being parsed: its header (type and length word, 5 bytes) and what is left of it.
+  private readonly header = Buffer.alloc(5);
+  private headerFill = 0;
+  private remaining = 0;
+  /** The whole of a message other than CopyData, gathered to be passed to pg. */
+  private other: Buffer[] | undefined;
+  private scratch = new Int32Array(256);
 
   constructor(text: string) {
     this.text = text;
@@ -58,33 +63,14 @@ class CopyOutReader {
 
   /** pg's submittable protocol: called when this query's turn comes. */
   submit(connection: ProtocolConnection): void {
-    this.stream = connection.stream;
+    const stream = connection.stream;
+    const listeners = stream.listeners('data');
+    if (listeners.length !== 1) throw new Error(`a COPY reader expects pg's one data listener on the socket, found ${listeners.length}`);
+    this.stream = stream;
+    this.pgData = listeners[0] as (chunk: Buffer) => void;
+    stream.removeListener('data', this.pgData);
+    stream.on('data', this.onData);
     connection.query(this.text);
-  }
-
-  /** pg: one CopyData message, its payload a view into the bytes pg's parser holds. */
-  handleCopyData(message: CopyDataMessage): void {
-    if (this.discarding || this.failed) return;
-    const chunk = message.chunk;
-    let open = this.open;
-    if (open === undefined || open.base !== chunk.buffer) {
-      if (open !== undefined) this.seal();
-      open = this.open = { base: chunk.buffer, bytes: this.bytesOf(chunk.buffer), ranges: new Int32Array(64), count: 0 };
-      // The first frame of a read: nothing more is parsed until these bytes are decoded.
-      if (!this.paused) {
-        this.paused = true;
-        this.stream?.pause();
-      }
-      queueMicrotask(this.sealRead);
-    }
-    if (2 * open.count + 2 > open.ranges.length) {
-      const grown = new Int32Array(open.ranges.length * 2);
-      grown.set(open.ranges);
-      open.ranges = grown;
-    }
-    open.ranges[2 * open.count] = chunk.byteOffset;
-    open.ranges[2 * open.count + 1] = chunk.byteOffset + chunk.byteLength;
-    open.count++;
   }
 
   /** pg: an ErrorResponse, or a broken connection. */
@@ -101,27 +87,31 @@ class CopyOutReader {
     this.notify();
   }
 
-  /**
-   * The next read's pieces, or null at the end; throws what failed the COPY. Calling it says
-   * the pieces it returned last are done with: the socket may take the next read.
-   */
+  /** The next socket read's pieces, or null at the end; throws what failed the COPY. */
   async next(): Promise<CopyPieces | null> {
     for (;;) {
       if (this.failed) throw this.failure;
       const pieces = this.queue.shift();
-      if (pieces !== undefined) return pieces;
-      this.resume();
+      if (pieces !== undefined) {
+        if (this.paused && this.queue.length < QUEUED_READS / 2) {
+          this.paused = false;
+          this.stream?.resume();
+        }
+        return pieces;
+      }
       if (this.ready) return null;
       await new Promise<void>((resolve) => (this.wake = resolve));
     }
   }
 
-  /** Stops the COPY for its reader: what is still to come is parsed by pg and dropped. */
+  /** Stops the COPY for its reader: what is still to come is read and dropped. */
   discard(): void {
     this.discarding = true;
     this.queue.length = 0;
-    this.open = undefined;
-    this.resume();
+    if (this.paused) {
+      this.paused = false;
+      this.stream?.resume();
+    }
   }
 
   fail(error: unknown): void {
@@ -131,35 +121,85 @@ class CopyOutReader {
     this.notify();
   }
 
-  private resume(): void {
-    if (!this.paused) return;
-    this.paused = false;
-    this.stream?.resume();
-  }
-
   private notify(): void {
     const wake = this.wake;
     this.wake = undefined;
     wake?.();
   }
 
-  /** After the parse that brought a read's first frame: its frames are all in. */
-  private readonly sealRead = (): void => {
-    if (this.open !== undefined) this.seal();
+  private readonly onData = (chunk: Buffer): void => {
+    const end = chunk.byteLength;
+    let pos = 0;
+    let count = 0;
+    while (pos < end) {
+      if (this.headerFill < 5) {
+        const take = Math.min(5 - this.headerFill, end - pos);
+        chunk.copy(this.header, this.headerFill, pos, pos + take);
+        this.headerFill += take;
+        pos += take;
+        if (this.headerFill < 5) break;
+        const type = this.header[0]!;
+        this.remaining = this.header.readInt32BE(1) - 4;
+        if (type === ERROR_RESPONSE || type === COPY_DONE) {
+          // The rest of the conversation is pg's: the error (with its header) or
+          // CommandComplete and ReadyForQuery after CopyDone.
+          this.push(chunk, count);
+          const rest = chunk.subarray(type === ERROR_RESPONSE ? pos : pos + this.remaining);
+          this.detach(type === ERROR_RESPONSE ? Buffer.concat([this.header, rest]) : rest);
+          return;
+        }
+        if (type !== COPY_DATA && type !== COPY_OUT_RESPONSE) this.other = [Buffer.from(this.header)];
+        if (this.remaining === 0) this.endMessage();
+        continue;
+      }
+      const take = Math.min(this.remaining, end - pos);
+      if (this.header[0] === COPY_DATA) {
+        if (2 * count + 2 > this.scratch.length) {
+          const grown = new Int32Array(this.scratch.length * 2);
+          grown.set(this.scratch);
+          this.scratch = grown;
+        }
+        this.scratch[2 * count] = pos;
+        this.scratch[2 * count + 1] = pos + take;
+        count++;
+      } else {
+        this.other?.push(chunk.subarray(pos, pos + take));
+      }
+      pos += take;
+      this.remaining -= take;
+      if (this.remaining === 0) this.endMessage();
+    }
+    this.push(chunk, count);
   };
 
-  private seal(): void {
-    const open = this.open!;
-    this.open = undefined;
-    if (this.discarding || this.failed) return;
-    this.queue.push({ bytes: open.bytes, ranges: open.ranges, count: open.count });
+  /** A message ended: a gathered one (a notice, say) goes to pg whole. */
+  private endMessage(): void {
+    this.headerFill = 0;
+    const whole = this.other;
+    this.other = undefined;
+    if (whole !== undefined) this.pgData?.(Buffer.concat(whole));
+  }
+
+  private push(chunk: Buffer, count: number): void {
+    if (count === 0 || this.discarding) return;
+    this.queue.push({ bytes: chunk, ranges: this.scratch.slice(0, 2 * count), count });
+    if (!this.paused && this.queue.length >= QUEUED_READS) {
+      this.paused = true;
+      this.stream?.pause();
+    }
     this.notify();
   }
 
-  /** A Buffer over the whole of pg's parse buffer (the ranges are offsets into it), made once per buffer. */
-  private bytesOf(base: ArrayBufferLike): Buffer {
-    if (this.view?.base !== base) this.view = { base, bytes: Buffer.from(base as ArrayBuffer) };
-    return this.view.bytes;
+  /** Gives the socket back to pg, with the bytes of this read that are pg's. */
+  private detach(rest: Buffer): void {
+    const stream = this.stream!;
+    stream.removeListener('data', this.onData);
+    stream.on('data', this.pgData!);
+    if (rest.byteLength > 0) this.pgData!(rest);
+    if (this.paused) {
+      this.paused = false;
+      stream.resume();
+    }
   }
 }
 
@@ -173,8 +213,8 @@ class CopyOutReader {
  * backslashes), never by searching the SQL text. The newline before `)` keeps a trailing
  * `--` comment in the user's SQL from swallowing the closing parenthesis.
  *
- * Pull-based: the socket is paused at each read until the consumer asks for the next one, so
- * the server is held back by TCP flow control rather than buffered in memory. A consumer that stops
+ * Pull-based: the socket is paused while a few reads wait to be consumed, so the server is
+ * held back by TCP flow control rather than buffered in memory. A consumer that stops
  * early (or an abort) leaves the rest of the COPY to be read and dropped; the owner should
  * still discard the client after a failed read.
  */

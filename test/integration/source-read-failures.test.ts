@@ -212,8 +212,8 @@ describe.skipIf(ON_EMBEDDED)('client state after an early stop', () => {
   });
 
   it('copy mode: a consumer that yields to the event loop before decoding each read gets every row intact', async () => {
-    // The pieces are views into the bytes pg's parser holds, which its next read may overwrite:
-    // the socket must wait at each read's first frame until the consumer asks for the next.
+    // The pieces must stay intact however long the consumer takes: a reader that handed on
+    // views into a buffer its next read overwrites (pg's parse buffer, say) fails here.
     const client = new pg.Client({ connectionString: tdb.url });
     await client.connect();
     try {
