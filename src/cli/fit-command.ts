@@ -22,6 +22,7 @@ export function fitCommand(y: Argv): Argv {
           describe:
             'PostgreSQL URL, or embedded:FOLDER (default: DATABASE_URL, then the PG* variables, then the embedded database in .rowfold/db)',
         })
+        .option('connections', { type: 'string', describe: 'connections file (YAML, name: URL) for shards and read_from (default: ROWFOLD_CONNECTIONS)' })
         .option('parallel', { type: 'number', default: 1, describe: 'read N disjoint partitions over N connections' })
         .option('threads', {
           type: 'number',
@@ -54,6 +55,7 @@ export function fitCommand(y: Argv): Argv {
         result = await runFitExclusive({
           specPath: args.spec,
           db: args.db,
+          connections: args.connections,
           parallel,
           threads,
           read: args.read,

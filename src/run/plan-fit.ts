@@ -6,6 +6,7 @@ import { PlanError } from '../plan/plan-error.js';
 import { levelQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
 import { resolveLevels } from '../plan/resolve-levels.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
+import { LEAF_PARTITIONS_SQL, leafPartitions } from '../plan/shard-layout.js';
 import { sourceTableName } from '../plan/source-relation.js';
 import type { DbSession } from '../source/database.js';
 import { describeQuery, queryAll } from '../source/query-helpers.js';
@@ -18,6 +19,10 @@ import type { FitSpec } from '../spec/fit-spec.js';
  * pass of an incremental or window fit (see refitFilter). With `guardLevels`, every pass fails
  * on a row whose categorical value the plan did not find (for reads that do not share the plan's
  * snapshot; see guardLevels in plan/unplanned-level).
+ *
+ * A table source with postgres_fdw foreign partitions, read with `parallel` above 1, is cut into
+ * one partition per leaf instead (whatever `parallel` says): each foreign leaf is read from its
+ * remote table on its own server (the plan's `sites`), each local leaf on the source connection.
  */
 export async function planFit(
   client: DbSession,
@@ -42,11 +47,17 @@ export async function planFit(
   }
   let pages: number | null = null;
   const table = sourceTableName(spec);
-  if (parallel > 1 && spec.partitionKey === null && table !== null) {
+  // A table with postgres_fdw foreign partitions is read leaf by leaf, each foreign one on its shard.
+  const found = parallel > 1 && table !== null ? leafPartitions((await client.query(LEAF_PARTITIONS_SQL, [table])).rows) : null;
+  // A lone foreign table is read as one partition would be: through the source, cut by pages.
+  const leaves = found !== null && found.length >= 2 ? found : null;
+  if (leaves === null && parallel > 1 && spec.partitionKey === null && table !== null) {
     const rows = await queryAll(client, tablePagesQuery(table));
     pages = Number(rows[0]?.[0] ?? 0);
   }
-  const partitions = partitionPredicates(spec, parallel, pages);
+  const partitions = leaves ?? partitionPredicates(spec, parallel, pages);
+  // Shards are read outside the run's snapshot: a categorical value the plan did not find fails the read.
+  guardLevels = guardLevels || leaves !== null;
   // The first pass may be scoped differently from a second, double-double one: an incremental
   // fit folds only new rows (per bucket) into stored state, the second pass reads them all.
   const first = { ...scope.first, guardLevels };

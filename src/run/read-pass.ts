@@ -6,11 +6,13 @@ import { unplannedLevelError } from '../plan/unplanned-level.js';
 import type { Database } from '../source/database.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import type { FitSpec } from '../spec/fit-spec.js';
+import { shardReadError } from './read-sites.js';
 import type { RunFitRequest } from './run-fit.js';
 
 /**
  * One streamed pass over the design query into per-segment accumulators: each partition of
- * the plan is read on its own connection, all at once. Blocks are folded on the reading
+ * the plan is read on its own connection, all at once (a foreign partition on its shard, see
+ * ReadSites). Blocks are folded on the reading
  * thread, or, with fold threads (`req.threads`, by default one when the factor is large
  * enough for the kernel to bound the read; see autoFoldThreads), handed to a FoldPool so
  * that receiving and decoding overlap folding.
@@ -42,9 +44,13 @@ export async function readPass(
   };
   try {
     const counts = await Promise.all(
-      plan.queries.map((query, i) =>
+      plan.queries.map((query, i) => {
+        // A foreign partition is read on its own shard, over the connection named like its server.
+        const site = plan.sites?.[i] ?? null;
+        if (site !== null && req.sites === undefined) throw new TypeError('a plan with shards needs the run\'s ReadSites');
+        const from = site === null ? database : req.sites!.database(site);
         // A session whose stream broke is discarded, not used again.
-        database.withSession((session) =>
+        const read = from.withSession((session) =>
           session.readDesign(
             {
               query,
@@ -72,8 +78,11 @@ export async function readPass(
               return wait;
             },
           ),
-        ),
-      ),
+        );
+        return site === null ? read : read.catch((e: unknown) => {
+          throw shardReadError(site, unplannedLevelError(e, spec, plan.levels) ?? e);
+        });
+      }),
     ).catch((e: unknown) => {
       // A guarded plan's read stops at a categorical value the plan did not find: say which.
       throw unplannedLevelError(e, spec, plan.levels) ?? e;

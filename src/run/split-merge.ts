@@ -6,13 +6,18 @@ import type { DesignReadCounts } from '../source/read-design.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { createStoreDb, deletePartials, failRunsAndPartials, loadPartialFactors, loadSplitRun, recordSplitRunSeconds, writeRunResult } from '../store/index.js';
 import type { ModelRecord } from '../store/index.js';
-import { passesOf, readAndSolve } from './run-fit.js';
+import { ReadSites } from './read-sites.js';
+import { openSourceDatabase, passesOf, readAndSolve } from './run-fit.js';
+import { loadConnections } from '../source/connections-file.js';
 import { keepSplitRunAlive, splitLeaseSeconds } from './split-lease.js';
 import { splitRunSpec } from './split-partition.js';
 
 /** The merge job of a split run. */
 export interface MergeRequest {
   readonly target: ConnectionTarget;
+  /** The connections file (`--connections`; otherwise ROWFOLD_CONNECTIONS in `env`): shards and read_from. */
+  readonly connections?: string | undefined;
+  readonly env?: NodeJS.ProcessEnv | undefined;
   readonly schema: string;
   readonly runId: number;
   /** pg-boss will not try this job again: a failure now fails the run. */
@@ -75,13 +80,20 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const fit = new SegmentedFit(shape, firstPlan.keyNames, firstOptions);
           for (const f of partials.factors) fit.ensure(f.key).acc.mergeState(f.state);
           const counts = partials.partitions.map((p) => p.counts as DesignReadCounts);
-          // A double-double pass reads every partition at once, over one snapshot.
-          const reads = await database.shareSnapshot();
-          const out = await readAndSolve(reads, spec, plan, { specPath: spec.origin, signal: req.signal }, null, { fit, counts })
+          // A double-double pass reads every partition at once, over one snapshot (each shard in one of its own).
+          const connections = loadConnections({ file: req.connections, env: req.env ?? process.env });
+          const source = openSourceDatabase(spec, connections, database, Math.min(run.partitions, 4) + 1);
+          const sites = plan.sites === undefined ? undefined : new ReadSites(connections, plan);
+          const reads = await source.shareSnapshot();
+          const out = await readAndSolve(reads, spec, plan, { specPath: spec.origin, signal: req.signal, sites }, null, { fit, counts })
             .catch((e: unknown) => {
-              throw sourceChangedError(e, req.runId) ?? e;
+              throw e instanceof PlanOutdatedError ? e : (sourceChangedError(e, req.runId) ?? e);
             })
-            .finally(() => reads.release());
+            .finally(async () => {
+              await reads.release();
+              await sites?.close();
+              if (source !== database) await source.close();
+            });
           const models = out.models.map(
             (m): ModelRecord => ({ segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes }),
           );
