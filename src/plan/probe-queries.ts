@@ -41,10 +41,14 @@ export function probedExpressions(spec: FitSpec): ProbedExpression[] {
 /**
  * A query that evaluates the given expressions over the source without reading a row
  * (`LIMIT 0`), so the server reports their types, or the error that one of them raises.
+ * With `pruned`, a constant-false filter too: the planner then prunes every partition of a
+ * partitioned table, so that foreign partitions are not even opened (postgres_fdw connects to
+ * each shard to start a scan, even one that returns nothing). Without it every partition is
+ * planned, and so locked by the transaction that plans.
  */
-export function probeQuery(spec: FitSpec, expressions: readonly ProbedExpression[]): SqlTemplate {
+export function probeQuery(spec: FitSpec, expressions: readonly ProbedExpression[], pruned = false): SqlTemplate {
   const list = expressions.map((e, i) => `(${e.sql}) AS ${quoteIdent(`e${i}`)}`).join(',\n       ');
-  return SqlTemplate.join([`SELECT ${list.length > 0 ? list : '1'}\n  FROM `, sourceRelation(spec), '\n LIMIT 0']);
+  return SqlTemplate.join([`SELECT ${list.length > 0 ? list : '1'}\n  FROM `, sourceRelation(spec), pruned ? '\n WHERE false\n LIMIT 0' : '\n LIMIT 0']);
 }
 
 /**

@@ -7,6 +7,7 @@ import { levelQuery, probeQuery, probedExpressions, tablePagesQuery } from '../p
 import { resolveLevels } from '../plan/resolve-levels.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
 import { LEAF_PARTITIONS_SQL, leafPartitions } from '../plan/shard-layout.js';
+import type { LeafPartition } from '../plan/shard-layout.js';
 import { sourceTableName } from '../plan/source-relation.js';
 import type { DbSession } from '../source/database.js';
 import { describeQuery, queryAll } from '../source/query-helpers.js';
@@ -32,9 +33,13 @@ export async function planFit(
   guardLevels = false,
 ): Promise<DesignPlan> {
   const expressions = probedExpressions(spec);
+  const table = sourceTableName(spec);
+  // A table with postgres_fdw foreign partitions is read leaf by leaf, each foreign one on its
+  // shard: found from the catalog first, so that no probe opens a foreign scan.
+  const leaves = parallel > 1 && table !== null ? await shardLeaves(client, table) : null;
   let types: string[];
   try {
-    types = (await describeQuery(client, probeQuery(spec, expressions))).map((f) => f.typeName);
+    types = (await describeQuery(client, probeQuery(spec, expressions, leaves !== null))).map((f) => f.typeName);
   } catch (e) {
     throw await locateProbeFailure(client, spec, expressions, e);
   }
@@ -46,11 +51,6 @@ export async function planFit(
     levels.push(resolveLevels(cat, i, rows));
   }
   let pages: number | null = null;
-  const table = sourceTableName(spec);
-  // A table with postgres_fdw foreign partitions is read leaf by leaf, each foreign one on its shard.
-  const found = parallel > 1 && table !== null ? leafPartitions((await client.query(LEAF_PARTITIONS_SQL, [table])).rows) : null;
-  // A lone foreign table is read as one partition would be: through the source, cut by pages.
-  const leaves = found !== null && found.length >= 2 ? found : null;
   if (leaves === null && parallel > 1 && spec.partitionKey === null && table !== null) {
     const rows = await queryAll(client, tablePagesQuery(table));
     pages = Number(rows[0]?.[0] ?? 0);
@@ -66,6 +66,23 @@ export async function planFit(
   const extended = buildDesignPlan(spec, casts, levels, partitions, numeric, second ?? first);
   const extendedFloat = second === undefined ? undefined : buildDesignPlan(spec, casts, levels, partitions, new Set(), second);
   return { ...fast, extended, extendedFloat };
+}
+
+/**
+ * The leaves of a sharded table source (see plan/shard-layout), or null when it has no
+ * postgres_fdw foreign partition or fewer than two leaves (a lone foreign table is read through
+ * the source, cut by pages). The local leaves are locked on `client` (ACCESS SHARE): on the
+ * session that holds a run's snapshot this keeps them from being altered or truncated until the
+ * run ends, as the probe of an unsharded source does by planning every partition.
+ */
+async function shardLeaves(client: DbSession, table: string): Promise<LeafPartition[] | null> {
+  // A source that is not a table (a view) or does not exist: the probe says what is wrong.
+  const rows = await client.query(LEAF_PARTITIONS_SQL, [table]).then((r) => r.rows, () => []);
+  const found = leafPartitions(rows);
+  if (found === null || found.length < 2) return null;
+  const local = found.filter((l) => l.site === null).map((l) => l.relation);
+  if (local.length > 0) await client.exec(`LOCK TABLE ${local.join(', ')} IN ACCESS SHARE MODE`);
+  return found;
 }
 
 /**
