@@ -1,3 +1,4 @@
+import type { Kysely } from 'kysely';
 import { SegmentedFit } from '../fit/segmented-fit.js';
 import { designPlanFromJson } from '../plan/design-plan-json.js';
 import { PlanOutdatedError, sourceChangedError } from '../plan/plan-outdated-error.js';
@@ -5,7 +6,7 @@ import type { ConnectionTarget } from '../source/connection-target.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { createStoreDb, deletePartials, failRunsAndPartials, loadPartialFactors, loadSplitRun, recordSplitRunSeconds, writeRunResult } from '../store/index.js';
-import type { ModelRecord } from '../store/index.js';
+import type { ModelRecord, StoreDatabase } from '../store/index.js';
 import { ReadSites } from './read-sites.js';
 import { openSourceDatabase, passesOf, readAndSolve } from './run-fit.js';
 import { loadConnections } from '../source/connections-file.js';
@@ -24,6 +25,39 @@ export interface MergeRequest {
   readonly final: boolean;
   /** Stops the merge at its next step (a read stops at once); nothing is published after it aborts. */
   readonly signal?: AbortSignal | undefined;
+  /** Partitions whose factors are read and merged at a time (default {@link MERGE_BATCH_PARTITIONS}). */
+  readonly batchPartitions?: number | undefined;
+  /** Called after each batch with the factors it read (for tests and the bench). */
+  readonly onBatch?: ((factors: number) => void) | undefined;
+}
+
+/**
+ * Partitions whose partial factors a merge holds at once, besides the merged factors: with
+ * 10,000 segments of order 10, a batch is about 16 × 10,000 states of 55 doubles (70 MB as
+ * Float64Arrays, several times that as the text the driver receives).
+ */
+export const MERGE_BATCH_PARTITIONS = 16;
+
+/**
+ * Merges the partial factors of partitions 0 … `partitions` − 1 into `fit`, `batch` partitions at
+ * a time, in partition order (the order of an all-at-once merge, so the result is the same to
+ * the last bit): memory holds the merged factors and one batch, whatever the partition count.
+ */
+export async function mergePartialBatches(
+  store: Kysely<StoreDatabase>,
+  schema: string,
+  runId: number,
+  partitions: number,
+  fit: SegmentedFit,
+  batch: number,
+  onBatch?: (factors: number) => void,
+): Promise<void> {
+  const step = Math.max(1, Math.floor(batch));
+  for (let from = 0; from < partitions; from += step) {
+    const { factors } = await loadPartialFactors(store, schema, runId, { from, to: from + step });
+    for (const f of factors) fit.ensure(f.key).acc.mergeState(f.state);
+    onBatch?.(factors.length);
+  }
 }
 
 /** What a merge job did. */
@@ -35,7 +69,8 @@ export interface MergeOutcome {
 
 /**
  * Merges the partial factors of a split run and publishes it, exactly once: the factors of
- * every partition are merged segment by segment (in partition order), solved as `rowfold fit`
+ * every partition are merged segment by segment (in partition order, a batch of partitions at a
+ * time: see {@link mergePartialBatches}), solved as `rowfold fit`
  * would (with the double-double pass `accuracy` may ask for, over every partition), and the
  * models, the run's counts and the removal of the partials are written in one transaction that
  * first locks the run row and checks it is still running. The partials are read before that
@@ -66,7 +101,8 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
       return await keepSplitRunAlive(store, req.schema, req.runId, splitLeaseSeconds(spec.split?.jobTimeoutSeconds ?? 0), async () => {
         const started = performance.now();
         try {
-          const partials = await loadPartialFactors(store, req.schema, req.runId);
+          // The counts of every partition first (small); the factors a batch of partitions at a time, below.
+          const partials = await loadPartialFactors(store, req.schema, req.runId, { from: 0, to: 0 });
           const written = new Set(partials.partitions.map((p) => p.partition));
           const missing = Array.from({ length: run.partitions }, (_, i) => i).filter((i) => !written.has(i));
           if (missing.length > 0) {
@@ -78,7 +114,7 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const { firstPlan, firstOptions } = passesOf(spec, plan, {}, null, false);
           const shape = { terms: firstPlan.columns, response: spec.response, weight: spec.weight ?? undefined, intercept: spec.intercept };
           const fit = new SegmentedFit(shape, firstPlan.keyNames, firstOptions);
-          for (const f of partials.factors) fit.ensure(f.key).acc.mergeState(f.state);
+          await mergePartialBatches(store, req.schema, req.runId, run.partitions, fit, req.batchPartitions ?? MERGE_BATCH_PARTITIONS, req.onBatch);
           const counts = partials.partitions.map((p) => p.counts as DesignReadCounts);
           // A double-double pass reads every partition at once, over one snapshot (each shard in one of its own).
           const connections = loadConnections({ file: req.connections, env: req.env ?? process.env });
