@@ -112,10 +112,11 @@ function expectSameFit(got: Awaited<ReturnType<typeof results>>, want: Awaited<R
  * every partition job and the merge job are tried up to `retries` more times (pg-boss retries a
  * failed job; the last attempt is `final`). Returns the run id and every job error.
  */
-async function driveSplit(specPath: string, opts: { retries?: number; beforePartition?: (p: number) => Promise<void> | void } = {}) {
+async function driveSplit(specPath: string, opts: { retries?: number; beforePartition?: (p: number) => Promise<void> | void; store?: TestDatabase } = {}) {
   const spec = await loadFitSpec(specPath);
   const schedule = { specPath, spec, cron: '0 0 * * *' };
-  const runner = fitJobRunner({ target, db: tdb.url, env: { ...process.env, ROWFOLD_CONNECTIONS: connectionsFile } });
+  const store = opts.store ?? tdb;
+  const runner = fitJobRunner({ target: resolveConnection({ db: store.url, env: {} }), db: store.url, env: { ...process.env, ROWFOLD_CONNECTIONS: connectionsFile } });
   const queue: { kind: 'partition' | 'merge'; data: Record<string, unknown> }[] = [];
   const send: JobSender = {
     partitions: async (_s, runId, n) => {
@@ -188,6 +189,8 @@ describe.skipIf(!available)('reading a sharded table where it lives (issue 17; s
       -- A read-only role for reads; results go elsewhere.
       create role rowfold_reader_${tdb.name.slice(-8)} login password '${SECRET}';
       grant select on gathered to rowfold_reader_${tdb.name.slice(-8)};
+      create table growing as select * from gathered where id <= 12000;
+      grant select on growing to rowfold_reader_${tdb.name.slice(-8)};
       alter role rowfold_reader_${tdb.name.slice(-8)} set default_transaction_read_only = on;
       analyze gathered, readings_local`);
     const readerUrl = tdb.urlAs(`rowfold_reader_${tdb.name.slice(-8)}`).replace('@', `:${SECRET}@`);
@@ -263,6 +266,32 @@ describe.skipIf(!available)('reading a sharded table where it lives (issue 17; s
       expectSameFit(await results(target2, runId), await results(tdb, gatheredRun), 'read_from');
       // Nothing was written where the rows were read (the role could not have: its transactions are read-only).
       expect((await tdb.query(`select count(*)::int as n from rowfold.runs where fit_name = 'read_elsewhere'`)).rows[0].n).toBe(0);
+
+      // The report's row sample is read over the same connection.
+      const html = join(mkdtempSync(join(tmpdir(), 'rowfold-report-')), 'r.html');
+      const report = await runCli(['report', 'read_elsewhere', '--db', target2.url, '--connections', connectionsFile, '--out', html]);
+      expect(report.code, report.stderr).toBe(0);
+      const page = readFileSync(html, 'utf8');
+      expect(page).not.toContain('Could not read a sample');
+      expect(page).not.toContain(SECRET);
+
+      // An incremental refit reads only the new rows over read_from, and ends where a fit of them all does.
+      const incremental = writeSpec({ name: 'read_incremental', source: 'growing', read_from: 'reader', watermark: 'id', ...MODEL });
+      const first = await runCli(['fit', incremental, '--db', target2.url, '--connections', connectionsFile, '--json']);
+      expect(first.code, first.stderr).toBe(0);
+      await tdb.exec(`insert into growing select * from gathered where id > 12000`);
+      const second = await runCli(['fit', incremental, '--db', target2.url, '--connections', connectionsFile, '--json']);
+      expect(second.code, second.stderr).toBe(0);
+      const secondRun = (JSON.parse(second.stdout) as { run: { id: number; rows_read: number } }).run;
+      expect(secondRun.rows_read).toBe(12000);
+      expectSameFit(await results(target2, secondRun.id), await results(tdb, gatheredRun), 'read_from incremental');
+
+      // A split run reads its partitions over read_from too, and publishes where it was started.
+      const split = await driveSplit(writeSpec({ name: 'read_split', source: 'gathered', read_from: 'reader', ...MODEL, split: { partitions: 3 } }), { store: target2 });
+      expect(split.errors).toEqual([]);
+      const splitRun = await target2.query(`select status, read_from from rowfold.runs where run_id = $1`, [split.runId]);
+      expect(splitRun.rows[0]).toEqual({ status: 'succeeded', read_from: run.rows[0].read_from });
+      expectSameFit(await results(target2, split.runId), await results(tdb, gatheredRun), 'read_from split');
       // An unknown name is a usage error naming it.
       const bad = await runCli(['fit', writeSpec({ name: 'read_nowhere', source: 'gathered', read_from: 'standby', ...MODEL }), '--db', target2.url, '--connections', connectionsFile]);
       expect(bad.code).toBe(2);
