@@ -43,6 +43,8 @@ export interface RunFitRequest {
   readonly connections?: string | undefined;
   /** The shards a run reads its foreign partitions from; opened by the run itself (not for callers). */
   readonly sites?: ReadSites | undefined;
+  /** Reads of a shard's partition before the run fails (default SHARD_READ_ATTEMPTS; a split run's job: 1, the queue retries). */
+  readonly shardAttempts?: number | undefined;
   readonly parallel?: number;
   /**
    * Threads that fold blocks beside the reading thread (0: fold on the reading thread).

@@ -70,7 +70,7 @@ export async function foldPartition(req: PartitionRequest): Promise<PartitionOut
       const sites = site === null ? undefined : new ReadSites(connections, one);
       const source = openSourceDatabase(spec, connections, database, 1);
       const started = performance.now();
-      const { fit, counts } = await readPass(source, one, spec, { specPath: spec.origin, signal: req.signal, sites }, firstOptions, { rows: 0, last: started, started })
+      const { fit, counts } = await readPass(source, one, spec, { specPath: spec.origin, signal: req.signal, sites, shardAttempts: 1 }, firstOptions, { rows: 0, last: started, started })
         .catch((e: unknown) => {
           throw e instanceof PlanOutdatedError ? e : (sourceChangedError(e, req.runId) ?? e);
         })

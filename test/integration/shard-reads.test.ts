@@ -352,6 +352,17 @@ describe.skipIf(!available)('reading a sharded table where it lives (issue 17; s
     expect((await tdb.query(`select count(*)::int as n from rowfold.partial_factors where run_id = $1`, [runId])).rows[0].n).toBe(0);
     expect((await tdb.query(`select count(*)::int as n from rowfold.split_partitions where run_id = $1`, [runId])).rows[0].n).toBe(0);
     expect((await tdb.query(`select count(*)::int as n from rowfold.models where run_id = $1`, [runId])).rows[0].n).toBe(0);
+
+    // fit --parallel tries the shard again itself, then fails naming it.
+    const out = await runCli(['fit', writeSpec({ name: 'sharded_down_parallel', source: 'readings', ...MODEL }), '--db', tdb.url, '--parallel', '4', '--connections', connectionsFile]);
+    expect(out.code).toBe(1);
+    expect(out.stderr).toMatch(/shard shard_3 \(foreign partition public\.readings_s3, .*\) could not be read: .*ECONNREFUSED.* \(3 attempts, 1 s apart\)/);
+    expect(out.stderr).not.toContain(SECRET);
+    const failed = await tdb.query(`select status, error_message from rowfold.runs where fit_name = 'sharded_down_parallel'`);
+    expect(failed.rows).toHaveLength(1);
+    expect(failed.rows[0].status).toBe('failed');
+    expect(failed.rows[0].error_message).toMatch(/shard shard_3 .*3 attempts/);
+    expect((await tdb.query(`select count(*)::int as n from rowfold.models where fit_name = 'sharded_down_parallel'`)).rows[0].n).toBe(0);
     await shards[2]!.start();
   }, 120_000);
 });
