@@ -156,7 +156,10 @@ function dryRunJson(r: RunFitResult): unknown {
     fit: r.spec.name,
     columns: r.plan.columns,
     levels: r.plan.levels,
-    queries: r.plan.queries.map((q) => q.toBound()),
+    queries: r.plan.queries.map((q, i) => {
+      const site = r.plan.sites?.[i] ?? null;
+      return site === null ? q.toBound() : { ...q.toBound(), shard: site.server };
+    }),
   };
 }
 
@@ -168,7 +171,9 @@ function dryRunText(r: RunFitResult): string {
   }
   r.plan.queries.forEach((q, i) => {
     const { text, values } = q.toBound();
-    out.push('', r.plan.queries.length > 1 ? `design query, partition ${i + 1} of ${r.plan.queries.length}:` : 'design query:', text);
+    const site = r.plan.sites?.[i] ?? null;
+    const where = site === null ? '' : ` (on shard ${site.server}, ${site.where})`;
+    out.push('', r.plan.queries.length > 1 ? `design query, partition ${i + 1} of ${r.plan.queries.length}${where}:` : 'design query:', text);
     if (values.length > 0) out.push(`parameters: ${values.map((v, j) => `$${j + 1} = ${JSON.stringify(v)}`).join(', ')}`);
   });
   return out.join('\n') + '\n';
