@@ -75,7 +75,10 @@ try {
   const coordinator = benchUrl(DB);
   const results: Record<string, unknown> = {};
   if (!SKIP.includes('read')) {
-    shards.push(...(await Promise.all(PORTS.map((p) => LocalCluster.create(p)))));
+    const made = await Promise.allSettled(PORTS.map((p) => LocalCluster.create(p)));
+    shards.push(...made.flatMap((m) => (m.status === 'fulfilled' ? [m.value] : [])));
+    const failed = made.find((m) => m.status === 'rejected');
+    if (failed !== undefined) throw failed.reason;
     for (const [i, s] of shards.entries()) {
       await withClient(s.url(), async (c) => {
         await c.query(`create table meter_load as ${rowsSql(i * ROWS + 1, (i + 1) * ROWS)}`);

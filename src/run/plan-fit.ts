@@ -3,15 +3,19 @@ import { buildDesignPlan } from '../plan/design-plan.js';
 import type { DesignPlan, DesignScope } from '../plan/design-plan.js';
 import { partitionPredicates } from '../plan/partition-predicates.js';
 import { PlanError } from '../plan/plan-error.js';
-import { levelQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
+import { leafLevelQuery, levelQuery, mergedLevelsQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
 import { resolveLevels } from '../plan/resolve-levels.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
 import { LEAF_PARTITIONS_SQL, leafPartitions } from '../plan/shard-layout.js';
 import type { LeafPartition } from '../plan/shard-layout.js';
 import { sourceTableName } from '../plan/source-relation.js';
+import { connectionNamed, NO_CONNECTIONS } from '../source/connections-file.js';
+import type { Connections } from '../source/connections-file.js';
 import type { DbSession } from '../source/database.js';
+import { openServerDatabase } from '../source/server-database.js';
 import { describeQuery, queryAll } from '../source/query-helpers.js';
 import type { FitSpec } from '../spec/fit-spec.js';
+import { shardReadError } from './read-sites.js';
 
 /**
  * Plans a fit against the live source: checks the type of every expression (finding the
@@ -31,6 +35,7 @@ export async function planFit(
   parallel: number,
   scope: { first?: DesignScope; extended?: DesignScope } = {},
   guardLevels = false,
+  connections: Connections = NO_CONNECTIONS,
 ): Promise<DesignPlan> {
   const expressions = probedExpressions(spec);
   const table = sourceTableName(spec);
@@ -38,8 +43,11 @@ export async function planFit(
   // shard: found from the catalog first, so that no probe opens a foreign scan.
   const leaves = parallel > 1 && table !== null ? await shardLeaves(client, table) : null;
   let types: string[];
+  let typeOids: string[];
   try {
-    types = (await describeQuery(client, probeQuery(spec, expressions, leaves !== null))).map((f) => f.typeName);
+    const described = await describeQuery(client, probeQuery(spec, expressions, leaves !== null));
+    types = described.map((f) => f.typeName);
+    typeOids = described.map((f) => String(f.dataTypeID));
   } catch (e) {
     throw await locateProbeFailure(client, spec, expressions, e);
   }
@@ -47,7 +55,12 @@ export async function planFit(
   const numeric = numericExpressionKeys(expressions, types);
   const levels: CategoricalLevels[] = [];
   for (const [i, cat] of spec.categorical.entries()) {
-    const rows = await queryAll(client, levelQuery(spec, cat.column, cat.maxLevels));
+    // A sharded table's levels are gathered leaf by leaf, each shard's on the shard itself, so
+    // that no column is read through the coordinator.
+    const rows =
+      leaves === null
+        ? await queryAll(client, levelQuery(spec, cat.column, cat.maxLevels))
+        : await shardLevels(client, leaves, cat.column, cat.maxLevels, typeOids[expressions.findIndex((e) => e.key === `categorical[${i}]`)]!, connections);
     levels.push(resolveLevels(cat, i, rows));
   }
   let pages: number | null = null;
@@ -83,6 +96,44 @@ async function shardLeaves(client: DbSession, table: string): Promise<LeafPartit
   const local = found.filter((l) => l.site === null).map((l) => l.relation);
   if (local.length > 0) await client.exec(`LOCK TABLE ${local.join(', ')} IN ACCESS SHARE MODE`);
   return found;
+}
+
+/**
+ * The distinct values of a categorical column of a sharded table, as levelQuery gives them: each
+ * local leaf's read on `client` (in the run's snapshot), each foreign leaf's on its shard, over
+ * the connection named like its server; merged and ordered on `client` in the column's type.
+ */
+async function shardLevels(
+  client: DbSession,
+  leaves: readonly LeafPartition[],
+  column: string,
+  cap: number,
+  typeOid: string,
+  connections: Connections,
+): Promise<unknown[][]> {
+  const values = new Set<string>();
+  for (const leaf of leaves) {
+    const query = leafLevelQuery(leaf.site === null ? leaf.relation : leaf.site.remote, column, cap);
+    let rows: unknown[][];
+    if (leaf.site === null) rows = await queryAll(client, query);
+    else {
+      const site = leaf.site;
+      const shard = openServerDatabase(connectionNamed(connections, site.server, `foreign partition ${site.partition} (foreign server ${site.server})`), 1);
+      try {
+        rows = await shard.withSession((s) => queryAll(s, query)).catch((e: unknown) => {
+          throw shardReadError(site, e);
+        });
+      } finally {
+        await shard.close();
+      }
+    }
+    for (const r of rows) values.add(String(r[0]));
+    // More than the cap in all: the levels fail on it, whatever the other leaves hold.
+    if (values.size > cap) break;
+  }
+  const type = (await client.query('SELECT format_type($1::oid, NULL)', [typeOid])).rows[0]?.[0];
+  const merged = mergedLevelsQuery(String(type), [...values], cap);
+  return (await client.query(merged.text, merged.values)).rows;
 }
 
 /**

@@ -181,10 +181,10 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     // Without a shared snapshot (the embedded database), a level the plan did not find fails the read.
     const guard = reads.snapshotId === null;
     const plan = await reads.withHoldingSession(async (session) => {
-      if (spec.watermark === null) return planFit(session, spec, parallel, {}, guard);
+      if (spec.watermark === null) return planFit(session, spec, parallel, {}, guard, connections);
       // The unscoped plan gives the design (columns, levels) that stored state must match.
-      refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel), req.full === true);
-      return planFit(session, spec, parallel, refit.scope, guard);
+      refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel, {}, false, connections), req.full === true);
+      return planFit(session, spec, parallel, refit.scope, guard, connections);
     });
     // An incremental refit refines from the previous solutions (no pass over the stored rows).
     if (refit !== null) refit = { ...(refit as RefitStart), solved: await previousSolutions(db, spec, refit) };

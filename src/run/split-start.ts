@@ -71,7 +71,7 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
       // row whose categorical value the plan did not find.
       const reads = await source.shareSnapshot();
       const plan = await reads
-        .withHoldingSession(async (session) => planFit(session, spec, split.partitions, { first: await splitScope(session, spec) }, true))
+        .withHoldingSession(async (session) => planFit(session, spec, split.partitions, { first: await splitScope(session, spec) }, true, connections))
         .finally(() => reads.release());
       await migrate(db, spec.schema);
       req.signal?.throwIfAborted();
