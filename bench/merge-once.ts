@@ -2,7 +2,7 @@ import { mergeSplitRun } from '../src/run/split-merge.js';
 import { resolveConnection } from '../src/source/connection-target.js';
 
 // The merge job of one split run in a process of its own, so that its peak RSS is its own:
-//   node dist/bench/merge-once.js DB SCHEMA RUN_ID BATCH_PARTITIONS
+//   node dist/bench/merge-once.js DB SCHEMA RUN_ID BATCH_STATES
 // prints {"seconds": …, "segments": …, "maxRssMb": …, "batches": …, "largestBatch": …}.
 const [db, schema, runId, batch] = process.argv.slice(2);
 const batches: number[] = [];
@@ -12,7 +12,7 @@ const out = await mergeSplitRun({
   schema: schema!,
   runId: Number(runId),
   final: true,
-  batchPartitions: Number(batch),
+  batchStates: Number(batch),
   onBatch: (n) => batches.push(n),
 });
 console.log(

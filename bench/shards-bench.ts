@@ -17,13 +17,16 @@ import { LocalCluster } from './local-cluster.js';
 // checked against 1, 2 and 3 local shards (throwaway clusters on ports 55450-55452), and the
 // memory of merging 1,024 partitions × 10,000 segments.
 //   ROWFOLD_BENCH_SHARD_ROWS   rows per shard (default 1,000,000)
-//   ROWFOLD_BENCH_MERGE_PARTS  partition counts of the merge rows (default 64,256,1024)
+//   ROWFOLD_BENCH_MERGE        merge rows: PARTITIONSxSEGMENTS[xPAGE|xall], comma-separated
 //   ROWFOLD_BENCH_SKIP         "read" or "merge" to skip a part
 const PORTS = [55450, 55451, 55452];
 const ROWS = Number(process.env['ROWFOLD_BENCH_SHARD_ROWS'] ?? 1_000_000);
-const MERGE_PARTS = (process.env['ROWFOLD_BENCH_MERGE_PARTS'] ?? '64,256,1024').split(',').map(Number);
+// partitions × segments [× states per page; default the merge's own]; "all" reads every state at once.
+const MERGE_CONFIGS = (process.env['ROWFOLD_BENCH_MERGE'] ?? '64x10000xall,64x10000,256x10000,1024x1000,1024x10000').split(',').map((c) => {
+  const [p, sgm, page] = c.split('x');
+  return { partitions: Number(p), segments: Number(sgm), page: page === undefined ? 20_000 : page === 'all' ? 1e12 : Number(page) };
+});
 const SKIP = process.env['ROWFOLD_BENCH_SKIP'] ?? '';
-const MERGE_SEGMENTS = 10_000;
 const DB = `rowfold_bench_shards_${process.pid}`;
 const dist = new URL('.', import.meta.url);
 const tmp = mkdtempSync(join(os.tmpdir(), 'rowfold-bench-shards-'));
@@ -124,30 +127,38 @@ try {
     const readRate = ROWS / median(floors);
     const t0 = median([0, 1, 2].map(() => fitOnce(spec('tiny', { source: 'tiny', ...MODEL }), 1, env).seconds));
     console.log(`\nper-run overhead t0 (a 2,000-row fit): ${t0.toFixed(2)} s; one shard's read floor r_read: ${(readRate / 1e6).toFixed(2)} M rows/s (${ROWS.toLocaleString('en-US')} rows in ${median(floors).toFixed(2)} s)`);
-    console.log('shards  rows        direct (fit --parallel)  through the coordinator (postgres_fdw)  predicted direct  measured/predicted  peak RSS');
+    console.log('shards  rows        direct (fit --parallel)  predicted  measured/predicted  thread folded   through the coordinator  predicted  measured/predicted  peak RSS');
     const points: Record<string, number>[] = [];
-    let foldRate = 0;
+    let jobRate = 0;
+    let funnelRate = 0;
     for (let n = 1; n <= shards.length; n++) {
       const s = spec(`direct_${n}`, { source: `sharded_${n}`, ...MODEL });
       const direct = [0, 1, 2].map(() => fitOnce(s, n + 1, env));
       const funnel = [0, 1, 2].map(() => fitOnce(s, 1, env));
       const d = median(direct.map((x) => x.seconds));
       const f = median(funnel.map((x) => x.seconds));
-      // One fold thread here (`fit` folds on its reading thread): the rate of one job, fitted at N = 1.
-      if (n === 1) foldRate = ROWS / (d - t0);
-      const predicted = t0 + (n * ROWS) / Math.min(n * readRate, 1 * foldRate);
-      points.push({ shards: n, rows: n * ROWS, direct: d, through: f, predicted, rss: median(direct.map((x) => x.rssMb)), passes: Math.max(...direct.map((x) => x.passes)) });
+      // The rate of one job (a shard read and folded), and of the funnel, fitted at N = 1. Direct:
+      // every shard at once, so T = t0 + R / r_job while the one folding thread keeps up (N · r_job
+      // below its rate). Through the coordinator: one backend carries every row, T = t0 + N R / r_funnel.
+      if (n === 1) {
+        jobRate = ROWS / (d - t0);
+        funnelRate = ROWS / (f - t0);
+      }
+      const predicted = t0 + ROWS / jobRate;
+      const predictedFunnel = t0 + (n * ROWS) / funnelRate;
+      const folded = (n * ROWS) / (d - t0);
+      points.push({ shards: n, rows: n * ROWS, direct: d, predicted, through: f, predictedFunnel, threadRowsPerSecond: folded, rss: median(direct.map((x) => x.rssMb)), passes: Math.max(...direct.map((x) => x.passes)) });
       if (process.env['ROWFOLD_BENCH_VERBOSE']) console.log(JSON.stringify({ direct, funnel }));
       console.log(
-        `${String(n).padStart(6)}  ${(n * ROWS).toLocaleString('en-US').padStart(10)}  ${d.toFixed(2).padStart(10)} s             ${f.toFixed(2).padStart(10)} s (${(f / d).toFixed(2)}× direct)            ` +
-          `${predicted.toFixed(2).padStart(8)} s  ${(d / predicted).toFixed(2).padStart(10)}          ${median(direct.map((x) => x.rssMb)).toFixed(0)} MB`,
+        `${String(n).padStart(6)}  ${(n * ROWS).toLocaleString('en-US').padStart(10)}  ${d.toFixed(2).padStart(10)} s             ${predicted.toFixed(2).padStart(6)} s  ${(d / predicted).toFixed(2).padStart(10)}          ` +
+          `${(folded / 1e6).toFixed(2).padStart(5)} M rows/s  ${f.toFixed(2).padStart(10)} s (${(f / d).toFixed(2)}×)  ${predictedFunnel.toFixed(2).padStart(6)} s  ${(f / predictedFunnel).toFixed(2).padStart(10)}          ${median(direct.map((x) => x.rssMb)).toFixed(0)} MB`,
       );
     }
-    console.log(`fold rate of one worker thread r_fold (fitted at N = 1): ${(foldRate / 1e6).toFixed(2)} M rows/s`);
+    console.log(`one job (a shard read and folded) r_job = min(r_read, r_fold): ${(jobRate / 1e6).toFixed(2)} M rows/s; through the coordinator r_funnel: ${(funnelRate / 1e6).toFixed(2)} M rows/s`);
 
     // A split run of the three shards, its jobs worked in this process: partition and merge seconds.
     const target = resolveConnection({ db: coordinator, env: {} });
-    const splitSpec = spec('split_3', { source: `sharded_${shards.length}`, ...MODEL, split: { partitions: 2 } });
+    const splitSpec = spec('split_3', { source: `sharded_${shards.length}`, ...MODEL, accuracy: 'fast', split: { partitions: 2 } });
     const start = await startSplitFit({ specPath: splitSpec, target, env, enqueue: async () => undefined });
     const jobs: number[] = [];
     for (let p = 0; p < start.partitions; p++) {
@@ -155,7 +166,7 @@ try {
       await foldPartition({ target, env, schema: 'rowfold', runId: start.runId, partition: p, worker: 'bench' });
       jobs.push((performance.now() - t) / 1000);
     }
-    const m = spawnSync(process.execPath, [new URL('merge-once.js', dist).pathname, coordinator, 'rowfold', String(start.runId), '16'], { encoding: 'utf8', env });
+    const m = spawnSync(process.execPath, [new URL('merge-once.js', dist).pathname, coordinator, 'rowfold', String(start.runId), '20000'], { encoding: 'utf8', env });
     const merged = JSON.parse(m.stdout.trim()) as { seconds: number; segments: number };
     const parts = await withClient(coordinator, (c) => c.query(`select partition_seconds, slowest_partition_seconds, merge_seconds from rowfold.split_runs where run_id = $1`, [start.runId]));
     const row = parts.rows[0] as { partition_seconds: number; merge_seconds: number };
@@ -165,21 +176,19 @@ try {
         `job bookkeeping ${(jobOverhead / start.partitions).toFixed(3)} s per job, merge job ${merged.seconds.toFixed(2)} s (${merged.segments} segments, ` +
         `merge ${row.merge_seconds.toFixed(2)} s)`,
     );
-    results['read'] = { rowsPerShard: ROWS, t0, readRate, foldRate, points, jobOverheadSeconds: jobOverhead / start.partitions, mergeJobSeconds: merged.seconds };
+    results['read'] = { rowsPerShard: ROWS, t0, readRate, jobRate, funnelRate, points, jobOverheadSeconds: jobOverhead / start.partitions, mergeJobSeconds: merged.seconds };
   }
 
   if (!SKIP.includes('merge')) {
-    // The merge of P partitions × 10,000 segments: a real split run of 2 partitions writes the
-    // partial factors; partition 0's are copied to partitions 2 … P-1; the merge job runs in a
-    // process of its own.
+    // The merge of P partitions × S segments: a real split run of 2 partitions writes the partial
+    // factors; partition 0's are copied to partitions 2 … P-1; the merge job runs in a process of its own.
     const target = resolveConnection({ db: coordinator, env: {} });
-    await withClient(coordinator, (c) => c.query(`create table seg10k as ${rowsSql(1, 4 * MERGE_SEGMENTS, MERGE_SEGMENTS)}`));
-    console.log(`\nmerge job of P partitions × ${MERGE_SEGMENTS.toLocaleString('en-US')} segments (order 6), in a process of its own`);
-    console.log('partitions  batch   partial states  seconds  peak RSS  largest batch held');
+    console.log('\nmerge job of P partitions × S segments (order 6), in a process of its own');
+    console.log('partitions  segments  page (states)  partial states  seconds  peak RSS  largest page held');
     const merges: Record<string, number>[] = [];
-    const configs: [number, number][] = MERGE_PARTS.flatMap((p): [number, number][] => (p <= 256 ? [[p, 16], [p, p]] : [[p, 16]]));
-    for (const [partitions, batch] of configs) {
-      const start = await startSplitFit({ specPath: spec(`merge_${partitions}_${batch}`, { source: 'seg10k', ...MODEL, split: { partitions: 2 } }), target, enqueue: async () => undefined });
+    for (const { partitions, segments, page } of MERGE_CONFIGS) {
+      await withClient(coordinator, (c) => c.query(`drop table if exists seg; create table seg as ${rowsSql(1, 4 * segments, segments)}`));
+      const start = await startSplitFit({ specPath: spec(`merge_${partitions}_${segments}`, { source: 'seg', ...MODEL, accuracy: 'fast', split: { partitions: 2 } }), target, enqueue: async () => undefined });
       for (let p = 0; p < 2; p++) await foldPartition({ target, schema: 'rowfold', runId: start.runId, partition: p, worker: 'bench' });
       await withClient(coordinator, async (c) => {
         await c.query('begin');
@@ -197,16 +206,16 @@ try {
         );
         await c.query('commit');
       });
-      const m = spawnSync('/usr/bin/time', ['-f', 'ROWFOLD_TIME %M', process.execPath, new URL('merge-once.js', dist).pathname, coordinator, 'rowfold', String(start.runId), String(batch)], {
+      const m = spawnSync('/usr/bin/time', ['-f', 'ROWFOLD_TIME %M', process.execPath, new URL('merge-once.js', dist).pathname, coordinator, 'rowfold', String(start.runId), String(page)], {
         encoding: 'utf8',
         maxBuffer: 1 << 20,
       });
       if (m.status !== 0) throw new Error(`merge failed: ${m.stderr}`);
-      const out = JSON.parse(m.stdout.trim()) as { outcome: string; seconds: number; segments: number; largestBatch: number };
+      const out = JSON.parse(m.stdout.trim().split('\n').pop()!) as { outcome: string; seconds: number; segments: number; largestBatch: number };
       const rss = Number(/ROWFOLD_TIME (\d+)/.exec(m.stderr)?.[1] ?? NaN) / 1024;
-      merges.push({ partitions, batch, seconds: out.seconds, rssMb: rss, largestBatch: out.largestBatch });
+      merges.push({ partitions, segments, page, seconds: out.seconds, rssMb: rss, largestPage: out.largestBatch });
       console.log(
-        `${String(partitions).padStart(10)}  ${String(batch).padStart(5)}  ${(partitions * MERGE_SEGMENTS).toLocaleString('en-US').padStart(14)}  ${out.seconds.toFixed(1).padStart(7)}  ${rss.toFixed(0).padStart(5)} MB  ${out.largestBatch.toLocaleString('en-US')} states (${out.outcome})`,
+        `${String(partitions).padStart(10)}  ${String(segments).padStart(8)}  ${(page >= 1e12 ? 'all' : page.toLocaleString('en-US')).padStart(13)}  ${(partitions * segments).toLocaleString('en-US').padStart(14)}  ${out.seconds.toFixed(1).padStart(7)}  ${rss.toFixed(0).padStart(5)} MB  ${out.largestBatch.toLocaleString('en-US')} states (${out.outcome})`,
       );
       await withClient(coordinator, (c) => c.query(`delete from rowfold.runs where run_id = $1`, [start.runId]));
     }

@@ -25,38 +25,41 @@ export interface MergeRequest {
   readonly final: boolean;
   /** Stops the merge at its next step (a read stops at once); nothing is published after it aborts. */
   readonly signal?: AbortSignal | undefined;
-  /** Partitions whose factors are read and merged at a time (default {@link MERGE_BATCH_PARTITIONS}). */
-  readonly batchPartitions?: number | undefined;
+  /** Partial states read and merged at a time (default {@link MERGE_BATCH_STATES}). */
+  readonly batchStates?: number | undefined;
   /** Called after each batch with the factors it read (for tests and the bench). */
   readonly onBatch?: ((factors: number) => void) | undefined;
 }
 
 /**
- * Partitions whose partial factors a merge holds at once, besides the merged factors: with
- * 10,000 segments of order 10, a batch is about 16 × 10,000 states of 55 doubles (70 MB as
- * Float64Arrays, several times that as the text the driver receives).
+ * Partial states (one partition's factor of one segment) a merge holds at once besides the merged
+ * factors: a page of 20,000 states of order 10 is about 9 MB as Float64Arrays, and some tens of
+ * MB as the rows the driver receives, whatever the partition and segment counts.
  */
-export const MERGE_BATCH_PARTITIONS = 16;
+export const MERGE_BATCH_STATES = 20_000;
 
 /**
- * Merges the partial factors of partitions 0 … `partitions` − 1 into `fit`, `batch` partitions at
- * a time, in partition order (the order of an all-at-once merge, so the result is the same to
- * the last bit): memory holds the merged factors and one batch, whatever the partition count.
+ * Merges the partial factors of a split run into `fit`, `batch` states at a time, read in
+ * (partition, segment key) order — the order of an all-at-once merge, so the result is the same
+ * to the last bit: memory holds the merged factors and one page, whatever the partition count.
  */
 export async function mergePartialBatches(
   store: Kysely<StoreDatabase>,
   schema: string,
   runId: number,
-  partitions: number,
   fit: SegmentedFit,
   batch: number,
   onBatch?: (factors: number) => void,
 ): Promise<void> {
-  const step = Math.max(1, Math.floor(batch));
-  for (let from = 0; from < partitions; from += step) {
-    const { factors } = await loadPartialFactors(store, schema, runId, { from, to: from + step });
+  const limit = Math.max(1, Math.floor(batch));
+  let after: { partition: number; segmentKey: string } | null = null;
+  for (;;) {
+    const { factors } = await loadPartialFactors(store, schema, runId, { after, limit });
     for (const f of factors) fit.ensure(f.key).acc.mergeState(f.state);
-    onBatch?.(factors.length);
+    if (factors.length > 0) onBatch?.(factors.length);
+    if (factors.length < limit) return;
+    const last = factors[factors.length - 1]!;
+    after = { partition: last.partition, segmentKey: last.segmentKey };
   }
 }
 
@@ -69,7 +72,7 @@ export interface MergeOutcome {
 
 /**
  * Merges the partial factors of a split run and publishes it, exactly once: the factors of
- * every partition are merged segment by segment (in partition order, a batch of partitions at a
+ * every partition are merged segment by segment (in partition order, a page of states at a
  * time: see {@link mergePartialBatches}), solved as `rowfold fit`
  * would (with the double-double pass `accuracy` may ask for, over every partition), and the
  * models, the run's counts and the removal of the partials are written in one transaction that
@@ -102,7 +105,7 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
         const started = performance.now();
         try {
           // The counts of every partition first (small); the factors a batch of partitions at a time, below.
-          const partials = await loadPartialFactors(store, req.schema, req.runId, { from: 0, to: 0 });
+          const partials = await loadPartialFactors(store, req.schema, req.runId, { after: null, limit: 0 });
           const written = new Set(partials.partitions.map((p) => p.partition));
           const missing = Array.from({ length: run.partitions }, (_, i) => i).filter((i) => !written.has(i));
           if (missing.length > 0) {
@@ -114,7 +117,7 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const { firstPlan, firstOptions } = passesOf(spec, plan, {}, null, false);
           const shape = { terms: firstPlan.columns, response: spec.response, weight: spec.weight ?? undefined, intercept: spec.intercept };
           const fit = new SegmentedFit(shape, firstPlan.keyNames, firstOptions);
-          await mergePartialBatches(store, req.schema, req.runId, run.partitions, fit, req.batchPartitions ?? MERGE_BATCH_PARTITIONS, req.onBatch);
+          await mergePartialBatches(store, req.schema, req.runId, fit, req.batchStates ?? MERGE_BATCH_STATES, req.onBatch);
           const counts = partials.partitions.map((p) => p.counts as DesignReadCounts);
           // A double-double pass reads every partition at once, over one snapshot (each shard in one of its own).
           const connections = loadConnections({ file: req.connections, env: req.env ?? process.env });
