@@ -106,3 +106,27 @@ describe('errors of a read on a shard', () => {
     expect(e.message).toMatch(/^shard shard_2 \(.*\) does not match the plan: column "humidity" does not exist; the shard's table must have the columns and types/);
   });
 });
+
+describe('the design plan of a sharded table (issue 17)', () => {
+  it('reads each foreign leaf from its remote table and each local leaf itself, and keeps the sites through JSON', async () => {
+    const { buildDesignPlan } = await import('../../src/plan/design-plan.js');
+    const { designPlanFromJson, designPlanToJson } = await import('../../src/plan/design-plan-json.js');
+    const { parseFitSpec } = await import('../../src/spec/parse-fit-spec.js');
+    const spec = parseFitSpec('name: sharded\nsource: readings\nresponse: load_kw\nterms: [temp_c]\nsegment_by: feeder\nsplit: {partitions: 2}\n', 's.yaml');
+    const site = { server: 'shard_1', partition: 'public.readings_s1', remote: '"public"."meter_load"', where: '10.0.0.1:5432/meters' };
+    const leaves = [
+      { relation: 'public.readings_local', site: null },
+      { relation: 'public.readings_s1', site },
+    ];
+    const plan = buildDesignPlan(spec, new Map(), [], leaves);
+    expect(plan.sites).toEqual([null, site]);
+    const [local, remote] = plan.queries.map((q) => q.toBound().text);
+    expect(local).toMatch(/\n {2}FROM public\.readings_local AS "rowfold_src"$/);
+    expect(remote).toMatch(/\n {2}FROM "public"\."meter_load" AS "rowfold_src"$/);
+    const again = designPlanFromJson(JSON.parse(JSON.stringify(designPlanToJson(plan))));
+    expect(again.sites).toEqual([null, site]);
+    expect(again.queries.map((q) => q.toBound())).toEqual(plan.queries.map((q) => q.toBound()));
+    // An unsharded plan has no sites at all.
+    expect(buildDesignPlan(spec, new Map(), [], null).sites).toBeUndefined();
+  });
+});
