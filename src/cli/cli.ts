@@ -5,6 +5,7 @@ import { PlanError } from '../plan/plan-error.js';
 import { SpecFileError } from '../run/run-fit.js';
 import { SpecError } from '../spec/spec-error.js';
 import { ConnectionConfigError } from '../source/connection-config-error.js';
+import { ConnectionsFileError } from '../source/connections-file.js';
 import { maskSecrets } from '../source/mask-secrets.js';
 import { setNoticeSink } from '../source/notices.js';
 import { CliError, ExitCode } from './exit-codes.js';
@@ -54,6 +55,7 @@ function describeFailure(e: unknown): { code: number; text: string } {
   if (e instanceof CliError) return { code: e.exitCode, text: message };
   if (e instanceof SpecFileError) return { code: ExitCode.usage, text: message };
   if (e instanceof ConnectionConfigError) return { code: ExitCode.usage, text: message };
+  if (e instanceof ConnectionsFileError) return { code: ExitCode.usage, text: message };
   if (e instanceof ScheduleError) return { code: ExitCode.usage, text: message };
   if (e instanceof SpecError) return { code: ExitCode.usage, text: `bad spec: ${message}` };
   if (e instanceof PlanError) return { code: ExitCode.usage, text: `spec does not fit the source: ${message}` };

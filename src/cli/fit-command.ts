@@ -24,6 +24,7 @@ export function fitCommand(y: Argv): Argv {
           describe:
             'PostgreSQL URL, or embedded:FOLDER (default: DATABASE_URL, then the PG* variables, then the embedded database in .rowfold/db)',
         })
+        .option('connections', { type: 'string', describe: 'connections file (YAML, name: URL) for shards and read_from (default: ROWFOLD_CONNECTIONS)' })
         .option('parallel', { type: 'number', default: 1, describe: 'read N disjoint partitions over N connections' })
         .option('threads', {
           type: 'number',
@@ -65,6 +66,7 @@ export function fitCommand(y: Argv): Argv {
           },
           specPath: args.spec,
           db: args.db,
+          connections: args.connections,
           parallel,
           threads,
           read: args.read,
@@ -178,7 +180,10 @@ function dryRunJson(r: RunFitResult): unknown {
     fit: r.spec.name,
     columns: r.plan.columns,
     levels: r.plan.levels,
-    queries: r.plan.queries.map((q) => q.toBound()),
+    queries: r.plan.queries.map((q, i) => {
+      const site = r.plan.sites?.[i] ?? null;
+      return site === null ? q.toBound() : { ...q.toBound(), shard: site.server };
+    }),
   };
 }
 
@@ -190,7 +195,9 @@ function dryRunText(r: RunFitResult): string {
   }
   r.plan.queries.forEach((q, i) => {
     const { text, values } = q.toBound();
-    out.push('', r.plan.queries.length > 1 ? `design query, partition ${i + 1} of ${r.plan.queries.length}:` : 'design query:', text);
+    const site = r.plan.sites?.[i] ?? null;
+    const where = site === null ? '' : ` (on shard ${site.server}, ${site.where})`;
+    out.push('', r.plan.queries.length > 1 ? `design query, partition ${i + 1} of ${r.plan.queries.length}${where}:` : 'design query:', text);
     if (values.length > 0) out.push(`parameters: ${values.map((v, j) => `$${j + 1} = ${JSON.stringify(v)}`).join(', ')}`);
   });
   return out.join('\n') + '\n';

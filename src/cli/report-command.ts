@@ -1,6 +1,7 @@
 import type { Argv } from 'yargs';
 import { ReportError } from '../report/report-error.js';
 import { writeFitReport } from '../report/write-fit-report.js';
+import { loadConnections } from '../source/connections-file.js';
 import { openDatabase } from '../source/open-database.js';
 import { CliError, ExitCode } from './exit-codes.js';
 
@@ -15,12 +16,14 @@ export function reportCommand(y: Argv): Argv {
         .option('out', { type: 'string', describe: 'HTML file to write (default: FIT-report.html)' })
         .option('segment', { type: 'string', describe: 'segment for the residual plots: its key or col=value (default: the one with most rows)' })
         .option('db', { type: 'string', describe: 'PostgreSQL URL, or embedded:FOLDER (default as for fit)' })
-        .option('schema', { type: 'string', default: 'rowfold', describe: 'result schema' }),
+        .option('schema', { type: 'string', default: 'rowfold', describe: 'result schema' })
+        .option('connections', { type: 'string', describe: 'connections file (YAML, name: URL): a fit with read_from is sampled there (default: ROWFOLD_CONNECTIONS)' }),
     async (args) => {
       const out = args.out ?? `${args.fit}-report.html`;
+      const connections = loadConnections({ file: args.connections, env: process.env });
       const database = await openDatabase({ db: args.db, env: process.env, sessions: 2 });
       try {
-        const { path, segments } = await writeFitReport(database, { fit: args.fit, schema: args.schema, segment: args.segment, out });
+        const { path, segments } = await writeFitReport(database, { fit: args.fit, schema: args.schema, segment: args.segment, out, connections });
         process.stdout.write(`report of fit ${args.fit} (${segments} segment${segments === 1 ? '' : 's'}) written to ${path}\n`);
       } catch (e) {
         if (e instanceof ReportError) throw new CliError(e.message, e.usage ? ExitCode.usage : ExitCode.failed, { cause: e });

@@ -22,6 +22,7 @@ export function serveCommand(y: Argv): Argv {
         .positional('specs', { type: 'string', array: true, describe: 'fit specs with schedule: (or schedule files)' })
         .option('schedules', { type: 'string', describe: `schedule file: a list of {spec, cron} (default ${DEFAULT_SCHEDULES} when no spec is named)` })
         .option('db', { type: 'string', describe: 'PostgreSQL URL (default: DATABASE_URL, then the PG* variables); not the embedded database' })
+        .option('connections', { type: 'string', describe: 'connections file (YAML, name: URL) for shards and read_from (default: ROWFOLD_CONNECTIONS)' })
         .option('concurrency', { type: 'number', default: 1, describe: 'jobs (fits, partitions of split fits) this process works at once' })
         .option('job-timeout-seconds', {
           type: 'number',
@@ -105,7 +106,7 @@ export function serveCommand(y: Argv): Argv {
           maintenanceSeconds: args.maintenanceSeconds,
           onReady: () =>
             log(`serving ${schedules.length} fit${schedules.length === 1 ? '' : 's'}, ${args.concurrency} at a time (queue schema ${JOBS_SCHEMA} on ${target.display})`),
-          runJob: fitJobRunner({ target, db: args.db, env: process.env }),
+          runJob: fitJobRunner({ target, db: args.db, env: process.env, connections: args.connections }),
         });
         log(`stopped: ${summary.succeeded} succeeded, ${summary.failed} failed, ${summary.skipped} skipped, ${summary.released} handed back`);
         // Dropped runs may still be working in this process: leave them behind, at once.

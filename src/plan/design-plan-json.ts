@@ -1,5 +1,6 @@
 import type { DesignPlan } from './design-plan.js';
 import type { CategoricalLevels } from './resolve-levels.js';
+import type { ReadSite } from './shard-layout.js';
 import { SqlTemplate } from './sql-template.js';
 import type { SqlPart } from './sql-template.js';
 
@@ -19,6 +20,7 @@ export function designPlanToJson(plan: DesignPlan): unknown {
     keyNames: plan.keyNames,
     levels: plan.levels,
     queries: plan.queries.map((q) => q.parts),
+    sites: plan.sites,
     valueTypes: plan.valueTypes,
     extended: plan.extended === undefined ? undefined : designPlanToJson(plan.extended),
     extendedFloat: plan.extendedFloat === undefined ? undefined : designPlanToJson(plan.extendedFloat),
@@ -51,6 +53,7 @@ export function designPlanFromJson(value: unknown): DesignPlan {
       return new SqlTemplate(parts as SqlPart[]);
     }),
     valueTypes: strings('valueTypes') as ('float8' | 'numeric')[],
+    ...(Array.isArray(v['sites']) ? { sites: v['sites'] as (ReadSite | null)[] } : {}),
     extended: v['extended'] === undefined || v['extended'] === null ? undefined : designPlanFromJson(v['extended']),
     extendedFloat: v['extendedFloat'] === undefined || v['extendedFloat'] === null ? undefined : designPlanFromJson(v['extendedFloat']),
   };

@@ -2,6 +2,8 @@ import type { FitSpec } from '../spec/fit-spec.js';
 import type { FloatCast } from './check-expression-types.js';
 import { PlanError } from './plan-error.js';
 import type { CategoricalLevels } from './resolve-levels.js';
+import { leafRelation } from './shard-layout.js';
+import type { LeafPartition, ReadSite } from './shard-layout.js';
 import { SOURCE_ALIAS, sourceRelation } from './source-relation.js';
 import { SqlTemplate, quoteIdent } from './sql-template.js';
 import { guardLevels } from './unplanned-level.js';
@@ -31,6 +33,11 @@ export interface DesignPlan {
   readonly levels: readonly CategoricalLevels[];
   /** One design query per partition (a single one without partitions). */
   readonly queries: readonly SqlTemplate[];
+  /**
+   * Per query, where it is read when that is not the run's source connection: the shard of a
+   * postgres_fdw foreign partition (null entries, or no list, read over the source connection).
+   */
+  readonly sites?: readonly (ReadSite | null)[];
   /** Per value column, its wire type (all float8 unless the plan carries exact decimals). */
   readonly valueTypes: readonly ('float8' | 'numeric')[];
   /**
@@ -65,14 +72,15 @@ export const BUCKET_KEY = 'rowfold_bucket';
  * Builds the design query: segment columns as text, then every design column as float8
  * (terms as written, one 0/1 indicator per non-reference level, products for
  * interactions), the response and the weight, from the source, once per partition
- * predicate. Without an intercept the first categorical keeps all its levels, so the
+ * predicate, or once per leaf partition of a sharded table (each read from the leaf itself: a
+ * foreign one from its remote table, see plan/shard-layout). Without an intercept the first categorical keeps all its levels, so the
  * model still spans a constant.
  */
 export function buildDesignPlan(
   spec: FitSpec,
   casts: ReadonlyMap<string, FloatCast>,
   levels: readonly CategoricalLevels[],
-  partitions: readonly SqlTemplate[] | null,
+  partitions: readonly SqlTemplate[] | readonly LeafPartition[] | null,
   exact: ReadonlySet<string> = new Set(),
   scope: DesignScope = {},
 ): DesignPlan {
@@ -150,10 +158,14 @@ export function buildDesignPlan(
       : [SqlTemplate.join([scope.bucket, ` AS ${quoteIdent(`k${spec.segmentBy.length}`)}`])]),
     ...values.map((v, i) => SqlTemplate.join([v.sql, ` AS ${quoteIdent(`v${i}`)}`])),
   ];
-  select.push(SqlTemplate.join(items, ',\n       '), '\n  FROM ', sourceRelation(spec));
-  const base = SqlTemplate.join(select);
-  const queries = (partitions ?? [null]).map((p) => {
-    const where = [p, scope.filter ?? null].filter((c): c is SqlTemplate => c !== null);
+  select.push(SqlTemplate.join(items, ',\n       '), '\n  FROM ');
+  const head = SqlTemplate.join(select);
+  const leaves = partitions !== null && partitions.length > 0 && !(partitions[0] instanceof SqlTemplate) ? (partitions as readonly LeafPartition[]) : null;
+  const parts: readonly (SqlTemplate | LeafPartition | null)[] = partitions ?? [null];
+  const queries = parts.map((p) => {
+    const leaf = p === null || p instanceof SqlTemplate ? null : p;
+    const base = SqlTemplate.join([head, leaf === null ? sourceRelation(spec) : leafRelation(leaf, SOURCE_ALIAS)]);
+    const where = [p instanceof SqlTemplate ? p : null, scope.filter ?? null].filter((c): c is SqlTemplate => c !== null);
     if (where.length === 0) return base;
     if (where.length === 1) return SqlTemplate.join([base, '\n WHERE ', where[0]!]);
     // Both in parentheses, so neither binds to the other's operators.
@@ -166,6 +178,7 @@ export function buildDesignPlan(
     keyNames: scope.bucket === undefined ? [...spec.segmentBy] : [...spec.segmentBy, BUCKET_KEY],
     levels,
     queries,
+    ...(leaves === null ? {} : { sites: leaves.map((l) => l.site) }),
     valueTypes: values.map((v) => v.type),
   };
 }

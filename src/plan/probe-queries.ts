@@ -41,10 +41,14 @@ export function probedExpressions(spec: FitSpec): ProbedExpression[] {
 /**
  * A query that evaluates the given expressions over the source without reading a row
  * (`LIMIT 0`), so the server reports their types, or the error that one of them raises.
+ * With `pruned`, a constant-false filter too: the planner then prunes every partition of a
+ * partitioned table, so that foreign partitions are not even opened (postgres_fdw connects to
+ * each shard to start a scan, even one that returns nothing). Without it every partition is
+ * planned, and so locked by the transaction that plans.
  */
-export function probeQuery(spec: FitSpec, expressions: readonly ProbedExpression[]): SqlTemplate {
+export function probeQuery(spec: FitSpec, expressions: readonly ProbedExpression[], pruned = false): SqlTemplate {
   const list = expressions.map((e, i) => `(${e.sql}) AS ${quoteIdent(`e${i}`)}`).join(',\n       ');
-  return SqlTemplate.join([`SELECT ${list.length > 0 ? list : '1'}\n  FROM `, sourceRelation(spec), '\n LIMIT 0']);
+  return SqlTemplate.join([`SELECT ${list.length > 0 ? list : '1'}\n  FROM `, sourceRelation(spec), pruned ? '\n WHERE false\n LIMIT 0' : '\n LIMIT 0']);
 }
 
 /**
@@ -69,4 +73,26 @@ export function tablePagesQuery(qualifiedName: string): SqlTemplate {
     { value: qualifiedName },
     "::regclass) / current_setting('block_size')::bigint)::float8",
   ]);
+}
+
+/**
+ * The distinct non-NULL values, as text, of a categorical column of one leaf partition of a
+ * sharded table (`relation`: the FROM item, the leaf itself or its remote table on a shard); at
+ * most one more than the cap. The leaves' values are merged by {@link mergedLevelsQuery}.
+ */
+export function leafLevelQuery(relation: string, column: string, cap: number): SqlTemplate {
+  const c = `${quoteIdent('rowfold_src')}.${quoteIdent(column)}`;
+  return SqlTemplate.join([`SELECT DISTINCT ${c}::text\n  FROM ${relation} AS ${quoteIdent('rowfold_src')}\n WHERE ${c} IS NOT NULL\n LIMIT `, { value: cap + 1 }]);
+}
+
+/**
+ * The levels of a categorical column of a sharded table from every leaf's values (bound as a
+ * text array), as {@link levelQuery} gives them: each value in the column's type (`typeSql`, the
+ * server's own `format_type`), in that type's order, with its text form.
+ */
+export function mergedLevelsQuery(typeSql: string, values: readonly string[], cap: number): { text: string; values: unknown[] } {
+  return {
+    text: `SELECT DISTINCT v, v::text\n  FROM unnest($1::text[]) AS t, LATERAL (SELECT t::${typeSql} AS v) AS x\n ORDER BY 1\n LIMIT $2`,
+    values: [[...values], cap + 1],
+  };
 }

@@ -1,7 +1,10 @@
 import { mkdir, writeFile } from 'node:fs/promises';
 import { dirname, resolve } from 'node:path';
 import { toolVersion } from '../run/tool-version.js';
+import { connectionNamed, NO_CONNECTIONS } from '../source/connections-file.js';
+import type { Connections } from '../source/connections-file.js';
 import type { Database } from '../source/database.js';
+import { openServerDatabase } from '../source/server-database.js';
 import { maskSecrets } from '../source/mask-secrets.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
@@ -25,6 +28,8 @@ export interface WriteFitReportOptions {
   readonly out: string;
   /** Most rows sampled for the residual plots; default 2000. */
   readonly sampleRows?: number;
+  /** Named connections: a spec with `read_from` has its sample read over that connection. */
+  readonly connections?: Connections | undefined;
 }
 
 const DEFAULT_SAMPLE_ROWS = 2000;
@@ -58,7 +63,7 @@ export async function writeFitReport(database: Database, opts: WriteFitReportOpt
     await db.destroy();
   }
   const model = chooseSegment(run.models, opts.segment);
-  const residuals = await residualOutcome(database, run.specText, opts.fit, run.runId, model, sampleRows);
+  const residuals = await residualOutcome(database, run.specText, opts.fit, run.runId, model, sampleRows, opts.connections ?? NO_CONNECTIONS);
   const html = await renderReportHtml({
     run,
     context: { database: database.display, generatedAt: new Date(), toolVersion: toolVersion() },
@@ -86,6 +91,7 @@ async function residualOutcome(
   runId: string,
   model: ReportModel,
   sampleRows: number,
+  connections: Connections,
 ): Promise<ResidualOutcome> {
   if (model.status !== 'ok' && model.status !== 'no_residual_df') {
     return { problem: `The model of this segment has no estimates (${model.status}): there are no fitted values to plot.` };
@@ -97,7 +103,14 @@ async function residualOutcome(
     return { problem: `The stored spec of run ${runId} no longer parses, so the design query cannot be planned again: ${message(e)}` };
   }
   try {
-    return { sample: await sampleResiduals(database, spec, model, sampleRows) };
+    // The rows are where the run read them: over its read_from connection, if it named one.
+    if (spec.readFrom === null) return { sample: await sampleResiduals(database, spec, model, sampleRows) };
+    const source = openServerDatabase(connectionNamed(connections, spec.readFrom, `read_from: ${spec.readFrom} (the spec of run ${runId})`), 1);
+    try {
+      return { sample: await sampleResiduals(source, spec, model, sampleRows) };
+    } finally {
+      await source.close();
+    }
   } catch (e) {
     return { problem: `Could not read a sample of the rows of fit ${fit} from the source: ${message(e)}` };
   }

@@ -3,13 +3,19 @@ import { buildDesignPlan } from '../plan/design-plan.js';
 import type { DesignPlan, DesignScope } from '../plan/design-plan.js';
 import { partitionPredicates } from '../plan/partition-predicates.js';
 import { PlanError } from '../plan/plan-error.js';
-import { levelQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
+import { leafLevelQuery, levelQuery, mergedLevelsQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
 import { resolveLevels } from '../plan/resolve-levels.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
+import { LEAF_PARTITIONS_SQL, leafPartitions } from '../plan/shard-layout.js';
+import type { LeafPartition } from '../plan/shard-layout.js';
 import { sourceTableName } from '../plan/source-relation.js';
+import { connectionNamed, NO_CONNECTIONS } from '../source/connections-file.js';
+import type { Connections } from '../source/connections-file.js';
 import type { DbSession } from '../source/database.js';
+import { openServerDatabase } from '../source/server-database.js';
 import { describeQuery, queryAll } from '../source/query-helpers.js';
 import type { FitSpec } from '../spec/fit-spec.js';
+import { shardReadError } from './read-sites.js';
 
 /**
  * Plans a fit against the live source: checks the type of every expression (finding the
@@ -18,6 +24,10 @@ import type { FitSpec } from '../spec/fit-spec.js';
  * pass of an incremental or window fit (see refitFilter). With `guardLevels`, every pass fails
  * on a row whose categorical value the plan did not find (for reads that do not share the plan's
  * snapshot; see guardLevels in plan/unplanned-level).
+ *
+ * A table source with postgres_fdw foreign partitions, read with `parallel` above 1, is cut into
+ * one partition per leaf instead (whatever `parallel` says): each foreign leaf is read from its
+ * remote table on its own server (the plan's `sites`), each local leaf on the source connection.
  */
 export async function planFit(
   client: DbSession,
@@ -25,11 +35,19 @@ export async function planFit(
   parallel: number,
   scope: { first?: DesignScope; extended?: DesignScope } = {},
   guardLevels = false,
+  connections: Connections = NO_CONNECTIONS,
 ): Promise<DesignPlan> {
   const expressions = probedExpressions(spec);
+  const table = sourceTableName(spec);
+  // A table with postgres_fdw foreign partitions is read leaf by leaf, each foreign one on its
+  // shard: found from the catalog first, so that no probe opens a foreign scan.
+  const leaves = parallel > 1 && table !== null ? await shardLeaves(client, table) : null;
   let types: string[];
+  let typeOids: string[];
   try {
-    types = (await describeQuery(client, probeQuery(spec, expressions))).map((f) => f.typeName);
+    const described = await describeQuery(client, probeQuery(spec, expressions, leaves !== null));
+    types = described.map((f) => f.typeName);
+    typeOids = described.map((f) => String(f.dataTypeID));
   } catch (e) {
     throw await locateProbeFailure(client, spec, expressions, e);
   }
@@ -37,16 +55,22 @@ export async function planFit(
   const numeric = numericExpressionKeys(expressions, types);
   const levels: CategoricalLevels[] = [];
   for (const [i, cat] of spec.categorical.entries()) {
-    const rows = await queryAll(client, levelQuery(spec, cat.column, cat.maxLevels));
+    // A sharded table's levels are gathered leaf by leaf, each shard's on the shard itself, so
+    // that no column is read through the coordinator.
+    const rows =
+      leaves === null
+        ? await queryAll(client, levelQuery(spec, cat.column, cat.maxLevels))
+        : await shardLevels(client, leaves, cat.column, cat.maxLevels, typeOids[expressions.findIndex((e) => e.key === `categorical[${i}]`)]!, connections);
     levels.push(resolveLevels(cat, i, rows));
   }
   let pages: number | null = null;
-  const table = sourceTableName(spec);
-  if (parallel > 1 && spec.partitionKey === null && table !== null) {
+  if (leaves === null && parallel > 1 && spec.partitionKey === null && table !== null) {
     const rows = await queryAll(client, tablePagesQuery(table));
     pages = Number(rows[0]?.[0] ?? 0);
   }
-  const partitions = partitionPredicates(spec, parallel, pages);
+  const partitions = leaves ?? partitionPredicates(spec, parallel, pages);
+  // Shards are read outside the run's snapshot: a categorical value the plan did not find fails the read.
+  guardLevels = guardLevels || leaves !== null;
   // The first pass may be scoped differently from a second, double-double one: an incremental
   // fit folds only new rows (per bucket) into stored state, the second pass reads them all.
   const first = { ...scope.first, guardLevels };
@@ -55,6 +79,61 @@ export async function planFit(
   const extended = buildDesignPlan(spec, casts, levels, partitions, numeric, second ?? first);
   const extendedFloat = second === undefined ? undefined : buildDesignPlan(spec, casts, levels, partitions, new Set(), second);
   return { ...fast, extended, extendedFloat };
+}
+
+/**
+ * The leaves of a sharded table source (see plan/shard-layout), or null when it has no
+ * postgres_fdw foreign partition or fewer than two leaves (a lone foreign table is read through
+ * the source, cut by pages). The local leaves are locked on `client` (ACCESS SHARE): on the
+ * session that holds a run's snapshot this keeps them from being altered or truncated until the
+ * run ends, as the probe of an unsharded source does by planning every partition.
+ */
+async function shardLeaves(client: DbSession, table: string): Promise<LeafPartition[] | null> {
+  // A source that is not a table (a view) or does not exist: the probe says what is wrong.
+  const rows = await client.query(LEAF_PARTITIONS_SQL, [table]).then((r) => r.rows, () => []);
+  const found = leafPartitions(rows);
+  if (found === null || found.length < 2) return null;
+  const local = found.filter((l) => l.site === null).map((l) => l.relation);
+  if (local.length > 0) await client.exec(`LOCK TABLE ${local.join(', ')} IN ACCESS SHARE MODE`);
+  return found;
+}
+
+/**
+ * The distinct values of a categorical column of a sharded table, as levelQuery gives them: each
+ * local leaf's read on `client` (in the run's snapshot), each foreign leaf's on its shard, over
+ * the connection named like its server; merged and ordered on `client` in the column's type.
+ */
+async function shardLevels(
+  client: DbSession,
+  leaves: readonly LeafPartition[],
+  column: string,
+  cap: number,
+  typeOid: string,
+  connections: Connections,
+): Promise<unknown[][]> {
+  const values = new Set<string>();
+  for (const leaf of leaves) {
+    const query = leafLevelQuery(leaf.site === null ? leaf.relation : leaf.site.remote, column, cap);
+    let rows: unknown[][];
+    if (leaf.site === null) rows = await queryAll(client, query);
+    else {
+      const site = leaf.site;
+      const shard = openServerDatabase(connectionNamed(connections, site.server, `foreign partition ${site.partition} (foreign server ${site.server})`), 1);
+      try {
+        rows = await shard.withSession((s) => queryAll(s, query)).catch((e: unknown) => {
+          throw shardReadError(site, e);
+        });
+      } finally {
+        await shard.close();
+      }
+    }
+    for (const r of rows) values.add(String(r[0]));
+    // More than the cap in all: the levels fail on it, whatever the other leaves hold.
+    if (values.size > cap) break;
+  }
+  const type = (await client.query('SELECT format_type($1::oid, NULL)', [typeOid])).rows[0]?.[0];
+  const merged = mergedLevelsQuery(String(type), [...values], cap);
+  return (await client.query(merged.text, merged.values)).rows;
 }
 
 /**

@@ -6,7 +6,10 @@ import { solve } from '../fit/solve.js';
 import { solveExtended } from '../fit/solve-extended.js';
 import type { DesignPlan } from '../plan/design-plan.js';
 import type { Database, SharedSnapshot } from '../source/database.js';
+import { connectionNamed, loadConnections } from '../source/connections-file.js';
+import type { Connections } from '../source/connections-file.js';
 import { openDatabase } from '../source/open-database.js';
+import { openServerDatabase } from '../source/server-database.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
@@ -18,6 +21,7 @@ import { finishRefit, startRefit, storedStates } from './refit.js';
 import type { RefitOutcome, RefitStart } from './refit.js';
 import { AUTO_TARGET_DIGITS, certifyDigits } from './accuracy-passes.js';
 import { readPass } from './read-pass.js';
+import { ReadSites } from './read-sites.js';
 import { previousSolutions } from './refit-anchors.js';
 import { toolVersion } from './tool-version.js';
 import { collectGarbage, MODELS_PER_COLLECTION } from './collect-garbage.js';
@@ -33,6 +37,15 @@ export interface RunFitRequest {
   /** `--db URL`; otherwise DATABASE_URL, then the PG* variables. */
   readonly db?: string | undefined;
   readonly env?: NodeJS.ProcessEnv;
+  /**
+   * `--connections FILE`: the connections file that names shards and the spec's `read_from`
+   * (otherwise ROWFOLD_CONNECTIONS), see loadConnections.
+   */
+  readonly connections?: string | undefined;
+  /** The shards a run reads its foreign partitions from; opened by the run itself (not for callers). */
+  readonly sites?: ReadSites | undefined;
+  /** Reads of a shard's partition before the run fails (default SHARD_READ_ATTEMPTS; a split run's job: 1, the queue retries). */
+  readonly shardAttempts?: number | undefined;
   readonly parallel?: number;
   /**
    * Threads that fold blocks beside the reading thread (0: fold on the reading thread).
@@ -110,15 +123,49 @@ export function loadSpecFile(specPath: string): Promise<FitSpec> {
   });
 }
 
-/** Writes the `runs` row of a run about to read `plan`: the audit trail of what it will fit. */
-export function startFitRun(db: Kysely<StoreDatabase>, spec: FitSpec, plan: DesignPlan): Promise<number> {
+/**
+ * Writes the `runs` row of a run about to read `plan`: the audit trail of what it will fit, and
+ * where it reads (`readFrom`, see {@link readFromText}).
+ */
+export function startFitRun(db: Kysely<StoreDatabase>, spec: FitSpec, plan: DesignPlan, readFrom: string | null = null): Promise<number> {
   return startRun(db, spec.schema, {
     fitName: spec.name,
     specHash: spec.hash,
     specText: spec.text,
-    designQuery: plan.queries.map((q) => q.toBound().text).join('\n-- next partition --\n'),
+    designQuery: plan.queries
+      .map((q, i) => {
+        const site = plan.sites?.[i] ?? null;
+        return (site === null ? '' : `-- on shard ${site.server}\n`) + q.toBound().text;
+      })
+      .join('\n-- next partition --\n'),
     toolVersion: TOOL_VERSION,
+    readFrom,
   });
+}
+
+/**
+ * Where a run reads its rows, for `runs.read_from`: the `read_from` connection and the shards read
+ * directly, each as `name (user@host:port/database)`; null when every row is read from the
+ * database the run publishes to. Never a password (a connection's display has none).
+ */
+export function readFromText(spec: FitSpec, connections: Connections, sites: ReadSites | undefined): string | null {
+  const parts: string[] = [];
+  if (spec.readFrom !== null) {
+    const target = connectionNamed(connections, spec.readFrom, 'read_from');
+    parts.push(`${spec.readFrom} (${target.display})`);
+  }
+  const shards = sites?.describe() ?? [];
+  if (shards.length > 0) parts.push(`shards ${shards.join(', ')}`);
+  return parts.length === 0 ? null : parts.join('; ');
+}
+
+/**
+ * The database a run reads its source from: the spec's `read_from` connection (a server of
+ * `sessions` connections), or `database` itself.
+ */
+export function openSourceDatabase(spec: FitSpec, connections: Connections, database: Database, sessions: number): Database {
+  if (spec.readFrom === null) return database;
+  return openServerDatabase(connectionNamed(connections, spec.readFrom, `read_from: ${spec.readFrom} (spec ${spec.origin})`), sessions);
 }
 
 /**
@@ -129,39 +176,47 @@ export function startFitRun(db: Kysely<StoreDatabase>, spec: FitSpec, plan: Desi
 export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
   const spec = await loadSpecFile(req.specPath);
   const parallel = req.parallel ?? 1;
+  const connections = loadConnections({ file: req.connections, env: req.env ?? process.env });
+  // Checked before anything opens: a read_from name the file lacks is a usage error.
+  if (spec.readFrom !== null) connectionNamed(connections, spec.readFrom, `read_from: ${spec.readFrom} (spec ${spec.origin})`);
   const database = await openDatabase({ db: req.db, env: req.env ?? process.env, sessions: parallel + 1 });
   const db = createStoreDb(database.dialect());
+  // Rows are read over read_from when the spec names one; results go to `database` either way.
+  const source = openSourceDatabase(spec, connections, database, parallel + 1);
   let reads: SharedSnapshot | undefined;
+  let sites: ReadSites | undefined;
   try {
-    if (parallel > database.maxSessions) {
-      throw new SpecFileError(`--parallel ${parallel}: the ${database.kind} database serves ${database.maxSessions} reader(s) at once`);
+    if (parallel > source.maxSessions) {
+      throw new SpecFileError(`--parallel ${parallel}: the ${source.kind} database serves ${source.maxSessions} reader(s) at once`);
     }
     let refit: RefitStart | null = null;
     // Read before the session opens: the embedded database serves one session at a time.
     const stored = spec.watermark === null ? [] : await storedStates(db, spec);
     // Every read of the run (the plan's probes, each partition, a second pass) sees one snapshot,
     // and the plan's locks keep the source from being altered or truncated until the run ends.
-    reads = await database.shareSnapshot();
+    reads = await source.shareSnapshot();
     // Without a shared snapshot (the embedded database), a level the plan did not find fails the read.
     const guard = reads.snapshotId === null;
     const plan = await reads.withHoldingSession(async (session) => {
-      if (spec.watermark === null) return planFit(session, spec, parallel, {}, guard);
+      if (spec.watermark === null) return planFit(session, spec, parallel, {}, guard, connections);
       // The unscoped plan gives the design (columns, levels) that stored state must match.
-      refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel), req.full === true);
-      return planFit(session, spec, parallel, refit.scope, guard);
+      refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel, {}, false, connections), req.full === true);
+      return planFit(session, spec, parallel, refit.scope, guard, connections);
     });
     // An incremental refit refines from the previous solutions (no pass over the stored rows).
     if (refit !== null) refit = { ...(refit as RefitStart), solved: await previousSolutions(db, spec, refit) };
+    // Foreign partitions are read on their shards: every foreign server needs a connection of its name.
+    if (plan.sites !== undefined) sites = new ReadSites(connections, plan);
     const base = { spec, plan, connection: database.display };
     if (req.dryRun) {
       return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, modelCount: 0, models: [] };
     }
     await migrate(db, spec.schema);
     req.signal?.throwIfAborted();
-    const runId = await startFitRun(db, spec, plan);
+    const runId = await startFitRun(db, spec, plan, readFromText(spec, connections, sites));
     req.onRunStarted?.(runId);
     try {
-      const out = await readAndSolve(reads, spec, plan, req, refit);
+      const out = await readAndSolve(reads, spec, plan, { ...req, sites }, refit);
       req.signal?.throwIfAborted();
       const kept: FittedModel[] = [];
       let seconds = 0;
@@ -184,6 +239,8 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     }
   } finally {
     await reads?.release();
+    await sites?.close();
+    if (source !== database) await source.close();
     await db.destroy();
     await database.close();
   }

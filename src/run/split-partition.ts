@@ -1,6 +1,7 @@
 import type { Kysely } from 'kysely';
 import { designPlanFromJson } from '../plan/design-plan-json.js';
-import { sourceChangedError } from '../plan/plan-outdated-error.js';
+import { PlanOutdatedError, sourceChangedError } from '../plan/plan-outdated-error.js';
+import { loadConnections } from '../source/connections-file.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
@@ -8,12 +9,16 @@ import type { FitSpec } from '../spec/fit-spec.js';
 import { createStoreDb, loadSplitRun, writePartialFactors } from '../store/index.js';
 import type { PartialWriteOutcome, SplitRunRecord, StoreDatabase } from '../store/index.js';
 import { readPass } from './read-pass.js';
-import { passesOf } from './run-fit.js';
+import { ReadSites } from './read-sites.js';
+import { openSourceDatabase, passesOf } from './run-fit.js';
 import { keepSplitRunAlive, splitLeaseSeconds } from './split-lease.js';
 
 /** One partition job of a split run. */
 export interface PartitionRequest {
   readonly target: ConnectionTarget;
+  /** The connections file (`--connections`; otherwise ROWFOLD_CONNECTIONS in `env`): shards and read_from. */
+  readonly connections?: string | undefined;
+  readonly env?: NodeJS.ProcessEnv | undefined;
   readonly schema: string;
   readonly runId: number;
   readonly partition: number;
@@ -58,13 +63,21 @@ export async function foldPartition(req: PartitionRequest): Promise<PartitionOut
     const spec = splitRunSpec(run);
     return await keepSplitRunAlive(store, req.schema, req.runId, splitLeaseSeconds(spec.split?.jobTimeoutSeconds ?? 0), async () => {
       const { firstPlan, firstOptions } = passesOf(spec, designPlanFromJson(run.plan), {}, null, false);
-      const one = { ...firstPlan, queries: [firstPlan.queries[req.partition]!] };
+      const site = firstPlan.sites?.[req.partition] ?? null;
+      const one = { ...firstPlan, queries: [firstPlan.queries[req.partition]!], ...(site === null ? {} : { sites: [site] }) };
+      // The partition is read where the run reads: its shard, the read_from connection, or the store's database.
+      const connections = loadConnections({ file: req.connections, env: req.env ?? process.env });
+      const sites = site === null ? undefined : new ReadSites(connections, one);
+      const source = openSourceDatabase(spec, connections, database, 1);
       const started = performance.now();
-      const { fit, counts } = await readPass(database, one, spec, { specPath: spec.origin, signal: req.signal }, firstOptions, { rows: 0, last: started, started }).catch(
-        (e: unknown) => {
-          throw sourceChangedError(e, req.runId) ?? e;
-        },
-      );
+      const { fit, counts } = await readPass(source, one, spec, { specPath: spec.origin, signal: req.signal, sites, shardAttempts: 1 }, firstOptions, { rows: 0, last: started, started })
+        .catch((e: unknown) => {
+          throw e instanceof PlanOutdatedError ? e : (sourceChangedError(e, req.runId) ?? e);
+        })
+        .finally(async () => {
+          await sites?.close();
+          if (source !== database) await source.close();
+        });
       const partials = fit.states().map((s) => ({ segmentKey: s.keyText, key: s.key, state: s.acc.state() }));
       req.signal?.throwIfAborted();
       // The partition's read-and-fold seconds go with its counts (summed into split_runs when the run publishes).

@@ -10,7 +10,9 @@ import { openServerDatabase } from '../source/server-database.js';
 import { createStoreDb, failRunsAndPartials, migrate, startSplitRun } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { withFitLock } from './run-fit-exclusive.js';
-import { loadSpecFile, startFitRun } from './run-fit.js';
+import { ReadSites } from './read-sites.js';
+import { loadSpecFile, openSourceDatabase, readFromText, startFitRun } from './run-fit.js';
+import { connectionNamed, loadConnections } from '../source/connections-file.js';
 import { splitLeaseSeconds } from './split-lease.js';
 
 /** A split run that has started: its id and the partition jobs it was cut into. */
@@ -27,6 +29,9 @@ export interface SplitStart {
 export interface SplitStartRequest {
   readonly specPath: string;
   readonly target: ConnectionTarget;
+  /** The connections file (`--connections`; otherwise ROWFOLD_CONNECTIONS in `env`). */
+  readonly connections?: string | undefined;
+  readonly env?: NodeJS.ProcessEnv | undefined;
   /**
    * Sends the run's partition jobs; called with the fit's lock held, so that no other run of
    * the fit can start (or take this one for abandoned) until they are on the queue.
@@ -54,20 +59,25 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
   const spec = await loadSpecFile(req.specPath);
   const split = spec.split;
   if (split === null) throw new TypeError(`fit ${spec.name} has no split: key; run it whole`);
+  const connections = loadConnections({ file: req.connections, env: req.env ?? process.env });
+  if (spec.readFrom !== null) connectionNamed(connections, spec.readFrom, `read_from: ${spec.readFrom} (spec ${spec.origin})`);
   return withFitLock(req.target, spec, async () => {
     const database = openServerDatabase(req.target, 2);
     const db = createStoreDb(database.dialect());
+    const source = openSourceDatabase(spec, connections, database, 2);
     try {
       // The plan's probes (levels, pages, the cutoff) read one snapshot. The partitions are read
       // later, by other jobs, outside it: the cutoff bounds what they read, and the guard fails a
       // row whose categorical value the plan did not find.
-      const reads = await database.shareSnapshot();
+      const reads = await source.shareSnapshot();
       const plan = await reads
-        .withHoldingSession(async (session) => planFit(session, spec, split.partitions, { first: await splitScope(session, spec) }, true))
+        .withHoldingSession(async (session) => planFit(session, spec, split.partitions, { first: await splitScope(session, spec) }, true, connections))
         .finally(() => reads.release());
       await migrate(db, spec.schema);
       req.signal?.throwIfAborted();
-      const runId = await startFitRun(db, spec, plan);
+      // Every foreign server of the plan needs a connection of its name before any job is sent.
+      const sites = plan.sites === undefined ? undefined : new ReadSites(connections, plan);
+      const runId = await startFitRun(db, spec, plan, readFromText(spec, connections, sites));
       req.onRunStarted?.(runId);
       try {
         req.signal?.throwIfAborted();
@@ -86,6 +96,7 @@ export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart>
         throw e;
       }
     } finally {
+      if (source !== database) await source.close();
       await db.destroy();
       await database.close();
     }

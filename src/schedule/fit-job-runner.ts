@@ -15,6 +15,8 @@ export interface FitJobRunnerOptions {
   /** `--db`, as given (runs resolve it as `rowfold fit` does). */
   readonly db: string | undefined;
   readonly env: NodeJS.ProcessEnv;
+  /** `--connections FILE` (otherwise ROWFOLD_CONNECTIONS): shards and read_from connections. */
+  readonly connections?: string | undefined;
 }
 
 /** The error a run gets when `serve` drops it on a second signal. */
@@ -48,12 +50,14 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
     const dropLock = (backendPid: number) => job.onDrop(() => breakFitLock(opts.target, backendPid, spec.schema, spec.name).then(() => undefined));
     if (job.kind === 'fit') {
       if (spec.split === null) {
-        const r = await runFitExclusive({ specPath, db: opts.db, env: opts.env, onRunStarted: dropRun, signal }, { onLocked: dropLock });
+        const r = await runFitExclusive({ specPath, db: opts.db, env: opts.env, connections: opts.connections, onRunStarted: dropRun, signal }, { onLocked: dropLock });
         return { run_id: r.runId, rows_read: r.rowsRead, rows_used: r.rowsUsed, segments: r.modelCount, seconds: r.seconds };
       }
       const started = await startSplitFit({
         specPath,
         target: opts.target,
+        connections: opts.connections,
+        env: opts.env,
         onRunStarted: dropRun,
         onLocked: dropLock,
         signal,
@@ -66,11 +70,11 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
     try {
       if (job.kind === 'partition') {
         const partition = Number(job.data.partition);
-        const done = await foldPartition({ target: opts.target, schema: spec.schema, runId, partition, worker, signal });
+        const done = await foldPartition({ target: opts.target, connections: opts.connections, env: opts.env, schema: spec.schema, runId, partition, worker, signal });
         if (done.complete) await send.merge(job.schedule, runId, timeout);
         return { run_id: runId, partition, outcome: done.outcome, rows_read: done.rowsRead, segments: done.segments, merge_sent: done.complete };
       }
-      const merged = await mergeSplitRun({ target: opts.target, schema: spec.schema, runId, final: job.final, signal });
+      const merged = await mergeSplitRun({ target: opts.target, connections: opts.connections, env: opts.env, schema: spec.schema, runId, final: job.final, signal });
       return { run_id: runId, outcome: merged.outcome, rows_read: merged.rowsRead, segments: merged.segments };
     } catch (e) {
       // A source that no longer matches the run's plan (a dropped column, a level the plan did not

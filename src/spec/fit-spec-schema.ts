@@ -143,6 +143,11 @@ export const fitSpecSchema = z
       'a column name',
       'Column hashed to split the source into partitions that are read in parallel.',
     ).optional(),
+    read_from: identifier(
+      'a connection name',
+      'Name of a connection in the connections file (--connections or ROWFOLD_CONNECTIONS) that the rows are read ' +
+        'over: a hot standby, a read-only role, another database. Results are still published to --db.',
+    ).optional(),
     schedule: z
       .string({ error: `must be ${CRON_RULE}` })
       .superRefine((value, ctx) => {

@@ -135,6 +135,11 @@ export interface FitSpec {
   readonly nonFinite: 'error' | 'skip';
   /** Column hashed to split the source into partitions read in parallel, or `null`. */
   readonly partitionKey: string | null;
+  /**
+   * Connection (a name in the connections file) the source is read over, or `null` to read
+   * where the results are published.
+   */
+  readonly readFrom: string | null;
   /** When `rowfold serve` refits: a five-field cron expression in UTC, or `null`. */
   readonly schedule: string | null;
   /** How `rowfold serve` cuts a run into partition jobs, or `null` to run it whole. */

@@ -189,6 +189,7 @@ export function normaliseFitSpec(
       read: doc.read,
       nonFinite: doc.non_finite,
       partitionKey: doc.partition_key ?? null,
+      readFrom: doc.read_from ?? null,
       schedule: doc.schedule === undefined ? null : doc.schedule.trim(),
       split:
         doc.split === undefined

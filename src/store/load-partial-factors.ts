@@ -19,10 +19,20 @@ export interface SplitPartials {
  * transaction, and merges only when every partition is there: a partition is written once and
  * never changed, so what was read still holds when the transaction locks the run row.
  *
+ * With `page`, only the first `limit` factors after `after` in (partition, segment key) order are
+ * read (the counts of every partition still are; `limit` 0 reads counts only): a merge of many
+ * partitions reads them a page at a time, so that its memory holds the merged factors and one
+ * page, not every partition's at once.
+ *
  * @example
  * const partials = await loadPartialFactors(trx, 'rowfold', runId);
  */
-export async function loadPartialFactors(db: Kysely<StoreDatabase>, schema: string, runId: number): Promise<SplitPartials> {
+export async function loadPartialFactors(
+  db: Kysely<StoreDatabase>,
+  schema: string,
+  runId: number,
+  page?: { readonly after: { readonly partition: number; readonly segmentKey: string } | null; readonly limit: number },
+): Promise<SplitPartials> {
   checkSchemaName(schema);
   const id = runIdText(runId);
   const parts = await sql<{ partition: number; counts: unknown }>`
@@ -46,7 +56,9 @@ export async function loadPartialFactors(db: Kysely<StoreDatabase>, schema: stri
            shift::text as shift, rows, zero_weight_rows, sum_weights, sum_log_weights
       from ${sql.id(schema, 'partial_factors')}
      where run_id = ${id}::bigint
-     order by partition, segment_key`.execute(db);
+       and (partition, segment_key) > (${page?.after?.partition ?? -1}, ${page?.after?.segmentKey ?? ''})
+     order by partition, segment_key
+     limit ${page === undefined ? null : page.limit}`.execute(db);
   return {
     partitions: parts.rows.map((p) => ({ partition: Number(p.partition), counts: p.counts })),
     factors: rows.rows.map((r) => ({

@@ -13,6 +13,8 @@ export interface RunStart {
   readonly designQuery: string;
   /** Version of rowfold. */
   readonly toolVersion: string;
+  /** Where the rows are read when not from this database (connection names and places, no password). */
+  readonly readFrom?: string | null | undefined;
 }
 
 /**
@@ -38,6 +40,7 @@ export async function startRun(db: Kysely<StoreDatabase>, schema: string, run: R
       design_query: run.designQuery,
       tool_version: run.toolVersion,
       status: 'running',
+      ...(run.readFrom == null ? {} : { read_from: run.readFrom }),
     })
     .returning('run_id')
     .executeTakeFirstOrThrow();

@@ -49,6 +49,8 @@ export interface RunsTable {
   seconds: number | null;
   tool_version: string;
   error_message: string | null;
+  /** Where the rows were read when not from this database (migration 0008). */
+  read_from: ColumnType<string | null, string | null | undefined, string | null>;
 }
 
 /** `models`: one row per fit, segment and run. */

@@ -207,6 +207,7 @@ describe('publishRun', () => {
       seconds: 1.25,
       tool_version: '0.1.0',
       error_message: null,
+      read_from: null,
       // Migration 0003: only runs of a fit with a watermark fill these.
       refit: null,
       watermark_from: null,

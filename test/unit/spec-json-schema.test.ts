@@ -39,6 +39,7 @@ describe('schema/fit-spec.schema.json', () => {
       'read',
       'non_finite',
       'partition_key',
+      'read_from',
       'schedule',
       'split',
       'watermark',

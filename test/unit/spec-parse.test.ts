@@ -31,6 +31,7 @@ describe('parseFitSpec: defaults', () => {
       read: 'copy',
       nonFinite: 'error',
       partitionKey: null,
+      readFrom: null,
       schedule: null,
       split: null,
       watermark: null,
@@ -158,6 +159,7 @@ describe('parseFitSpec: every key', () => {
       read: 'rows',
       nonFinite: 'skip',
       partitionKey: 'feeder_id',
+      readFrom: null,
     });
   });
 
