@@ -1,6 +1,7 @@
 import { sql } from 'kysely';
 import type { Kysely } from 'kysely';
 import { insertCoefficients } from './insert-coefficients.js';
+import { insertCovariances } from './insert-covariances.js';
 import type { CoefficientRow } from './insert-coefficients.js';
 import { insertModels } from './insert-models.js';
 import type { ModelRecord } from './model-record.js';
@@ -89,6 +90,7 @@ export async function writeRunResult(
       const batch = result.models.slice(start, start + batchSize);
       const ids = await insertModels(trx, schema, runId, run.fit_name, batch);
       await insertCoefficientsOf(trx, schema, runId, batch, ids);
+      await insertCovariances(trx, schema, runId, batch, ids);
     }
   } catch (error) {
     throw explainInsertFailure(error, runId, result.models);
