@@ -51,15 +51,15 @@ export function scoreViewSql(
   const s = view.schema;
   const models =
     view.runId === null
-      ? new SqlTemplate([`${s}.latest_models lm WHERE lm.fit_name = `, { value: view.fitName }])
-      : new SqlTemplate([`${s}.models lm WHERE lm.fit_name = `, { value: view.fitName }, ` AND lm.run_id = ${view.runId}`]);
+      ? new SqlTemplate([`${s}.latest_models lm\n    LEFT JOIN ${s}.covariances v ON v.model_id = lm.model_id\n   WHERE lm.fit_name = `, { value: view.fitName }])
+      : new SqlTemplate([`${s}.models lm\n    LEFT JOIN ${s}.covariances v ON v.model_id = lm.model_id\n   WHERE lm.fit_name = `, { value: view.fitName }, ` AND lm.run_id = ${view.runId}`]);
   const keyItems = view.keys.map((k) => `d.${quoteIdent(k)}`);
   return SqlTemplate.join([
     `CREATE OR REPLACE VIEW ${view.view} AS\nWITH m AS (\n  SELECT lm.segment, lm.segment_key, lm.run_id, lm.sigma, lm.df_residual, v.packed, v.term_index,\n`,
     `         (SELECT array_agg(coalesce(c.estimate, 0) ORDER BY c.term_index) FROM ${s}.coefficients c WHERE c.model_id = lm.model_id) AS b\n`,
     `    FROM `,
     models,
-    ` AND lm.status IN ('ok', 'no_residual_df')\n    LEFT JOIN ${s}.covariances v ON v.model_id = lm.model_id\n), d AS (\n  SELECT `,
+    ` AND lm.status IN ('ok', 'no_residual_df')\n), d AS (\n  SELECT `,
     [...view.keys.map((k) => `${col(k)} AS ${quoteIdent(k)}`), `${segment} AS rowfold_segment`].join(', '),
     ', ',
     x,

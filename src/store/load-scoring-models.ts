@@ -13,14 +13,16 @@ import { quoteName } from './sql-runner.js';
 export async function loadScoringModels(db: SqlRunner, schema: string, fitName: string, runId: number | null): Promise<Map<string, ScoringModel>> {
   checkSchemaName(schema);
   const s = quoteName(schema);
-  const models = runId === null ? `${s}.latest_models m where m.fit_name = $1` : `${s}.models m where m.fit_name = $1 and m.run_id = $2::bigint`;
+  const [models, where] =
+    runId === null ? [`${s}.latest_models m`, 'm.fit_name = $1'] : [`${s}.models m`, 'm.fit_name = $1 and m.run_id = $2::bigint'];
   const result = await db.query(
     `select m.run_id::text, m.segment::text, m.segment_key, m.status, m.sigma, m.df_residual::text,
             (select array_agg(coalesce(c.estimate, case when c.aliased then 0 end) order by c.term_index)::text
                from ${s}.coefficients c where c.model_id = m.model_id) as estimates,
             v.term_index::text, v.packed::text
        from ${models}
-       left join ${s}.covariances v on v.model_id = m.model_id`,
+       left join ${s}.covariances v on v.model_id = m.model_id
+      where ${where}`,
     runId === null ? [fitName] : [fitName, String(runId)],
   );
   const out = new Map<string, ScoringModel>();
