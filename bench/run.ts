@@ -4,6 +4,8 @@ import { ACCURACY_WORKLOADS, benchAccuracy } from './e2e-bench.js';
 import type { AccuracyFigure } from './e2e-bench.js';
 import { benchCompensated, benchKernels, benchRawKernels } from './kernel-bench.js';
 import type { CompensatedFigure, KernelFigure } from './kernel-bench.js';
+import { SCORE_WORKLOADS, benchScore } from './score-bench.js';
+import type { ScoreFigure } from './score-bench.js';
 import { measureWorkload, WORKLOADS } from './workloads.js';
 import type { WorkloadFigure } from './workloads.js';
 
@@ -84,7 +86,23 @@ for (const w of ACCURACY_WORKLOADS.filter((x) => selected(x.name))) {
     console.log(`${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
   }
 }
+const scoring: ScoreFigure[] = [];
+console.log('\nscoring into a table (medians; floors measured in the same run: psql binary COPY of the source to /dev/null + psql binary COPY of the scores into an empty table)');
+console.log('workload        rows        terms  COPY out  COPY in  score    score/floor (target)  peak RSS (target)');
+for (const w of SCORE_WORKLOADS.filter((x) => selected(x.name))) {
+  try {
+    const s = await benchScore(w, w.rows > 2_000_000 ? 1 : 3);
+    scoring.push(s);
+    console.log(
+      `${s.name.padEnd(14)}  ${s.rows.toLocaleString('en-US').padStart(10)}  ${String(s.terms).padStart(5)}  ${s.copyOutSeconds.toFixed(2).padStart(7)}s  ` +
+        `${s.copyInSeconds.toFixed(2).padStart(6)}s  ${s.scoreSeconds.toFixed(2).padStart(6)}s  ${s.ratio.toFixed(2).padStart(8)} (≤ ${s.target})       ` +
+        `${s.peakRssMb.toFixed(0).padStart(5)} MB (≤ 300)${s.repeats === 1 ? '  (one repeat)' : ''}`,
+    );
+  } catch (err) {
+    console.log(`${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
+  }
+}
 writeFileSync(
   new URL('../../bench/results.json', import.meta.url),
-  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, compensated, workloads, accuracy }, null, 2) + '\n',
+  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, compensated, workloads, accuracy, scoring }, null, 2) + '\n',
 );
