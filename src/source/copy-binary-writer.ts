@@ -22,7 +22,7 @@ export class CopyBinaryWriter {
 
   constructor(fields: number, capacity = 1 << 20) {
     this.fields = fields;
-    this.buf = Buffer.alloc(capacity);
+    this.buf = Buffer.alloc(Math.max(capacity, 64));
     this.start();
   }
 
