@@ -7,6 +7,8 @@ import { renderConditioningSection } from './render-conditioning-section.js';
 import { renderModelSection } from './render-model-section.js';
 import { renderResidualSection } from './render-residual-section.js';
 import type { ResidualOutcome } from './render-residual-section.js';
+import { renderScoringSection } from './render-scoring-section.js';
+import type { StoredScoring } from '../store/load-latest-scoring.js';
 import type { ReportModel, ReportRun } from './report-run.js';
 import { REPORT_CSS } from './report-styles.js';
 
@@ -17,6 +19,8 @@ export interface ReportContent {
   /** The segment whose residuals are plotted. */
   readonly residualModel: ReportModel;
   readonly residuals: ResidualOutcome;
+  /** The fit's newest scoring (null: never scored, or not loaded). */
+  readonly scoring?: StoredScoring | null;
 }
 
 const SECTIONS: readonly [string, string][] = [
@@ -24,6 +28,7 @@ const SECTIONS: readonly [string, string][] = [
   ['models', 'Models'],
   ['across-segments', 'Across segments'],
   ['residuals', 'Residuals'],
+  ['predicted-actual', 'Predicted against actual'],
   ['conditioning', 'Conditioning'],
   ['cautions', 'Cautions'],
 ];
@@ -41,6 +46,7 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     renderModelSection(run.models),
     await renderAcrossSegmentsSection(run.models, run.segmentColumns),
     await renderResidualSection(content.residualModel, content.residuals),
+    await renderScoringSection(content.scoring ?? null, content.residualModel, (key) => run.models.find((m) => m.segmentKey === key)?.label ?? key),
     await renderConditioningSection(run.models, run.segmentColumns),
     renderCautionsSection(run.models),
   ];

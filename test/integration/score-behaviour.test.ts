@@ -1,5 +1,8 @@
 // Scoring's outcomes on bad input and its records: each bad input a clear message and nothing
 // written; a failure part way leaves the target as it was; the per-segment error and sample.
+import { mkdtempSync, readFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createTestDatabase } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
@@ -149,6 +152,16 @@ describe('rowfold score: records', () => {
       'interval_low double precision',
       'interval_high double precision',
     ]);
+    // The report shows the newest scoring's error per segment and the chosen segment's sample.
+    const html = join(mkdtempSync(join(tmpdir(), 'rowfold-score-report-')), 'r.html');
+    const report = await runCli(['report', FIT, '--out', html, '--db', tdb.url, '--segment', 'feeder=F02']);
+    expect(report.code, report.stderr).toBe(0);
+    const page = readFileSync(html, 'utf8');
+    const section = page.slice(page.indexOf('<section id="predicted-actual">'), page.indexOf('</section>', page.indexOf('<section id="predicted-actual">')));
+    expect(section).toContain('scored 2,000 of 2,000 rows of readings into &quot;out_records&quot;');
+    expect(section.match(/<tr><td>feeder=F0[12]<\/td>/g)).toHaveLength(2);
+    expect(section).toContain('actual against predicted: feeder=F02');
+    expect(section).toContain('<svg');
     const again = await score('--source', 'readings', '--into', 'out_records', '--keys', 'feeder,temp_c', '--append');
     expect(again.code).toBe(0);
     expect(await count('out_records')).toBe(4000);
