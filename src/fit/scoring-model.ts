@@ -6,6 +6,8 @@ export interface ScoringModel {
   readonly runId: number;
   readonly segmentKey: string;
   readonly segment: Readonly<Record<string, string | null>> | null;
+  /** Coefficient names in order: a model whose terms differ from the design scoring uses is not applied. */
+  readonly terms: readonly string[];
   /**
    * Estimates in coefficient order (the intercept first when there is one), 0 for an aliased
    * term (left out of the model, it adds nothing to a prediction); null when the model

@@ -15,6 +15,8 @@ export interface ScoreViewSpec {
   /** Score with this run's models; null: every segment's latest. */
   readonly runId: number | null;
   readonly keys: readonly string[];
+  /** Name of the intercept among the coefficients. */
+  readonly interceptTerm: string;
 }
 
 /**
@@ -49,6 +51,9 @@ export function scoreViewSql(
     SqlTemplate.join([`${col(l.column)}::text IN (`, SqlTemplate.join(l.levels.map((v) => ({ value: v })), ', '), ')']),
   );
   const s = view.schema;
+  // A segment whose model has other terms (a run with other levels) is left out, as table scoring leaves it.
+  const names = [...(spec.intercept ? [view.interceptTerm] : []), ...design.map((d) => d.name)];
+  const termsArray = SqlTemplate.join(['ARRAY[', SqlTemplate.join(names.map((n) => ({ value: n })), ', '), ']::text[]']);
   const models =
     view.runId === null
       ? new SqlTemplate([`${s}.latest_models lm\n    LEFT JOIN ${s}.covariances v ON v.model_id = lm.model_id\n   WHERE lm.fit_name = `, { value: view.fitName }])
@@ -59,7 +64,9 @@ export function scoreViewSql(
     `         (SELECT array_agg(coalesce(c.estimate, 0) ORDER BY c.term_index) FROM ${s}.coefficients c WHERE c.model_id = lm.model_id) AS b\n`,
     `    FROM `,
     models,
-    ` AND lm.status IN ('ok', 'no_residual_df')\n), d AS (\n  SELECT `,
+    ` AND lm.status IN ('ok', 'no_residual_df')\n     AND (SELECT array_agg(c.term ORDER BY c.term_index) FROM ${s}.coefficients c WHERE c.model_id = lm.model_id) = `,
+    termsArray,
+    `\n), d AS (\n  SELECT `,
     [...view.keys.map((k) => `${col(k)} AS ${quoteIdent(k)}`), `${segment} AS rowfold_segment`].join(', '),
     ', ',
     x,

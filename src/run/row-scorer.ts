@@ -1,3 +1,4 @@
+import { INTERCEPT_TERM } from '../fit/fit-solution.js';
 import { ModelScorer } from '../fit/scoring-model.js';
 import type { RowScore, ScoringModel } from '../fit/scoring-model.js';
 import type { ScoreQuery } from '../plan/score-query.js';
@@ -9,6 +10,8 @@ import { SegmentErrorStats } from './segment-error-stats.js';
 /** A segment's model with its scorer and error so far. */
 interface SegmentScoring {
   readonly scorer: ModelScorer | null;
+  /** Why the segment's rows are not scored when `scorer` is null. */
+  readonly reason: string;
   readonly stats: SegmentErrorStats;
 }
 
@@ -30,6 +33,7 @@ export class RowScorer {
   private readonly nonFiniteReasons: string[];
   private readonly levelReasons: string[];
   private readonly levelNullReasons: string[];
+  private readonly terms: string;
 
   constructor(
     private readonly query: ScoreQuery,
@@ -45,6 +49,7 @@ export class RowScorer {
     this.nonFiniteReasons = query.origins.map((o) => `non_finite:${o}`);
     this.levelReasons = query.categorical.map((c) => `new_level:${c}`);
     this.levelNullReasons = query.categorical.map((c) => `null:${c}`);
+    this.terms = JSON.stringify([...(intercept ? [INTERCEPT_TERM] : []), ...query.design]);
   }
 
   /** Scores one row (the decoder's callback). */
@@ -67,7 +72,7 @@ export class RowScorer {
       this.segments.set(key, seg);
     }
     if (seg === null) return this.skip('no_model');
-    if (seg.scorer === null) return this.skip('no_estimates');
+    if (seg.scorer === null) return this.skip(seg.reason);
     const x = this.x;
     for (let j = 0; j < v; j++) x[this.offset + j] = values[j]!;
     const out = this.out;
@@ -114,8 +119,12 @@ export class RowScorer {
     if (model === undefined) return null;
     let seed = 2166136261;
     for (let i = 0; i < key.length; i++) seed = Math.imul(seed ^ key.charCodeAt(i), 16777619);
+    // A segment whose latest model came from a run with other terms (levels that changed since,
+    // say) cannot be applied to this design.
+    const sameDesign = JSON.stringify(model.terms) === this.terms;
     return {
-      scorer: model.estimates === null ? null : new ModelScorer(model, this.level),
+      scorer: model.estimates === null || !sameDesign ? null : new ModelScorer(model, this.level),
+      reason: sameDesign ? 'no_estimates' : 'other_design',
       stats: new SegmentErrorStats(seed),
     };
   }

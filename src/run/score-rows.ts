@@ -117,13 +117,25 @@ export async function scoreRows(req: ScoreRequest): Promise<ScoreResult> {
       try {
         const { created } = await prepareTarget(write, target, scoring, req.append === true);
         const decoder = new ScoreRowDecoder({ passThrough: keys.length, texts: query.segmentColumns.length, floats: query.design.length + query.categorical.length + (query.actual ? 1 : 0) });
+        // On a server one batch is copied in while the next is read and scored (two connections,
+        // so the server's COPY out and COPY in run side by side); at most two batches are held.
+        const overlap = database.kind === 'server';
+        let inFlight: Promise<number> | null = null;
+        const send = async (data: Uint8Array) => {
+          if (inFlight !== null) await inFlight;
+          inFlight = write.copyIn(name, columns, data);
+          // Handled when awaited; marked handled now so a failure while reading is not unhandled.
+          inFlight.catch(() => undefined);
+          if (!overlap) await inFlight;
+        };
         const pump = async (read: DbSession) => {
           for await (const pieces of read.copyOut(query.query)) {
             decoder.write(pieces, scorer.onRow);
-            if (writer.size >= batch) await write.copyIn(name, columns, writer.take());
+            if (writer.size >= batch) await send(writer.take());
           }
           decoder.end();
-          if (writer.rows > 0) await write.copyIn(name, columns, writer.take());
+          if (writer.rows > 0) await send(writer.take());
+          if (inFlight !== null) await inFlight;
         };
         // A server reads on a second connection while the first holds the target's transaction;
         // the embedded database has one session, whose COPY output arrives whole before any is written.

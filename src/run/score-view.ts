@@ -1,5 +1,6 @@
 import { escapeLiteral } from 'pg';
 
+import { INTERCEPT_TERM } from '../fit/fit-solution.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
 import { scoreViewSql } from '../plan/score-view-sql.js';
 import { quoteIdent } from '../plan/sql-template.js';
@@ -63,7 +64,7 @@ export async function scoreView(req: ScoreViewRequest): Promise<ScoreViewResult>
       const scoring: FitSpec = { ...spec, source: source.source };
       // The casts of the design expressions over the new source, as table scoring finds them.
       const { casts } = await planScoreQuery(s, scoring, levels, keys);
-      const sql = scoreViewSql(scoring, casts, levels, { view: targetName(target), schema: quoteIdent(schema), fitName: req.fit, runId, keys }).toInline(escapeLiteral);
+      const sql = scoreViewSql(scoring, casts, levels, { view: targetName(target), schema: quoteIdent(schema), fitName: req.fit, runId, keys, interceptTerm: INTERCEPT_TERM }).toInline(escapeLiteral);
       await s.exec(sql);
       return { fit: req.fit, view: targetName(target), runId, connection: database.display, sql };
     });

@@ -19,6 +19,8 @@ export async function loadScoringModels(db: SqlRunner, schema: string, fitName: 
     `select m.run_id::text, m.segment::text, m.segment_key, m.status, m.sigma, m.df_residual::text,
             (select array_agg(coalesce(c.estimate, case when c.aliased then 0 end) order by c.term_index)::text
                from ${s}.coefficients c where c.model_id = m.model_id) as estimates,
+            (select array_to_json(array_agg(c.term order by c.term_index))::text
+               from ${s}.coefficients c where c.model_id = m.model_id) as terms,
             v.term_index::text, v.packed::text
        from ${models}
        left join ${s}.covariances v on v.model_id = m.model_id
@@ -27,13 +29,14 @@ export async function loadScoringModels(db: SqlRunner, schema: string, fitName: 
   );
   const out = new Map<string, ScoringModel>();
   for (const r of result.rows) {
-    const [run, segment, segmentKey, status, sigma, df, estimates, termIndex, packed] = r as [
+    const [run, segment, segmentKey, status, sigma, df, estimates, terms, termIndex, packed] = r as [
       string,
       string | null,
       string,
       string,
       number | null,
       string,
+      string | null,
       string | null,
       string | null,
       string | null,
@@ -52,6 +55,7 @@ export async function loadScoringModels(db: SqlRunner, schema: string, fitName: 
       runId: Number(run),
       segmentKey,
       segment: segment === null ? null : (JSON.parse(segment) as Record<string, string | null>),
+      terms: terms === null ? [] : (JSON.parse(terms) as string[]),
       estimates: estimated ? Float64Array.from(b!, Number) : null,
       kept,
       covariance: packed === null ? null : parseFloat8Array(packed),

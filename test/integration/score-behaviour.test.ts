@@ -184,3 +184,24 @@ describe('rowfold score: records', () => {
     expect((await tdb.query(`select distinct run_id::int as id from out_latest`)).rows).toEqual([{ id: latest }]);
   });
 });
+
+describe('rowfold score: a design that changed between runs', () => {
+  it("counts the rows of a segment whose latest model has other terms (other_design), in the table and the view alike", async () => {
+    await tdb.query(`create table readings_changing as select * from readings`);
+    const spec = writeSpec({ name: 'score_changing', source: 'readings_changing', response: 'load_mw', terms: ['temp_c'], categorical: ['region'], segment_by: ['feeder'] });
+    expect((await runCli(['fit', spec, '--db', tdb.url])).code).toBe(0);
+    // The next run sees only F01, with a new region that becomes the reference level.
+    await tdb.query(`delete from readings_changing where feeder = 'F02'`);
+    await tdb.query(`insert into readings_changing select feeder, 'east', temp_c + 1, load_mw - 1 from readings_changing where feeder = 'F01' and region = 'north'`);
+    expect((await runCli(['fit', spec, '--db', tdb.url])).code).toBe(0);
+    const res = await runCli(['score', 'score_changing', '--source', 'readings', '--into', 'out_changing', '--db', tdb.url, '--json']);
+    expect(res.code, res.stderr).toBe(0);
+    const doc = JSON.parse(res.stdout) as { rows_scored: number; rows_skipped: Record<string, number> };
+    expect(doc.rows_skipped).toEqual({ other_design: 1000 });
+    expect(doc.rows_scored).toBe(1000);
+    const view = await runCli(['score', 'score_changing', '--source', 'readings', '--view', 'view_changing', '--db', tdb.url]);
+    expect(view.code, view.stderr).toBe(0);
+    expect((await tdb.query(`select distinct segment_key from view_changing`)).rows).toEqual([{ segment_key: '["F01"]' }]);
+    expect(await count('view_changing')).toBe(1000);
+  });
+});
