@@ -15,6 +15,7 @@ const SIGNATURE = Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1');
  */
 export class CopyBinaryWriter {
   private buf: Buffer;
+  private view: DataView;
   private at = 0;
   private readonly fields: number;
   /** Rows in the current batch. */
@@ -23,6 +24,7 @@ export class CopyBinaryWriter {
   constructor(fields: number, capacity = 1 << 20) {
     this.fields = fields;
     this.buf = Buffer.alloc(Math.max(capacity, 64));
+    this.view = new DataView(this.buf.buffer, this.buf.byteOffset, this.buf.byteLength);
     this.start();
   }
 
@@ -55,10 +57,13 @@ export class CopyBinaryWriter {
     this.at += 4 + length;
   }
 
+  /** A bigint column's value, a safe integer (written as two 32-bit halves: no BigInt per row). */
   int8(value: number): void {
     this.ensure(12);
-    this.buf.writeInt32BE(8, this.at);
-    this.buf.writeBigInt64BE(BigInt(value), this.at + 4);
+    const v = this.view;
+    v.setInt32(this.at, 8);
+    v.setInt32(this.at + 4, Math.floor(value / 4294967296));
+    v.setUint32(this.at + 8, value >>> 0);
     this.at += 12;
   }
 
@@ -66,8 +71,8 @@ export class CopyBinaryWriter {
   float8OrNull(value: number): void {
     if (Number.isNaN(value)) return this.nullField();
     this.ensure(12);
-    this.buf.writeInt32BE(8, this.at);
-    this.buf.writeDoubleBE(value, this.at + 4);
+    this.view.setInt32(this.at, 8);
+    this.view.setFloat64(this.at + 4, value);
     this.at += 12;
   }
 
@@ -101,5 +106,6 @@ export class CopyBinaryWriter {
     const grown = Buffer.alloc(Math.max(this.buf.length * 2, this.at + n));
     this.buf.copy(grown, 0, 0, this.at);
     this.buf = grown;
+    this.view = new DataView(grown.buffer, grown.byteOffset, grown.byteLength);
   }
 }

@@ -39,6 +39,7 @@ export interface ScoreRowLayout {
 export class ScoreRowDecoder {
   private readonly layout: ScoreRowLayout;
   private carry: Buffer = Buffer.alloc(64 * 1024);
+  private view = new DataView(this.carry.buffer, this.carry.byteOffset, this.carry.byteLength);
   private carryLength = 0;
   private headerSeen = false;
   private ended = false;
@@ -79,6 +80,7 @@ export class ScoreRowDecoder {
       const grown = Buffer.alloc(Math.max(this.carry.length * 2, this.carryLength + n));
       this.carry.copy(grown, 0, 0, this.carryLength);
       this.carry = grown;
+      this.view = new DataView(grown.buffer, grown.byteOffset, grown.byteLength);
       (this.row as { bytes: Buffer }).bytes = grown;
     }
     this.carry.set(bytes.subarray(from, to), this.carryLength);
@@ -93,6 +95,7 @@ export class ScoreRowDecoder {
   /** Decodes the complete rows in the carry buffer; returns the bytes consumed. */
   private decode(onRow: (row: ScoreRow) => void): number {
     const buf = this.carry;
+    const view = this.view;
     const end = this.carryLength;
     let at = 0;
     if (!this.headerSeen) {
@@ -112,7 +115,7 @@ export class ScoreRowDecoder {
         return at;
       }
       if (end - at < 2) return at;
-      const count = buf.readInt16BE(at);
+      const count = view.getInt16(at);
       if (count === -1) {
         this.ended = true;
         at += 2;
@@ -127,7 +130,7 @@ export class ScoreRowDecoder {
           complete = false;
           break;
         }
-        const len = buf.readInt32BE(p);
+        const len = view.getInt32(p);
         p += 4 + (len > 0 ? len : 0);
         if (p > end) {
           complete = false;
@@ -137,25 +140,25 @@ export class ScoreRowDecoder {
       if (!complete) return at;
       p = at + 2;
       for (let f = 0; f < passThrough; f++) {
-        const len = buf.readInt32BE(p);
+        const len = view.getInt32(p);
         row.passStart[f] = p + 4;
         row.passLength[f] = len;
         p += 4 + (len > 0 ? len : 0);
       }
       for (let f = 0; f < texts; f++) {
-        const len = buf.readInt32BE(p);
+        const len = view.getInt32(p);
         row.texts[f] = len < 0 ? null : buf.toString('utf8', p + 4, p + 4 + len);
         p += 4 + (len > 0 ? len : 0);
       }
       for (let f = 0; f < floats; f++) {
-        const len = buf.readInt32BE(p);
+        const len = view.getInt32(p);
         if (len < 0) {
           row.values[f] = NaN;
           row.isNull[f] = 1;
           p += 4;
         } else {
           if (len !== 8) throw new Error(`a float8 field has ${len} bytes`);
-          row.values[f] = buf.readDoubleBE(p + 4);
+          row.values[f] = view.getFloat64(p + 4);
           row.isNull[f] = 0;
           p += 12;
         }
