@@ -73,6 +73,7 @@ describe('ModelScorer', () => {
     runId: 7,
     segmentKey: '',
     segment: null,
+    terms: ['intercept', 'x1', 'x2'],
     estimates: Float64Array.of(2, 0, 3),
     kept: Int32Array.of(0, 2),
     covariance: Float64Array.of(0.5, -0.1, 0.04),
