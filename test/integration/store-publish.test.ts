@@ -208,6 +208,8 @@ describe('publishRun', () => {
       watermark_from: null,
       watermark_to: null,
       notes: [],
+      // Migration 0009: written by rowfold fit when the run starts (startRun alone leaves it null).
+      design_levels: null,
     });
     expect(run.started_at.getTime()).toBeGreaterThanOrEqual(before.getTime() - 5000);
     expect(run.ended_at!.getTime()).toBeGreaterThanOrEqual(run.started_at.getTime());
