@@ -11,7 +11,6 @@ import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
-import { recordDesignLevels } from '../store/record-design-levels.js';
 import { createStoreDb, failRun, migrate, publishRun, startRun, writeFitStates, writeRefitRecord, writeRunResult } from '../store/index.js';
 import type { ModelRecord, StoreDatabase } from '../store/index.js';
 import { planFit } from './plan-fit.js';
@@ -95,16 +94,15 @@ export function loadSpecFile(specPath: string): Promise<FitSpec> {
 }
 
 /** Writes the `runs` row of a run about to read `plan`: the audit trail of what it will fit. */
-export async function startFitRun(db: Kysely<StoreDatabase>, spec: FitSpec, plan: DesignPlan): Promise<number> {
-  const runId = await startRun(db, spec.schema, {
+export function startFitRun(db: Kysely<StoreDatabase>, spec: FitSpec, plan: DesignPlan): Promise<number> {
+  return startRun(db, spec.schema, {
     fitName: spec.name,
     specHash: spec.hash,
     specText: spec.text,
     designQuery: plan.queries.map((q) => q.toBound().text).join('\n-- next partition --\n'),
     toolVersion: TOOL_VERSION,
+    designLevels: plan.levels,
   });
-  await recordDesignLevels(db, spec.schema, runId, plan.levels);
-  return runId;
 }
 
 /**

@@ -1,7 +1,7 @@
 import { checkSchemaName } from './schema-name.js';
 import type { SqlRunner } from './sql-runner.js';
 import { quoteName } from './sql-runner.js';
-import type { StoredLevels } from './record-design-levels.js';
+import type { StoredLevels } from './start-run.js';
 
 /** What scoring needs of a fit's run: the spec it ran and the levels it fitted with. */
 export interface ScoringFitRecord {

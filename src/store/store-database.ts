@@ -49,6 +49,8 @@ export interface RunsTable {
   seconds: number | null;
   tool_version: string;
   error_message: string | null;
+  /** Migration 0009: the categorical levels the run fits with (JSON array). */
+  design_levels: ColumnType<unknown, string | null | undefined, string | null>;
 }
 
 /** `models`: one row per fit, segment and run. */
