@@ -6,6 +6,8 @@ import { benchCompensated, benchKernels, benchRawKernels } from './kernel-bench.
 import type { CompensatedFigure, KernelFigure } from './kernel-bench.js';
 import { measureReport, measureWorkload, REPORT_WORKLOAD, WORKLOADS } from './workloads.js';
 import type { ReportFigure, WorkloadFigure } from './workloads.js';
+import { SCORE_WORKLOADS, benchScore } from './score-bench.js';
+import type { ScoreFigure } from './score-bench.js';
 
 // `npm run bench`: prints figures and writes bench/results.json. Targets live here, not
 // in timed unit tests: the plain-JavaScript fold must reach 2.9 GFLOP/s at p = 200 (the
@@ -100,7 +102,23 @@ for (const w of ACCURACY_WORKLOADS.filter((x) => selected(x.name))) {
     console.log(`${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
   }
 }
+const scoring: ScoreFigure[] = [];
+console.log('\nscoring into a table (medians; floors measured in the same run: psql binary COPY of the source to /dev/null + psql binary COPY of the scores into an empty table)');
+console.log('workload        rows        terms  COPY out  COPY in  score    score/floor (target)  peak RSS (target)');
+for (const w of SCORE_WORKLOADS.filter((x) => selected(x.name))) {
+  try {
+    const s = await benchScore(w, w.rows > 2_000_000 ? 1 : 3);
+    scoring.push(s);
+    console.log(
+      `${s.name.padEnd(14)}  ${s.rows.toLocaleString('en-US').padStart(10)}  ${String(s.terms).padStart(5)}  ${s.copyOutSeconds.toFixed(2).padStart(7)}s  ` +
+        `${s.copyInSeconds.toFixed(2).padStart(6)}s  ${s.scoreSeconds.toFixed(2).padStart(6)}s  ${s.ratio.toFixed(2).padStart(8)} (≤ ${s.target})       ` +
+        `${s.peakRssMb.toFixed(0).padStart(5)} MB (≤ 300)${s.repeats === 1 ? '  (one repeat)' : ''}`,
+    );
+  } catch (err) {
+    console.log(`${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
+  }
+}
 writeFileSync(
   new URL('../../bench/results.json', import.meta.url),
-  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, compensated, workloads, reports, accuracy }, null, 2) + '\n',
+  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, compensated, workloads, reports, accuracy, scoring }, null, 2) + '\n',
 );

@@ -89,7 +89,7 @@ async function ensureWorkloadTable(w: Workload): Promise<void> {
   else await ensureAccuracyTable({ rows: w.rows, terms: w.terms, kind: w.kind });
 }
 
-function median(xs: number[]): number {
+export function median(xs: number[]): number {
   const s = [...xs].sort((a, b) => a - b);
   return s[Math.floor(s.length / 2)]!;
 }
@@ -134,7 +134,7 @@ export function timedFit(
 }
 
 /** Runs a command under /usr/bin/time: wall seconds, peak RSS (MB), user + system CPU. */
-function timed(cmd: string, args: string[]): { seconds: number; rssMb: number; cpu: number; stdout: string } {
+export function timed(cmd: string, args: string[]): { seconds: number; rssMb: number; cpu: number; stdout: string } {
   const t0 = performance.now();
   const p = spawnSync('/usr/bin/time', ['-f', 'ROWFOLD_TIME %M %U %S', cmd, ...args], { encoding: 'utf8', maxBuffer: 1 << 20 });
   const seconds = (performance.now() - t0) / 1000;

@@ -3,6 +3,7 @@ import type { Argv } from 'yargs';
 import { FitInputError } from '../fit/fit-input-error.js';
 import { PlanError } from '../plan/plan-error.js';
 import { SpecFileError } from '../run/run-fit.js';
+import { ScoreError } from '../run/score-error.js';
 import { SpecError } from '../spec/spec-error.js';
 import { ConnectionConfigError } from '../source/connection-config-error.js';
 import { ConnectionsFileError } from '../source/connections-file.js';
@@ -15,10 +16,11 @@ import { fitCsvCommand } from './fit-csv-command.js';
 import { reportCommand } from './report-command.js';
 import { ScheduleError } from '../schedule/fit-schedule.js';
 import { runsCommand } from './runs-command.js';
+import { scoreCommand } from './score-command.js';
 import { scheduleCommand } from './schedule-command.js';
 import { serveCommand } from './serve-command.js';
 
-const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand, demoCommand, reportCommand, scheduleCommand, serveCommand, runsCommand];
+const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand, demoCommand, reportCommand, scheduleCommand, serveCommand, runsCommand, scoreCommand];
 
 /**
  * Entry point of the `rowfold` command. Each command lives in its own module; this file
@@ -57,6 +59,7 @@ function describeFailure(e: unknown): { code: number; text: string } {
   if (e instanceof ConnectionConfigError) return { code: ExitCode.usage, text: message };
   if (e instanceof ConnectionsFileError) return { code: ExitCode.usage, text: message };
   if (e instanceof ScheduleError) return { code: ExitCode.usage, text: message };
+  if (e instanceof ScoreError) return { code: ExitCode.usage, text: `cannot score: ${message}` };
   if (e instanceof SpecError) return { code: ExitCode.usage, text: `bad spec: ${message}` };
   if (e instanceof PlanError) return { code: ExitCode.usage, text: `spec does not fit the source: ${message}` };
   if (e instanceof FitInputError) return { code: ExitCode.failed, text: `bad data: ${message}` };

@@ -9,7 +9,7 @@ import { SqlTemplate, quoteIdent } from './sql-template.js';
 import { guardLevels } from './unplanned-level.js';
 
 /** One float8 column of the design query. */
-interface DesignColumn {
+export interface DesignColumn {
   readonly name: string;
   /** Spec name the column derives from (term, categorical column, response, weight). */
   readonly origin: string;
@@ -84,6 +84,70 @@ export function buildDesignPlan(
   exact: ReadonlySet<string> = new Set(),
   scope: DesignScope = {},
 ): DesignPlan {
+  const { design, valueOf } = designColumns(spec, casts, levels, exact);
+  const response = valueOf('response', spec.response);
+  const values: DesignColumn[] = [
+    ...design,
+    {
+      name: spec.response,
+      origin: spec.response,
+      key: 'response',
+      type: response.type,
+      sql: scope.guardLevels === true ? guardLevels(spec, levels, response.sql, response.type) : response.sql,
+    },
+  ];
+  if (spec.weight !== null) {
+    values.push({ name: spec.weight, origin: spec.weight, key: 'weight', ...valueOf('weight', spec.weight) });
+  }
+
+  const select: (SqlTemplate | string)[] = ['SELECT '];
+  const items: SqlTemplate[] = [
+    ...spec.segmentBy.map((c, i) => new SqlTemplate([`${SOURCE_ALIAS}.${quoteIdent(c)}::text AS ${quoteIdent(`k${i}`)}`])),
+    ...(scope.bucket === undefined
+      ? []
+      : [SqlTemplate.join([scope.bucket, ` AS ${quoteIdent(`k${spec.segmentBy.length}`)}`])]),
+    ...values.map((v, i) => SqlTemplate.join([v.sql, ` AS ${quoteIdent(`v${i}`)}`])),
+  ];
+  select.push(SqlTemplate.join(items, ',\n       '), '\n  FROM ');
+  const head = SqlTemplate.join(select);
+  const leaves = partitions !== null && partitions.length > 0 && !(partitions[0] instanceof SqlTemplate) ? (partitions as readonly LeafPartition[]) : null;
+  const parts: readonly (SqlTemplate | LeafPartition | null)[] = partitions ?? [null];
+  const queries = parts.map((p) => {
+    const leaf = p === null || p instanceof SqlTemplate ? null : p;
+    const base = SqlTemplate.join([head, leaf === null ? sourceRelation(spec) : leafRelation(leaf, SOURCE_ALIAS)]);
+    const where = [p instanceof SqlTemplate ? p : null, scope.filter ?? null].filter((c): c is SqlTemplate => c !== null);
+    if (where.length === 0) return base;
+    if (where.length === 1) return SqlTemplate.join([base, '\n WHERE ', where[0]!]);
+    // Both in parentheses, so neither binds to the other's operators.
+    return SqlTemplate.join([base, '\n WHERE ', SqlTemplate.join(where.map((c) => SqlTemplate.join(['(', c, ')'])), ' AND ')]);
+  });
+  return {
+    columns: design.map((c) => c.name),
+    valueNames: values.map((v) => v.name),
+    origins: values.map((v) => v.origin),
+    keyNames: scope.bucket === undefined ? [...spec.segmentBy] : [...spec.segmentBy, BUCKET_KEY],
+    levels,
+    queries,
+    ...(leaves === null ? {} : { sites: leaves.map((l) => l.site) }),
+    valueTypes: values.map((v) => v.type),
+  };
+}
+
+/**
+ * The design columns of a spec (terms, indicators of the levels, interaction products), in the
+ * order of the coefficients after the intercept, each with its SQL over the source; and how a
+ * further expression (the response, the weight) becomes a value column. The design query is
+ * built from them, and so is the query that scores rows with a fit's models.
+ */
+export function designColumns(
+  spec: FitSpec,
+  casts: ReadonlyMap<string, FloatCast>,
+  levels: readonly CategoricalLevels[],
+  exact: ReadonlySet<string> = new Set(),
+): {
+  design: DesignColumn[];
+  valueOf: (key: string, sql: string) => { sql: SqlTemplate; type: 'float8' | 'numeric' };
+} {
   // Expressions of type numeric stay numeric when `exact` names them (a float8 cast would
   // round their decimals); everything else is float8.
   const valueOf = (key: string, sql: string): { sql: SqlTemplate; type: 'float8' | 'numeric' } =>
@@ -135,52 +199,7 @@ export function buildDesignPlan(
   }
   const design = [...termCols, ...[...catCols.values()].flat(), ...interactionCols];
   requireUniqueNames(design);
-  const response = valueOf('response', spec.response);
-  const values: DesignColumn[] = [
-    ...design,
-    {
-      name: spec.response,
-      origin: spec.response,
-      key: 'response',
-      type: response.type,
-      sql: scope.guardLevels === true ? guardLevels(spec, levels, response.sql, response.type) : response.sql,
-    },
-  ];
-  if (spec.weight !== null) {
-    values.push({ name: spec.weight, origin: spec.weight, key: 'weight', ...valueOf('weight', spec.weight) });
-  }
-
-  const select: (SqlTemplate | string)[] = ['SELECT '];
-  const items: SqlTemplate[] = [
-    ...spec.segmentBy.map((c, i) => new SqlTemplate([`${SOURCE_ALIAS}.${quoteIdent(c)}::text AS ${quoteIdent(`k${i}`)}`])),
-    ...(scope.bucket === undefined
-      ? []
-      : [SqlTemplate.join([scope.bucket, ` AS ${quoteIdent(`k${spec.segmentBy.length}`)}`])]),
-    ...values.map((v, i) => SqlTemplate.join([v.sql, ` AS ${quoteIdent(`v${i}`)}`])),
-  ];
-  select.push(SqlTemplate.join(items, ',\n       '), '\n  FROM ');
-  const head = SqlTemplate.join(select);
-  const leaves = partitions !== null && partitions.length > 0 && !(partitions[0] instanceof SqlTemplate) ? (partitions as readonly LeafPartition[]) : null;
-  const parts: readonly (SqlTemplate | LeafPartition | null)[] = partitions ?? [null];
-  const queries = parts.map((p) => {
-    const leaf = p === null || p instanceof SqlTemplate ? null : p;
-    const base = SqlTemplate.join([head, leaf === null ? sourceRelation(spec) : leafRelation(leaf, SOURCE_ALIAS)]);
-    const where = [p instanceof SqlTemplate ? p : null, scope.filter ?? null].filter((c): c is SqlTemplate => c !== null);
-    if (where.length === 0) return base;
-    if (where.length === 1) return SqlTemplate.join([base, '\n WHERE ', where[0]!]);
-    // Both in parentheses, so neither binds to the other's operators.
-    return SqlTemplate.join([base, '\n WHERE ', SqlTemplate.join(where.map((c) => SqlTemplate.join(['(', c, ')'])), ' AND ')]);
-  });
-  return {
-    columns: design.map((c) => c.name),
-    valueNames: values.map((v) => v.name),
-    origins: values.map((v) => v.origin),
-    keyNames: scope.bucket === undefined ? [...spec.segmentBy] : [...spec.segmentBy, BUCKET_KEY],
-    levels,
-    queries,
-    ...(leaves === null ? {} : { sites: leaves.map((l) => l.site) }),
-    valueTypes: values.map((v) => v.type),
-  };
+  return { design, valueOf };
 }
 
 /**

@@ -7,6 +7,8 @@ import { renderConditioningSection } from './render-conditioning-section.js';
 import { renderModelSection } from './render-model-section.js';
 import { renderResidualSection } from './render-residual-section.js';
 import type { ResidualOutcome } from './render-residual-section.js';
+import { renderScoringSection } from './render-scoring-section.js';
+import type { StoredScoring } from '../store/load-latest-scoring.js';
 import type { ReportModel, ReportRun } from './report-run.js';
 import { REPORT_CSS } from './report-styles.js';
 import { MANY_SEGMENTS, renderDistributionSection, standouts } from './many-segments.js';
@@ -18,6 +20,8 @@ export interface ReportContent {
   /** The segment whose residuals are plotted. */
   readonly residualModel: ReportModel;
   readonly residuals: ResidualOutcome;
+  /** The fit's newest scoring (null: never scored, or not loaded). */
+  readonly scoring?: StoredScoring | null;
 }
 
 const SECTIONS: readonly [string, string][] = [
@@ -25,6 +29,7 @@ const SECTIONS: readonly [string, string][] = [
   ['models', 'Models'],
   ['across-segments', 'Across segments'],
   ['residuals', 'Residuals'],
+  ['predicted-actual', 'Predicted against actual'],
   ['conditioning', 'Conditioning'],
   ['cautions', 'Cautions'],
 ];
@@ -42,11 +47,13 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
   const shown = many ? standouts(run.models, content.residualModel) : [];
   const models = many ? renderModelSection(shown.map((s) => s.model), { total: run.models.length, fitName: run.fitName }) : renderModelSection(run.models);
   const across = many ? renderDistributionSection(run.models, shown) : await renderAcrossSegmentsSection(run.models, run.segmentColumns);
+  const labels = new Map(run.models.map((m) => [m.segmentKey, m.label]));
   const sections = [
     renderAuditSection(run, context),
     // Many segments: the distributions first, they say what the standouts stand out from.
     ...(many ? [across, models] : [models, across]),
     await renderResidualSection(content.residualModel, content.residuals),
+    await renderScoringSection(content.scoring ?? null, content.residualModel, (key) => labels.get(key) ?? key),
     await renderConditioningSection(run.models, run.segmentColumns, many),
     renderCautionsSection(run.models),
   ];

@@ -9,6 +9,8 @@ import { maskSecrets } from '../source/mask-secrets.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { createStoreDb, DEFAULT_STORE_SCHEMA } from '../store/index.js';
+import { loadLatestScoring } from '../store/load-latest-scoring.js';
+import type { StoredScoring } from '../store/load-latest-scoring.js';
 import { chooseSegment } from './choose-segment.js';
 import { loadReportRun } from './load-report-run.js';
 import type { ResidualOutcome } from './render-residual-section.js';
@@ -57,18 +59,22 @@ export async function writeFitReport(database: Database, opts: WriteFitReportOpt
   if (!Number.isInteger(sampleRows) || sampleRows < 1) throw new RangeError(`sampleRows must be a positive whole number, got ${sampleRows}`);
   const db = createStoreDb(database.dialect());
   let run: ReportRun;
+  let scoring: StoredScoring | null;
+  let model: ReportModel;
   try {
     run = await loadReportRun(db, schema, opts.fit, (text) => tryParseSpec(text, opts.fit)?.segmentBy ?? []);
+    model = chooseSegment(run.models, opts.segment);
+    scoring = await loadLatestScoring(db, schema, opts.fit, model.segmentKey);
   } finally {
     await db.destroy();
   }
-  const model = chooseSegment(run.models, opts.segment);
   const residuals = await residualOutcome(database, run.specText, opts.fit, run.runId, model, sampleRows, opts.connections ?? NO_CONNECTIONS);
   const html = await renderReportHtml({
     run,
     context: { database: database.display, generatedAt: new Date(), toolVersion: toolVersion() },
     residualModel: model,
     residuals,
+    scoring,
   });
   const path = resolve(opts.out);
   await mkdir(dirname(path), { recursive: true });

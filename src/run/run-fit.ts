@@ -140,6 +140,7 @@ export function startFitRun(db: Kysely<StoreDatabase>, spec: FitSpec, plan: Desi
       .join('\n-- next partition --\n'),
     toolVersion: TOOL_VERSION,
     readFrom,
+    designLevels: plan.levels,
   });
 }
 

@@ -1,4 +1,6 @@
 import type { Dialect } from 'kysely';
+import type { SqlTemplate } from '../plan/sql-template.js';
+import type { CopyPieces } from './copy-binary-decoder.js';
 import type { BlockSink, DesignReadCounts, DesignReadRequest } from './read-design.js';
 
 /** Rows of a small query, as arrays, with the output columns' names and type OIDs. */
@@ -19,6 +21,16 @@ export interface DbSession {
   exec(sql: string): Promise<void>;
   /** Streams the rows of a design query into row blocks (see readDesign). */
   readDesign(req: DesignReadRequest, sink: BlockSink): Promise<DesignReadCounts>;
+  /**
+   * The output of `COPY (query) TO … (FORMAT binary)`, in pieces as they arrive; reading stops
+   * while the consumer does not pull (on the server; the embedded database returns it whole).
+   */
+  copyOut(query: SqlTemplate, signal?: AbortSignal): AsyncIterable<CopyPieces>;
+  /**
+   * Copies one whole binary COPY file into `table` (quoted, qualified) `columns` (quoted) by
+   * `COPY … FROM (FORMAT binary)`; resolves to the number of rows copied.
+   */
+  copyIn(table: string, columns: readonly string[], data: Uint8Array): Promise<number>;
 }
 
 /**

@@ -234,5 +234,17 @@ function sessionOf(instance: Instance, isLive: () => boolean): DbSession {
       check();
       return readDesignFrom(pgliteDesignTransport(pglite, designParsers), req, sink);
     },
+    copyOut(query, signal) {
+      check();
+      return pgliteDesignTransport(pglite, designParsers).copyChunks(query, signal);
+    },
+    async copyIn(table, columns, data) {
+      check();
+      // PGlite reads COPY input from its virtual /dev/blob device, given as a Blob.
+      const r = await pglite.query(`COPY ${table} (${columns.join(', ')}) FROM '/dev/blob' (FORMAT binary)`, [], {
+        blob: new Blob([data]),
+      });
+      return r.affectedRows ?? 0;
+    },
   };
 }

@@ -1,6 +1,8 @@
 import type pg from 'pg';
 import type { DbSession, QueryOutcome } from './database.js';
+import { copyInto } from './copy-in.js';
 import { readDesign } from './read-design.js';
+import { streamCopyChunks } from './stream-copy-chunks.js';
 
 /** A session over one checked-out pg client. */
 export function pgSession(client: pg.ClientBase): DbSession {
@@ -13,5 +15,7 @@ export function pgSession(client: pg.ClientBase): DbSession {
       await client.query(sql);
     },
     readDesign: (req, sink) => readDesign(client, req, sink),
+    copyOut: (query, signal) => streamCopyChunks(client, query, signal),
+    copyIn: (table, columns, data) => copyInto(client, `COPY ${table} (${columns.join(', ')}) FROM STDIN (FORMAT binary)`, data),
   };
 }

@@ -142,6 +142,10 @@ function holdingSession(client: pg.Client): DbSession {
       });
     },
     readDesign: () => Promise.reject(new Error('the session holding a shared snapshot does not read design rows; read on a session of the view')),
+    copyOut: () => {
+      throw new Error('the session holding a shared snapshot does not copy rows; use a session of the view');
+    },
+    copyIn: () => Promise.reject(new Error('the session holding a shared snapshot does not copy rows; use a session of the view')),
   };
 }
 

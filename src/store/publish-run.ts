@@ -1,5 +1,6 @@
 import { sql } from 'kysely';
 import type { Kysely } from 'kysely';
+import { insertCovariances } from './insert-covariances.js';
 import { insertModels } from './insert-models.js';
 import type { ModelRecord } from './model-record.js';
 import { runIdText } from './run-id.js';
@@ -33,7 +34,7 @@ const DEFAULT_BATCH_SIZE = 5000;
 
 
 /**
- * Publishes a run in one transaction: all its models and coefficients (set-based inserts, one
+ * Publishes a run in one transaction: all its models, coefficients and covariances (set-based inserts, one
  * statement per batch) and the run marked succeeded with its counts. A reader sees all of it
  * or none; if anything fails nothing is written and the run stays `running` for the caller to
  * {@link failRun}.
@@ -93,6 +94,8 @@ export async function writeRunResult(
     if (batch.length === 0) return;
     try {
       await insertModels(trx, schema, runId, run.fit_name, batch);
+      // The batch's covariances beside its models, before the batch is let go.
+      await insertCovariances(trx, schema, runId, batch);
     } catch (error) {
       throw explainInsertFailure(error, runId, batch);
     }

@@ -2,6 +2,13 @@ import type { Kysely } from 'kysely';
 import { checkSchemaName } from './schema-name.js';
 import type { StoreDatabase } from './store-database.js';
 
+/** The levels of one categorical column as a run fits them. */
+export interface StoredLevels {
+  readonly column: string;
+  readonly levels: readonly string[];
+  readonly reference: string;
+}
+
 /** What is known about a run when it starts. */
 export interface RunStart {
   readonly fitName: string;
@@ -15,6 +22,11 @@ export interface RunStart {
   readonly toolVersion: string;
   /** Where the rows are read when not from this database (connection names and places, no password). */
   readonly readFrom?: string | null | undefined;
+  /**
+   * The categorical levels the run fits with, in spec order, so its models can later score
+   * rows through the very same indicators (`runs.design_levels`); written with the row.
+   */
+  readonly designLevels?: readonly StoredLevels[];
 }
 
 /**
@@ -41,6 +53,9 @@ export async function startRun(db: Kysely<StoreDatabase>, schema: string, run: R
       tool_version: run.toolVersion,
       status: 'running',
       ...(run.readFrom == null ? {} : { read_from: run.readFrom }),
+      ...(run.designLevels === undefined
+        ? {}
+        : { design_levels: JSON.stringify(run.designLevels.map((l) => ({ column: l.column, levels: l.levels, reference: l.reference }))) }),
     })
     .returning('run_id')
     .executeTakeFirstOrThrow();

@@ -51,6 +51,8 @@ export interface RunsTable {
   error_message: string | null;
   /** Where the rows were read when not from this database (migration 0008). */
   read_from: ColumnType<string | null, string | null | undefined, string | null>;
+  /** Migration 0009: the categorical levels the run fits with (JSON array). */
+  design_levels: ColumnType<unknown, string | null | undefined, string | null>;
 }
 
 /** `models`: one row per fit, segment and run. */

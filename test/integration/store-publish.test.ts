@@ -4,6 +4,7 @@ import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import type { FitSolution } from '../../src/fit/fit-solution.js';
 import { solve } from '../../src/fit/solve.js';
 import { failRun } from '../../src/store/fail-run.js';
+import { packCovariance } from '../../src/store/insert-covariances.js';
 import { migrate } from '../../src/store/migrate.js';
 import type { ModelRecord } from '../../src/store/model-record.js';
 import { publishRun } from '../../src/store/publish-run.js';
@@ -170,6 +171,15 @@ async function countRows(table: 'models' | 'coefficients', runId: number): Promi
   return Number(row.n);
 }
 
+/** Covariance rows of a run (migration 0009), written batch by batch beside the models. */
+async function covariancesOf(runId: number): Promise<{ segment_key: string; term_index: number[]; terms: string[]; packed: number[] }[]> {
+  const result = await sql<{ segment_key: string; term_index: number[]; terms: string[]; packed: number[] }>`
+    select m.segment_key, v.term_index, v.terms, v.packed
+      from ${sql.id(SCHEMA, 'covariances')} v join ${sql.id(SCHEMA, 'models')} m on m.model_id = v.model_id and m.run_id = v.run_id
+     where v.run_id = ${String(runId)}::bigint order by m.segment_key`.execute(db);
+  return result.rows;
+}
+
 async function runRow(runId: number) {
   return db.withSchema(SCHEMA).selectFrom('runs').selectAll().where('run_id', '=', String(runId)).executeTakeFirstOrThrow();
 }
@@ -213,6 +223,8 @@ describe('publishRun', () => {
       watermark_from: null,
       watermark_to: null,
       notes: [],
+      // Migration 0009: written by rowfold fit when the run starts (startRun alone leaves it null).
+      design_levels: null,
     });
     expect(run.started_at.getTime()).toBeGreaterThanOrEqual(before.getTime() - 5000);
     expect(run.ended_at!.getTime()).toBeGreaterThanOrEqual(run.started_at.getTime());
@@ -285,6 +297,12 @@ describe('publishRun', () => {
     await publishRun(db, SCHEMA, runId, result(models), { batchSize: 5000 });
     expect(await countRows('models', runId)).toBe(8000);
     expect(await countRows('coefficients', runId)).toBe(8000 * 7);
+    // Every model's covariance, from both batches, on its own model's row.
+    const covariances = await covariancesOf(runId);
+    expect(covariances).toHaveLength(8000);
+    const packed = packCovariance(solution)!;
+    expect(new Set(covariances.map((c) => c.segment_key))).toEqual(new Set(models.map((m) => m.segmentKey)));
+    expect(covariances[0]).toMatchObject({ term_index: packed.termIndex, terms: packed.terms, packed: [...packed.packed] });
     const runId2 = await startRun(db, SCHEMA, runStart('many'));
     // One batch of 8000 models: 56 000 coefficients in two statements.
     await publishRun(db, SCHEMA, runId2, result(models), { batchSize: 10_000 });
@@ -307,6 +325,7 @@ describe('publishRun', () => {
     expect(((error as Error).cause as { code?: string }).code).toBe('23505');
     expect(await countRows('models', runId)).toBe(0);
     expect(await countRows('coefficients', runId)).toBe(0);
+    expect(await covariancesOf(runId)).toEqual([]);
     expect(await runRow(runId)).toMatchObject({ status: 'running', ended_at: null, segment_count: null });
 
     expect(await failRun(db, SCHEMA, runId, error)).toBe(true);
