@@ -1,5 +1,6 @@
 import type { Argv } from 'yargs';
 import { INTERCEPT_TERM } from '../fit/fit-solution.js';
+import { residualsToJson } from '../report/residuals-json.js';
 import { solutionToJson } from '../report/solution-json.js';
 import { formatSegmentsTable } from '../report/segments-table.js';
 import { formatSolution } from '../report/terminal-summary.js';
@@ -84,7 +85,12 @@ function runJson(r: RunFitResult): unknown {
       seconds: r.seconds,
       ...(r.refit === undefined ? {} : refitJson(r.refit)),
     },
-    models: r.models.map((m) => ({ segment: m.segment, ...solutionToJson(m.solution), passes: m.passes })),
+    models: r.models.map((m) => ({
+      segment: m.segment,
+      ...solutionToJson(m.solution),
+      passes: m.passes,
+      ...(m.residuals === undefined ? {} : { residuals: residualsToJson(m.residuals) }),
+    })),
   };
 }
 

@@ -4,6 +4,7 @@ import type { DesignPlan, DesignScope } from '../plan/design-plan.js';
 import { partitionPredicates } from '../plan/partition-predicates.js';
 import { PlanError } from '../plan/plan-error.js';
 import { levelQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
+import { residualColumns } from '../plan/residual-columns.js';
 import { resolveLevels } from '../plan/resolve-levels.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
 import { sourceTableName } from '../plan/source-relation.js';
@@ -54,7 +55,17 @@ export async function planFit(
   const fast = buildDesignPlan(spec, casts, levels, partitions, new Set(), first);
   const extended = buildDesignPlan(spec, casts, levels, partitions, numeric, second ?? first);
   const extendedFloat = second === undefined ? undefined : buildDesignPlan(spec, casts, levels, partitions, new Set(), second);
-  return { ...fast, extended, extendedFloat };
+  // The residual pass reads every row the models hold (for a refit, the double-double pass's
+  // scope: all rows up to the new watermark, in the window), in one query when it is ordered.
+  const extras = residualColumns(spec);
+  const residual =
+    extras === undefined
+      ? undefined
+      : buildDesignPlan(spec, casts, levels, extras.orderBy === null ? partitions : null, new Set(), {
+          ...(second ?? first),
+          residual: extras,
+        });
+  return { ...fast, extended, extendedFloat, ...(residual === undefined ? {} : { residual }) };
 }
 
 /**

@@ -11,13 +11,25 @@ import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
-import { createStoreDb, failRun, migrate, publishRun, startRun, writeFitStates, writeRefitRecord, writeRunResult } from '../store/index.js';
+import {
+  createStoreDb,
+  failRun,
+  migrate,
+  publishRun,
+  startRun,
+  writeFitStates,
+  writeRefitRecord,
+  writeResidualResults,
+  writeRunResult,
+} from '../store/index.js';
 import type { ModelRecord, StoreDatabase } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { finishRefit, startRefit, storedStates } from './refit.js';
 import type { RefitOutcome, RefitStart } from './refit.js';
 import { certifyDigits } from './accuracy-passes.js';
 import { readPass } from './read-pass.js';
+import { residualPass } from './residual-pass.js';
+import type { ModelResiduals } from './residual-pass.js';
 import { previousSolutions } from './refit-anchors.js';
 import { toolVersion } from './tool-version.js';
 
@@ -63,6 +75,8 @@ export interface FittedModel {
   readonly solution: FitSolution;
   /** Streamed passes over this model's rows (more than 1 when `auto` refined it or folded it in double-double). */
   readonly passes: number;
+  /** What the residual pass found (spec key `residual_pass`); absent without one. */
+  readonly residuals?: ModelResiduals | undefined;
 }
 
 /** The outcome of a run (or of a dry run: the plan only). */
@@ -144,7 +158,9 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     const runId = await startFitRun(db, spec, plan);
     req.onRunStarted?.(runId);
     try {
-      const out = await readAndSolve(reads, spec, plan, req, refit);
+      const solved = await readAndSolve(reads, spec, plan, req, refit);
+      req.signal?.throwIfAborted();
+      const out = await withResiduals(reads, spec, plan, req, solved);
       req.signal?.throwIfAborted();
       const result = {
         rowsRead: out.rowsRead,
@@ -162,13 +178,18 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
         ),
       };
       const done = out.refit;
-      if (done === undefined) await publishRun(db, spec.schema, runId, result);
+      const residuals = residualRecords(out.models);
+      if (done === undefined && residuals.size === 0) await publishRun(db, spec.schema, runId, result);
       else {
-        // State, drift tests and models in one transaction: a refit never merges state of an unpublished run.
+        // State, drift tests, models and residual results in one transaction: a refit never merges
+        // state of an unpublished run, and a dashboard never sees models without their robust errors.
         await db.transaction().execute(async (trx) => {
           await writeRunResult(trx, spec.schema, runId, result);
-          await writeFitStates(trx, spec.schema, spec.name, runId, done.states);
-          await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
+          if (done !== undefined) {
+            await writeFitStates(trx, spec.schema, spec.name, runId, done.states);
+            await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
+          }
+          await writeResidualResults(trx, spec.schema, runId, residuals);
         });
       }
       return { ...base, runId, ...out };
@@ -328,5 +349,34 @@ function skippedByReason(plan: DesignPlan, counts: readonly DesignReadCounts[], 
   add('null', (c) => c.nullCounts);
   add('non_finite', (c) => c.nonFiniteCounts);
   if (zeroWeight > 0) out.zero_weight = zeroWeight;
+  return out;
+}
+
+/**
+ * The residual pass after the solve, when the spec asks for one (`residual_pass`): its findings
+ * join each model, and its time the run's. It reads every row the models hold, so an
+ * incremental refit, which folds only new rows, still takes this pass over all of them.
+ */
+export async function withResiduals<T extends { models: readonly FittedModel[]; seconds: number }>(
+  database: Database,
+  spec: FitSpec,
+  plan: DesignPlan,
+  req: RunFitRequest,
+  solved: T,
+): Promise<T> {
+  if (spec.residualPass === null || plan.residual === undefined) return solved;
+  const started = performance.now();
+  const found = await residualPass(database, spec, plan, req, solved.models);
+  return {
+    ...solved,
+    seconds: solved.seconds + (performance.now() - started) / 1000,
+    models: solved.models.map((m) => ({ ...m, residuals: found.get(m.segmentKey) })),
+  };
+}
+
+/** The residual results to publish, by segment key. */
+export function residualRecords(models: readonly FittedModel[]): Map<string, ModelResiduals> {
+  const out = new Map<string, ModelResiduals>();
+  for (const m of models) if (m.residuals !== undefined) out.set(m.segmentKey, m.residuals);
   return out;
 }

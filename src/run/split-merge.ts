@@ -4,9 +4,18 @@ import { PlanOutdatedError, sourceChangedError } from '../plan/plan-outdated-err
 import type { ConnectionTarget } from '../source/connection-target.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { openServerDatabase } from '../source/server-database.js';
-import { createStoreDb, deletePartials, failRunsAndPartials, loadPartialFactors, loadSplitRun, recordSplitRunSeconds, writeRunResult } from '../store/index.js';
+import {
+  createStoreDb,
+  deletePartials,
+  failRunsAndPartials,
+  loadPartialFactors,
+  loadSplitRun,
+  recordSplitRunSeconds,
+  writeResidualResults,
+  writeRunResult,
+} from '../store/index.js';
 import type { ModelRecord } from '../store/index.js';
-import { passesOf, readAndSolve } from './run-fit.js';
+import { passesOf, readAndSolve, residualRecords, withResiduals } from './run-fit.js';
 import { keepSplitRunAlive, splitLeaseSeconds } from './split-lease.js';
 import { splitRunSpec } from './split-partition.js';
 
@@ -77,7 +86,10 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const counts = partials.partitions.map((p) => p.counts as DesignReadCounts);
           // A double-double pass reads every partition at once, over one snapshot.
           const reads = await database.shareSnapshot();
-          const out = await readAndSolve(reads, spec, plan, { specPath: spec.origin, signal: req.signal }, null, { fit, counts })
+          const passReq = { specPath: spec.origin, signal: req.signal };
+          // The residual pass (residual_pass) reads every partition's rows again in the same snapshot.
+          const out = await readAndSolve(reads, spec, plan, passReq, null, { fit, counts })
+            .then((solved) => withResiduals(reads, spec, plan, passReq, solved))
             .catch((e: unknown) => {
               throw sourceChangedError(e, req.runId) ?? e;
             })
@@ -89,6 +101,7 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           req.signal?.throwIfAborted();
           await store.transaction().execute(async (trx) => {
             await writeRunResult(trx, req.schema, req.runId, result);
+            await writeResidualResults(trx, req.schema, req.runId, residualRecords(out.models));
             // The run's seconds are its whole duration, with the parts beside it in split_runs.
             await recordSplitRunSeconds(trx, req.schema, req.runId, (performance.now() - started) / 1000);
             await deletePartials(trx, req.schema, req.runId);
