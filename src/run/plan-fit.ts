@@ -10,6 +10,7 @@ import type { CategoricalLevels } from '../plan/resolve-levels.js';
 import { sourceTableName } from '../plan/source-relation.js';
 import type { DbSession } from '../source/database.js';
 import { describeQuery, queryAll } from '../source/query-helpers.js';
+import { probeResidualColumns } from './probe-residual-columns.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 
 /**
@@ -35,6 +36,7 @@ export async function planFit(
     throw await locateProbeFailure(client, spec, expressions, e);
   }
   const casts = checkExpressionTypes(expressions, types);
+  await probeResidualColumns(client, spec);
   const numeric = numericExpressionKeys(expressions, types);
   const levels: CategoricalLevels[] = [];
   for (const [i, cat] of spec.categorical.entries()) {

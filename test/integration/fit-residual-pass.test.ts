@@ -175,4 +175,15 @@ describe(`rowfold fit with residual_pass publishes what ${SOURCE} computes`, () 
     });
     expect(r.residual_tests.map((t) => t.test)).toContain('durbin_watson');
   }, 60_000);
+
+  it('a column residual_pass names that the source lacks fails at plan time, naming the key, before any run is written', async () => {
+    const c = fixture.cases[0]!;
+    const table = await load({ ...c, name: `${c.name}_bad` }, [{ name: 'F01', scale: 1 }]);
+    const spec = { ...specOf(c, table, false), name: 'rp_bad', residual_pass: { cluster_by: 'substation', influential: { keys: ['reading_id'] } } };
+    const res = await runCli(['fit', writeSpec(spec), '--db', tdb.url]);
+    expect(res.code).not.toBe(0);
+    expect(res.stderr).toMatch(/residual_pass\.cluster_by: column substation cannot be read from the source/);
+    const runs = await tdb.query<{ n: string }>(`select count(*)::text as n from rowfold.runs where fit_name = 'rp_bad'`).catch(() => ({ rows: [{ n: '0' }] }));
+    expect(runs.rows[0]!.n).toBe('0');
+  }, 60_000);
 });
