@@ -1,6 +1,6 @@
 -- The residual pass (spec key residual_pass): standard errors by method in long form beside the
 -- classical ones, tests and summaries of each model's residuals, and each model's most
--- influential rows. Written in the run's transaction with its models; a view per table shows the
+-- influential rows, and the prediction error on held-out rows. Written in the run's transaction with its models; a view per table shows the
 -- latest successful model of every fit and segment.
 
 create table coefficient_errors (
@@ -81,6 +81,30 @@ comment on column influential_rows.row_key is
 comment on column influential_rows.residual is 'The row''s residual y − ŷ (times √w for a weighted fit).';
 comment on column influential_rows.leverage is 'The row''s leverage hᵢᵢ, the diagonal of the hat matrix.';
 comment on column influential_rows.cooks_distance is 'The row''s Cook''s distance.';
+
+create table holdout_errors (
+  model_id   bigint not null primary key,
+  run_id     bigint not null,
+  hold_key   text not null,
+  fraction   double precision not null check (fraction > 0 and fraction <= 0.5),
+  rows       bigint not null check (rows >= 0),
+  rmse       double precision,
+  mae        double precision,
+  r2         double precision,
+  constraint holdout_errors_model_fkey foreign key (run_id, model_id)
+    references models (run_id, model_id) on delete cascade
+);
+
+comment on table holdout_errors is
+  'Prediction error of each model on the rows held out of its fit (residual_pass.holdout): a deterministic hash split on a key column.';
+comment on column holdout_errors.model_id is 'The model whose predictions were scored.';
+comment on column holdout_errors.run_id is 'The run that produced the model (copied from models).';
+comment on column holdout_errors.hold_key is 'The column whose hash decided which rows were held out.';
+comment on column holdout_errors.fraction is 'Share of the key''s values held out.';
+comment on column holdout_errors.rows is 'Held-out rows of the segment with a positive weight.';
+comment on column holdout_errors.rmse is 'Root mean squared prediction error (weighted by the fit''s weights); null without held-out rows.';
+comment on column holdout_errors.mae is 'Mean absolute prediction error (weighted); null without held-out rows.';
+comment on column holdout_errors.r2 is 'R² out of sample: 1 − SSE/SST about the held-out rows'' own mean; null with fewer than 2 rows.';
 
 create view latest_coefficient_errors as
 select e.*, m.fit_name, m.segment, m.segment_key

@@ -35,7 +35,7 @@ export function blockLayout(shape: DesignShape): { width: number; response: numb
 export function residualContext(
   solution: FitSolution,
   shape: DesignShape,
-  names: { clusterBy: string | null; orderBy: string | null },
+  names: { clusterBy: string | null; orderBy: string | null; holdout?: boolean },
 ): ResidualContext {
   const byTerm = new Map(solution.coefficients.map((c) => [c.term, c]));
   return {
@@ -48,5 +48,6 @@ export function residualContext(
     constant: shape.intercept && shape.weight === undefined,
     clusterBy: names.clusterBy,
     orderBy: names.orderBy,
+    holdout: names.holdout === true,
   };
 }

@@ -30,8 +30,18 @@ export interface ResidualTest {
 /** Probabilities of the published residual quantiles. */
 export const RESIDUAL_QUANTILES = [0, 0.01, 0.05, 0.25, 0.5, 0.75, 0.95, 0.99, 1] as const;
 
+/** Prediction error on the rows held out of the fit (weighted by the fit's weights). */
+export interface HoldoutError {
+  readonly rows: number;
+  readonly rmse: number | null;
+  readonly mae: number | null;
+  /** 1 − SSE/SST about the held-out rows' own (weighted) mean; null with fewer than 2 rows. */
+  readonly r2: number | null;
+}
+
 /** What a segment's residual pass yields. */
 export interface ResidualFindings {
+  readonly holdout: HoldoutError | null;
   readonly errors: readonly CoefficientError[];
   readonly tests: readonly ResidualTest[];
   readonly topCooks: readonly InfluentialRow[];
@@ -51,6 +61,8 @@ export interface ResidualContext {
   /** Name of the cluster column, for extras. */
   readonly clusterBy: string | null;
   readonly orderBy: string | null;
+  /** Whether rows were held out (residual_pass.holdout). */
+  readonly holdout?: boolean;
 }
 
 /**
@@ -121,7 +133,16 @@ export function residualFindings(seg: ResidualSegment, ctx: ResidualContext): Re
   }
   tests.push(breuschPagan(seg, ctx.constant));
   tests.push(...residualShape(seg));
-  return { errors, tests, topCooks: seg.topCooks, topLeverage: seg.topLeverage, notes };
+  const h = seg.holdout;
+  const holdout = !ctx.holdout
+    ? null
+    : {
+        rows: h.rows,
+        rmse: h.rows > 0 ? Math.sqrt(h.sse / h.sumWeights) : null,
+        mae: h.rows > 0 ? h.sae / h.sumWeights : null,
+        r2: h.rows > 1 && h.sst > 0 ? 1 - h.sse / h.sst : null,
+      };
+  return { errors, tests, topCooks: seg.topCooks, topLeverage: seg.topLeverage, notes, holdout };
 }
 
 function inference(term: string, method: ErrorMethod, estimate: number, se: number | null, df: number, confidence: number): CoefficientError {

@@ -88,6 +88,8 @@ export class ResidualSegment {
   max = Number.NEGATIVE_INFINITY;
   /** Histogram of ẽ/σ over [−8, 8], with the rows below and above it at the ends. */
   readonly histogram = new Float64Array(QUANTILE_BINS + 2);
+  /** Sums over the rows held out of the fit (spec residual_pass.holdout). */
+  readonly holdout = { rows: 0, sumWeights: 0, sse: 0, sae: 0, meanY: 0, sst: 0 };
   readonly topCooks: InfluentialRow[] = [];
   readonly topLeverage: InfluentialRow[] = [];
   private readonly x: Float64Array;
@@ -125,10 +127,14 @@ export class ResidualSegment {
    * Folds one row (values at `values[offset …]`, in the block layout) with its cluster id
    * (ignored unless clustering) and its id (for influential rows). Zero-weight rows add nothing.
    */
-  row(values: Float64Array, offset: number, cluster: number, id: number): void {
+  row(values: Float64Array, offset: number, cluster: number, id: number, heldOut = false): void {
     const { k, model, x } = this;
     const w = this.layout.weight < 0 ? 1 : values[offset + this.layout.weight]!;
     if (!(w > 0)) return;
+    if (heldOut) {
+      this.holdOut(values, offset, w);
+      return;
+    }
     const sw = Math.sqrt(w);
     let fitted = 0;
     for (let j = 0; j < k; j++) {
@@ -172,6 +178,26 @@ export class ResidualSegment {
       keepTop(this.topCooks, r, cooks, this.options.influentialTop, (a) => a.cooksDistance);
       keepTop(this.topLeverage, r, h, this.options.influentialTop, (a) => a.leverage);
     }
+  }
+
+  /** A row held out of the fit: its prediction error, weighted (see holdout). */
+  private holdOut(values: Float64Array, offset: number, w: number): void {
+    let fitted = 0;
+    for (let j = 0; j < this.k; j++) {
+      const c = this.model.columns[j]!;
+      fitted += this.model.estimates[j]! * (c < 0 ? 1 : values[offset + c]!);
+    }
+    const y = values[offset + this.layout.response]!;
+    const e = y - fitted;
+    const h = this.holdout;
+    h.rows++;
+    h.sumWeights += w;
+    h.sse += w * e * e;
+    h.sae += w * Math.abs(e);
+    // Weighted mean and spread of y (West 1979 update), for R² out of sample.
+    const d = y - h.meanY;
+    h.meanY += (w / h.sumWeights) * d;
+    h.sst += w * d * (y - h.meanY);
   }
 
   private addCluster(cluster: number, e: number): void {

@@ -1,4 +1,5 @@
 import type { FitSpec } from '../spec/fit-spec.js';
+import { HOLDOUT_VALUE, holdoutPredicate } from './holdout-split.js';
 import { SOURCE_ALIAS, sourceRelation } from './source-relation.js';
 import { SqlTemplate, quoteIdent } from './sql-template.js';
 
@@ -35,9 +36,13 @@ export function rowIdExpression(keys: readonly string[]): SqlTemplate {
 export function residualColumns(spec: FitSpec): ResidualColumns | undefined {
   const r = spec.residualPass;
   if (r === null) return undefined;
+  const held = holdoutPredicate(spec);
   return {
     keys: r.clusterBy === null ? [] : [{ name: CLUSTER_KEY, sql: new SqlTemplate([`${SOURCE_ALIAS}.${quoteIdent(r.clusterBy)}::text`]) }],
-    values: r.influential === null ? [] : [{ name: ROW_ID_VALUE, sql: rowIdExpression(r.influential.keys) }],
+    values: [
+      ...(r.influential === null ? [] : [{ name: ROW_ID_VALUE, sql: rowIdExpression(r.influential.keys) }]),
+      ...(held === null ? [] : [{ name: HOLDOUT_VALUE, sql: SqlTemplate.join(['(', held, ')::int::float8']) }]),
+    ],
     orderBy: r.orderBy === null ? null : new SqlTemplate([`${SOURCE_ALIAS}.${quoteIdent(r.orderBy)} NULLS LAST`]),
   };
 }

@@ -12,6 +12,7 @@ export interface ResidualsView {
     readonly leverage: number;
     readonly cooksDistance: number;
   }[];
+  readonly holdout: { readonly rows: number; readonly rmse: number | null; readonly mae: number | null; readonly r2: number | null } | null;
   readonly notes: readonly string[];
 }
 
@@ -44,6 +45,7 @@ export function residualsToJson(r: ResidualsView): Record<string, unknown> {
       leverage: num(i.leverage),
       cooks_distance: num(i.cooksDistance),
     })),
+    holdout_errors: r.holdout === null ? null : { rows: r.holdout.rows, rmse: num(r.holdout.rmse), mae: num(r.holdout.mae), r2: num(r.holdout.r2) },
     notes: r.notes,
   };
 }

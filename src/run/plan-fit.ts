@@ -4,6 +4,7 @@ import type { DesignPlan, DesignScope } from '../plan/design-plan.js';
 import { partitionPredicates } from '../plan/partition-predicates.js';
 import { PlanError } from '../plan/plan-error.js';
 import { levelQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
+import { withoutHoldout } from '../plan/holdout-split.js';
 import { residualColumns } from '../plan/residual-columns.js';
 import { resolveLevels } from '../plan/resolve-levels.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
@@ -52,8 +53,9 @@ export async function planFit(
   const partitions = partitionPredicates(spec, parallel, pages);
   // The first pass may be scoped differently from a second, double-double one: an incremental
   // fit folds only new rows (per bucket) into stored state, the second pass reads them all.
-  const first = { ...scope.first, guardLevels };
-  const second = scope.extended === undefined ? undefined : { ...scope.extended, guardLevels };
+  // Rows held out (residual_pass.holdout) enter no fit pass; the residual pass reads them too.
+  const first = { ...scope.first, filter: withoutHoldout(spec, scope.first?.filter), guardLevels };
+  const second = scope.extended === undefined ? undefined : { ...scope.extended, filter: withoutHoldout(spec, scope.extended.filter), guardLevels };
   const fast = buildDesignPlan(spec, casts, levels, partitions, new Set(), first);
   const extended = buildDesignPlan(spec, casts, levels, partitions, numeric, second ?? first);
   const extendedFloat = second === undefined ? undefined : buildDesignPlan(spec, casts, levels, partitions, new Set(), second);
@@ -64,7 +66,8 @@ export async function planFit(
     extras === undefined
       ? undefined
       : buildDesignPlan(spec, casts, levels, extras.orderBy === null ? partitions : null, new Set(), {
-          ...(second ?? first),
+          ...(scope.extended ?? scope.first),
+          guardLevels,
           residual: extras,
         });
   return { ...fast, extended, extendedFloat, ...(residual === undefined ? {} : { residual }) };

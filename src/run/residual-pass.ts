@@ -2,10 +2,11 @@ import type { DesignShape } from '../fit/accumulator.js';
 import type { FitSolution } from '../fit/fit-solution.js';
 import { blockLayout, residualContext, residualModel } from '../fit/residual-model.js';
 import { residualFindings } from '../fit/residual-results.js';
-import type { CoefficientError, ResidualTest } from '../fit/residual-results.js';
+import type { CoefficientError, HoldoutError, ResidualTest } from '../fit/residual-results.js';
 import { ResidualSegment } from '../fit/residual-segment.js';
 import type { InfluentialRow, ResidualPassOptions } from '../fit/residual-segment.js';
 import type { DesignPlan } from '../plan/design-plan.js';
+import { HOLDOUT_VALUE } from '../plan/holdout-split.js';
 import { CLUSTER_KEY, ROW_ID_VALUE, influentialLookupQuery } from '../plan/residual-columns.js';
 import { unplannedLevelError } from '../plan/unplanned-level.js';
 import type { Database } from '../source/database.js';
@@ -34,6 +35,8 @@ export interface ModelResiduals {
   readonly errors: readonly CoefficientError[];
   readonly tests: readonly ResidualTest[];
   readonly influential: readonly ResolvedInfluentialRow[];
+  /** Prediction error on the held-out rows (residual_pass.holdout), or null. */
+  readonly holdout: HoldoutError | null;
   readonly notes: readonly string[];
 }
 
@@ -81,6 +84,7 @@ export async function residualPass(
   const segmentCount = spec.segmentBy.length;
   const clusterAt = residual.keyNames.indexOf(CLUSTER_KEY);
   const idAt = residual.valueNames.indexOf(ROW_ID_VALUE);
+  const heldAt = residual.valueNames.indexOf(HOLDOUT_VALUE);
   const clusterIds = new Map<string | null, number>();
   await Promise.all(
     residual.queries.map((query) =>
@@ -113,7 +117,7 @@ export async function residualPass(
               }
               if (entry.seg === null) continue;
               const o = i * width;
-              entry.seg.row(values, o, entry.cluster, idAt < 0 ? 0 : values[o + idAt]!);
+              entry.seg.row(values, o, entry.cluster, idAt < 0 ? 0 : values[o + idAt]!, heldAt >= 0 && values[o + heldAt] === 1);
             }
           },
         );
@@ -124,7 +128,7 @@ export async function residualPass(
   });
 
   const out = new Map<string, ModelResiduals>();
-  for (const [key, note] of skipped) out.set(key, { errors: [], tests: [], influential: [], notes: [note] });
+  for (const [key, note] of skipped) out.set(key, { errors: [], tests: [], influential: [], holdout: null, notes: [note] });
   const wanted = new Map<string, Set<number>>();
   const found = new Map<string, ReturnType<typeof residualFindings>>();
   for (const [key, { seg, solution }] of segments) {
@@ -133,11 +137,12 @@ export async function residualPass(
         errors: [],
         tests: [],
         influential: [],
+        holdout: null,
         notes: [`the residual pass read ${seg.rows} row(s) with a positive weight where the model holds ${seg.model.rows}: no robust figures`],
       });
       continue;
     }
-    const f = residualFindings(seg, residualContext(solution, shape, { clusterBy: rp.clusterBy, orderBy: rp.orderBy }));
+    const f = residualFindings(seg, residualContext(solution, shape, { clusterBy: rp.clusterBy, orderBy: rp.orderBy, holdout: rp.holdout !== null }));
     found.set(key, f);
     if (rp.influential !== null) {
       const ids = new Set([...f.topCooks, ...f.topLeverage].map((r) => r.id));
@@ -152,6 +157,7 @@ export async function residualPass(
       errors: f.errors,
       tests: f.notes.length === 0 ? f.tests : [...f.tests, { test: 'notes', statistic: null, df: null, p: null, extras: { notes: f.notes.join('; ') } }],
       influential: [...rows(f.topCooks, 'cooks_distance'), ...rows(f.topLeverage, 'leverage')],
+      holdout: f.holdout,
       notes: f.notes,
     });
   }

@@ -189,7 +189,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
             await writeFitStates(trx, spec.schema, spec.name, runId, done.states);
             await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
           }
-          await writeResidualResults(trx, spec.schema, runId, residuals);
+          await writeResidualResults(trx, spec.schema, runId, residuals, spec.residualPass?.holdout ?? null);
         });
       }
       return { ...base, runId, ...out };

@@ -101,7 +101,7 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           req.signal?.throwIfAborted();
           await store.transaction().execute(async (trx) => {
             await writeRunResult(trx, req.schema, req.runId, result);
-            await writeResidualResults(trx, req.schema, req.runId, residualRecords(out.models));
+            await writeResidualResults(trx, req.schema, req.runId, residualRecords(out.models), spec.residualPass?.holdout ?? null);
             // The run's seconds are its whole duration, with the parts beside it in split_runs.
             await recordSplitRunSeconds(trx, req.schema, req.runId, (performance.now() - started) / 1000);
             await deletePartials(trx, req.schema, req.runId);

@@ -238,6 +238,19 @@ export const fitSpecSchema = z
           })
           .optional()
           .meta({ description: 'The most influential rows of each segment, by Cook\'s distance and by leverage.' }),
+        holdout: z
+          .strictObject({
+            key: identifier('a column name', 'Column whose hash decides which rows are held out (rows with a NULL key never are).'),
+            fraction: z
+              .number({ error: 'must be a number above 0 and at most 0.5' })
+              .gt(0, { error: 'must be a number above 0 and at most 0.5' })
+              .max(0.5, { error: 'must be a number above 0 and at most 0.5' })
+              .meta({ description: 'Share of the key\'s values held out of the fit.' }),
+          })
+          .optional()
+          .meta({
+            description: 'Rows held out of the fit by a deterministic hash of a key column: RMSE, MAE and R² out of sample per segment.',
+          }),
       })
       .optional()
       .meta({

@@ -166,4 +166,6 @@ export interface FitResidualPass {
   readonly orderBy: string | null;
   /** Key columns and count of the influential rows kept per segment, or `null`. */
   readonly influential: { readonly keys: readonly string[]; readonly top: number } | null;
+  /** Rows held out of the fit by a hash of `key` (about `fraction` of its values), or `null`. */
+  readonly holdout: { readonly key: string; readonly fraction: number } | null;
 }

@@ -204,6 +204,7 @@ export function normaliseFitSpec(
               clusterBy: doc.residual_pass.cluster_by ?? null,
               orderBy: doc.residual_pass.order_by ?? null,
               influential: doc.residual_pass.influential === undefined ? null : { ...doc.residual_pass.influential },
+              holdout: doc.residual_pass.holdout === undefined ? null : { ...doc.residual_pass.holdout },
             },
     },
   };

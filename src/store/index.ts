@@ -37,4 +37,4 @@ export { extendSplitRun, startSplitRun } from './start-split-run.js';
 export { writePartialFactors } from './write-partial-factors.js';
 export type { PartialWriteOutcome } from './write-partial-factors.js';
 export { writeResidualResults } from './write-residual-results.js';
-export type { InfluentialRowRecord, ResidualRecord } from './write-residual-results.js';
+export type { HoldoutSplit, InfluentialRowRecord, ResidualRecord } from './write-residual-results.js';

@@ -1,6 +1,6 @@
 import { sql } from 'kysely';
 import type { Kysely } from 'kysely';
-import type { CoefficientError, ResidualTest } from '../fit/residual-results.js';
+import type { CoefficientError, HoldoutError, ResidualTest } from '../fit/residual-results.js';
 import { checkSchemaName } from './schema-name.js';
 import { float8Text, integerText } from './sql-array-values.js';
 import type { StoreDatabase } from './store-database.js';
@@ -22,11 +22,26 @@ export interface ResidualRecord {
   readonly errors: readonly CoefficientError[];
   readonly tests: readonly ResidualTest[];
   readonly influential: readonly InfluentialRowRecord[];
+  readonly holdout: HoldoutError | null;
+}
+
+/** The hold-out split the results came from (spec residual_pass.holdout), or null. */
+export interface HoldoutSplit {
+  readonly key: string;
+  readonly fraction: number;
 }
 
 type Row<T> = T & { readonly modelId: string };
 
 const ROWS_PER_STATEMENT = 50_000;
+
+const HOLDOUT_COLUMNS: readonly UnnestColumn<Row<HoldoutError>>[] = [
+  { name: 'model_id', kind: 'int8', value: (r) => r.modelId },
+  { name: 'rows', kind: 'int8', value: (r) => integerText(r.rows, 'rows') },
+  { name: 'rmse', kind: 'float8', value: (r) => float8Text(r.rmse) },
+  { name: 'mae', kind: 'float8', value: (r) => float8Text(r.mae) },
+  { name: 'r2', kind: 'float8', value: (r) => float8Text(r.r2) },
+];
 
 const ERROR_COLUMNS: readonly UnnestColumn<Row<CoefficientError>>[] = [
   { name: 'model_id', kind: 'int8', value: (r) => r.modelId },
@@ -69,6 +84,7 @@ export async function writeResidualResults(
   schema: string,
   runId: number,
   results: ReadonlyMap<string, ResidualRecord>,
+  split: HoldoutSplit | null = null,
 ): Promise<void> {
   if (!trx.isTransaction) throw new TypeError('writeResidualResults must run inside the run\'s transaction');
   checkSchemaName(schema);
@@ -79,12 +95,14 @@ export async function writeResidualResults(
   const errors: Row<CoefficientError>[] = [];
   const tests: Row<ResidualTest>[] = [];
   const influential: Row<InfluentialRowRecord>[] = [];
+  const holdout: Row<HoldoutError>[] = [];
   for (const [key, r] of results) {
     const modelId = modelIds.get(key);
     if (modelId === undefined) throw new Error(`run ${runId}: no model with segment key "${key}" for its residual results`);
     for (const e of r.errors) errors.push({ ...e, modelId });
     for (const t of r.tests) tests.push({ ...t, modelId });
     for (const i of r.influential) influential.push({ ...i, modelId });
+    if (r.holdout !== null) holdout.push({ ...r.holdout, modelId });
   }
   const constants = [{ name: 'run_id', value: sql`${runId}::bigint` }];
   const write = async <T>(table: string, columns: readonly UnnestColumn<T>[], rows: readonly T[]) => {
@@ -95,4 +113,10 @@ export async function writeResidualResults(
   await write('coefficient_errors', ERROR_COLUMNS, errors);
   await write('residual_tests', TEST_COLUMNS, tests);
   await write('influential_rows', INFLUENTIAL_COLUMNS, influential);
+  if (split !== null && holdout.length > 0) {
+    const splitColumns = [...constants, { name: 'hold_key', value: sql`${split.key}::text` }, { name: 'fraction', value: sql`${split.fraction}::float8` }];
+    for (let s = 0; s < holdout.length; s += ROWS_PER_STATEMENT) {
+      await unnestInsert(schema, 'holdout_errors', splitColumns, HOLDOUT_COLUMNS, holdout.slice(s, s + ROWS_PER_STATEMENT)).execute(trx);
+    }
+  }
 }

@@ -186,4 +186,34 @@ describe(`rowfold fit with residual_pass publishes what ${SOURCE} computes`, () 
     const runs = await tdb.query<{ n: string }>(`select count(*)::text as n from rowfold.runs where fit_name = 'rp_bad'`).catch(() => ({ rows: [{ n: '0' }] }));
     expect(runs.rows[0]!.n).toBe('0');
   }, 60_000);
+
+  it('holdout: the held-out rows enter no fit, and their RMSE, MAE and R² are those of the published coefficients on them', async () => {
+    const c = fixture.cases[0]!;
+    const table = await load({ ...c, name: `${c.name}_holdout` }, [{ name: 'F01', scale: 1 }]);
+    const spec = { ...specOf(c, table, false), name: 'rp_holdout', residual_pass: { holdout: { key: 'reading_id', fraction: 0.3 } } };
+    const result = await runFit({ specPath: writeSpec(spec), db: tdb.url, env: {} });
+    // The split written out here independently of rowfold's SQL: the same hash, the same cut.
+    const held = `abs(hashtextextended(reading_id::text, 16) % 1000000) < 300000`;
+    const counts = (await tdb.query<{ held: string; kept: string }>(`select count(*) filter (where ${held})::text as held, count(*) filter (where not ${held})::text as kept from ${table}`)).rows[0]!;
+    expect(Number(counts.held)).toBeGreaterThan(30);
+    const model = result.models[0]!;
+    expect(model.solution.rows).toBe(Number(counts.kept));
+    const h = model.residuals!.holdout!;
+    expect(h.rows).toBe(Number(counts.held));
+    // The same figures from the published coefficients, in SQL.
+    const coef = Object.fromEntries(model.solution.coefficients.map((k) => [k.term, k.estimate!]));
+    const pred = [String(coef['intercept']), ...c.terms.map((t) => `${coef[t]} * ${t}`)].join(' + ');
+    const want = (
+      await tdb.query<{ rmse: number; mae: number; r2: number }>(
+        `select sqrt(avg((y - (${pred}))^2)) as rmse, avg(abs(y - (${pred}))) as mae,
+                1 - sum((y - (${pred}))^2) / sum((y - m)^2) as r2
+           from (select *, avg(y) over () as m from ${table} where ${held}) s`,
+      )
+    ).rows[0]!;
+    expectClose(h.rmse, want.rmse, 1e-10, 'hold-out RMSE');
+    expectClose(h.mae, want.mae, 1e-10, 'hold-out MAE');
+    expectClose(h.r2, want.r2, 1e-9, 'hold-out R²');
+    const stored = (await tdb.query<{ rows: string; rmse: number; hold_key: string }>(`select rows::text, rmse, hold_key from rowfold.holdout_errors where run_id = $1`, [result.runId])).rows;
+    expect(stored).toEqual([{ rows: counts.held, rmse: h.rmse, hold_key: 'reading_id' }]);
+  }, 60_000);
 });

@@ -66,6 +66,7 @@ describe('migrate', () => {
       { relname: 'drift', relkind: 'v' },
       { relname: 'drift_tests', relkind: 'r' },
       { relname: 'fit_states', relkind: 'r' },
+      { relname: 'holdout_errors', relkind: 'r' },
       { relname: 'influential_rows', relkind: 'r' },
       { relname: 'latest_coefficient_errors', relkind: 'v' },
       { relname: 'latest_coefficients', relkind: 'v' },

@@ -23,13 +23,14 @@ describe('spec key residual_pass (issue 16)', () => {
       clusterBy: null,
       orderBy: null,
       influential: null,
+      holdout: null,
     });
     expect(
       parseFitSpec(
-        lines(...head, 'residual_pass:', '  robust: [hc3, hc1, hc3]', '  cluster_by: feeder_id', '  order_by: reading_hour', '  influential: {keys: [feeder_id, reading_hour]}'),
+        lines(...head, 'residual_pass:', '  robust: [hc3, hc1, hc3]', '  cluster_by: feeder_id', '  order_by: reading_hour', '  influential: {keys: [feeder_id, reading_hour]}', '  holdout: {key: reading_day, fraction: 0.2}'),
         'c.yaml',
       ).residualPass,
-    ).toEqual({ robust: ['hc3', 'hc1'], clusterBy: 'feeder_id', orderBy: 'reading_hour', influential: { keys: ['feeder_id', 'reading_hour'], top: 10 } });
+    ).toEqual({ robust: ['hc3', 'hc1'], clusterBy: 'feeder_id', orderBy: 'reading_hour', influential: { keys: ['feeder_id', 'reading_hour'], top: 10 }, holdout: { key: 'reading_day', fraction: 0.2 } });
   });
 
   it('names the key and line of a bad value', () => {
@@ -37,6 +38,8 @@ describe('spec key residual_pass (issue 16)', () => {
     expect(error(lines(...head, 'residual_pass: {cluster_by: "feeder id"}'))).toMatch(/residual_pass\.cluster_by: must be a column name/);
     expect(error(lines(...head, 'residual_pass: {influential: {keys: []}}'))).toMatch(/residual_pass\.influential\.keys: must name at least one column/);
     expect(error(lines(...head, 'residual_pass: {influential: {keys: [id], top: 0}}'))).toMatch(/residual_pass\.influential\.top: must be a whole number from 1 to 1000/);
+    expect(error(lines(...head, 'residual_pass: {holdout: {key: day, fraction: 0.7}}'))).toMatch(/residual_pass\.holdout\.fraction: must be a number above 0 and at most 0\.5/);
+    expect(error(lines(...head, 'residual_pass: {holdout: {fraction: 0.2}}'))).toMatch(/residual_pass\.holdout\.key: required key is missing/);
     expect(error(lines(...head, 'residual_pass: {lags: 4}'))).toMatch(/residual_pass\.lags: unknown key "lags"/);
   });
 });
