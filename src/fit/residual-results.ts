@@ -88,9 +88,9 @@ export function residualFindings(seg: ResidualSegment, ctx: ResidualContext): Re
     errors.push(inference(ctx.terms[j]!, 'classical', ctx.estimates[j]!, ctx.classicalErrors[j] ?? null, ctx.dfResidual, ctx.confidence));
   }
   const bread = seg.model.bread;
-  const meatCov = (m: Float64Array | undefined) => (m === undefined ? null : sandwich(k, bread, symmetricFromUpper(k, m.slice())));
+  const meatCov = (m: Float64Array | undefined) => (m === undefined ? null : sandwich(k, bread, m));
   const robust = new Set(seg.options.robust);
-  const hc0 = meatCov(seg.meats.hc0);
+  const hc0 = meatCov(seg.meat('hc0'));
   if (robust.has('hc0')) add('hc0', hc0, ctx.dfResidual);
   if (robust.has('hc1')) add('hc1', hc0 === null ? null : hc0.map((v) => (v * n) / (n - k)), ctx.dfResidual);
   if ((robust.has('hc2') || robust.has('hc3')) && seg.breadFactor === null) {
@@ -100,8 +100,8 @@ export function residualFindings(seg: ResidualSegment, ctx: ResidualContext): Re
     notes.push(`${seg.fullLeverageRows} row(s) have leverage 1 (each alone determines a coefficient): HC2 and HC3 are undefined`);
   }
   const undefinedHc = seg.fullLeverageRows > 0;
-  if (robust.has('hc2')) add('hc2', undefinedHc ? null : meatCov(seg.meats.hc2), ctx.dfResidual);
-  if (robust.has('hc3')) add('hc3', undefinedHc ? null : meatCov(seg.meats.hc3), ctx.dfResidual);
+  if (robust.has('hc2')) add('hc2', undefinedHc ? null : meatCov(seg.meat('hc2')), ctx.dfResidual);
+  if (robust.has('hc3')) add('hc3', undefinedHc ? null : meatCov(seg.meat('hc3')), ctx.dfResidual);
   const tests: ResidualTest[] = [];
   if (seg.options.cluster) {
     const g = seg.clusters.size;
@@ -118,7 +118,7 @@ export function residualFindings(seg: ResidualSegment, ctx: ResidualContext): Re
     tests.push({ test: 'cluster_robust', statistic: null, df: g - 1, p: null, extras: { clusters: g, column: ctx.clusterBy } });
   }
   if (seg.nwCross !== null) {
-    const m = symmetricFromUpper(k, (seg.meats.hc0 ?? seg.nwMeat!).slice());
+    const m = seg.meat('hc0') ?? symmetricFromUpper(k, seg.nwMeat!.slice());
     const a = seg.nwCross;
     for (let i = 0; i < k; i++) for (let j = 0; j < k; j++) m[i * k + j] = m[i * k + j]! + a[i * k + j]! + a[j * k + i]!;
     add('newey_west', sandwich(k, bread, m), ctx.dfResidual);

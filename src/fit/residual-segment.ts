@@ -1,4 +1,7 @@
-import { addOuterUpper, choleskyLower, lowerTransposedTimes } from '../numeric/sandwich.js';
+import { gramUpdate } from '../numeric/gram-update.js';
+import { packedLength, unpackUpper } from '../numeric/packed.js';
+import { addOuterUpper, choleskyLower, lowerTransposedTimes, symmetricFromUpper } from '../numeric/sandwich.js';
+import { wasmFold } from './wasm-kernel.js';
 
 /** Heteroskedasticity-consistent covariance estimators (White 1980; MacKinnon and White 1985). */
 export const ROBUST_METHODS = ['hc0', 'hc1', 'hc2', 'hc3'] as const;
@@ -40,6 +43,15 @@ export interface InfluentialRow {
   readonly cooksDistance: number;
 }
 
+/** Meat kinds: ω = ẽ² (HC0, HC1), ẽ²/(1−h) (HC2), ẽ²/(1−h)² (HC3). */
+type MeatKind = 'hc0' | 'hc2' | 'hc3';
+
+/**
+ * Rows staged per meat before one rank-B update of its packed upper triangle (the Gram kernel,
+ * in WebAssembly SIMD where built): the rows are written scaled by √ω, so BᵀB adds Σ ω·x̃x̃ᵀ.
+ */
+const STAGED_ROWS = 32;
+
 /** Bins of the standardised-residual histogram behind the quantiles, over [-Z, Z]. */
 export const QUANTILE_RANGE = 8;
 export const QUANTILE_BINS = 640;
@@ -63,8 +75,11 @@ export class ResidualSegment {
   rows = 0;
   /** Rows whose leverage was 1 to rounding (HC2, HC3 and Cook's distance undefined there). */
   fullLeverageRows = 0;
-  /** Upper-triangle meats Σ ω·x̃x̃ᵀ with ω = ẽ² (hc0/hc1), ẽ²/(1−h) (hc2), ẽ²/(1−h)² (hc3). */
-  readonly meats: Partial<Record<'hc0' | 'hc2' | 'hc3', Float64Array>> = {};
+  /** Packed upper-triangle meats Σ ω·x̃x̃ᵀ with ω = ẽ² (hc0/hc1), ẽ²/(1−h) (hc2), ẽ²/(1−h)² (hc3). */
+  private readonly meats: Partial<Record<MeatKind, Float64Array>> = {};
+  /** Per meat, rows staged column-major (k × STAGED_ROWS), scaled by √ω. */
+  private readonly stages: Partial<Record<MeatKind, Float64Array>> = {};
+  private staged = 0;
   /** Cluster id → Σ ẽ·x̃ over its rows. */
   readonly clusters = new Map<number, Float64Array>();
   /** Newey–West: A = Σ_t u_t·v_tᵀ with u_t = ẽ_t·x̃_t and v_t = Σ_l w_l·u_{t−l} (full k × k). */
@@ -109,9 +124,14 @@ export class ResidualSegment {
     this.k = k;
     this.breadFactor = choleskyLower(k, model.bread);
     const hc = new Set(options.robust);
-    if (hc.has('hc0') || hc.has('hc1')) this.meats.hc0 = new Float64Array(k * k);
-    if (this.breadFactor !== null && hc.has('hc2')) this.meats.hc2 = new Float64Array(k * k);
-    if (this.breadFactor !== null && hc.has('hc3')) this.meats.hc3 = new Float64Array(k * k);
+    const kinds: MeatKind[] = [];
+    if (hc.has('hc0') || hc.has('hc1')) kinds.push('hc0');
+    if (this.breadFactor !== null && hc.has('hc2')) kinds.push('hc2');
+    if (this.breadFactor !== null && hc.has('hc3')) kinds.push('hc3');
+    for (const kind of kinds) {
+      this.meats[kind] = new Float64Array(packedLength(k));
+      this.stages[kind] = new Float64Array(k * STAGED_ROWS);
+    }
     this.lag = options.ordered ? neweyWestLag(model.rows) : 0;
     this.nwCross = options.ordered ? new Float64Array(k * k) : null;
     this.nwMeat = options.ordered && this.meats.hc0 === undefined ? new Float64Array(k * k) : null;
@@ -156,9 +176,13 @@ export class ResidualSegment {
     const oneMinusH = 1 - h;
     const full = !(oneMinusH > 1e-12);
     if (full && this.breadFactor !== null) this.fullLeverageRows++;
-    if (this.meats.hc0 !== undefined) addOuterUpper(k, this.meats.hc0, e2, x);
-    if (this.meats.hc2 !== undefined && !full) addOuterUpper(k, this.meats.hc2, e2 / oneMinusH, x);
-    if (this.meats.hc3 !== undefined && !full) addOuterUpper(k, this.meats.hc3, e2 / (oneMinusH * oneMinusH), x);
+    const ae = Math.abs(e);
+    const r = this.staged;
+    this.stage('hc0', r, ae);
+    // A row of leverage 1 adds nothing here; fullLeverageRows makes HC2 and HC3 undefined.
+    this.stage('hc2', r, full ? 0 : ae / Math.sqrt(oneMinusH));
+    this.stage('hc3', r, full ? 0 : ae / oneMinusH);
+    if (++this.staged === STAGED_ROWS) this.flush();
     if (this.options.cluster) this.addCluster(cluster, e);
     if (this.nwCross !== null) this.addNeweyWest(e);
     if (this.options.ordered) {
@@ -198,6 +222,42 @@ export class ResidualSegment {
     const d = y - h.meanY;
     h.meanY += (w / h.sumWeights) * d;
     h.sst += w * d * (y - h.meanY);
+  }
+
+  /** Writes row `r` of a meat's staging block: x̃ scaled by `scale` = √ω. */
+  private stage(kind: MeatKind, r: number, scale: number): void {
+    const st = this.stages[kind];
+    if (st === undefined) return;
+    const { k, x } = this;
+    for (let j = 0; j < k; j++) st[j * STAGED_ROWS + r] = scale * x[j]!;
+  }
+
+  /** Adds the staged rows to every meat (one rank-`staged` update each). */
+  private flush(): void {
+    const m = this.staged;
+    if (m === 0) return;
+    const wasm = wasmFold();
+    for (const kind of ['hc0', 'hc2', 'hc3'] as const) {
+      const st = this.stages[kind];
+      if (st === undefined) continue;
+      const g = this.meats[kind]!;
+      if (wasm === null) gramUpdate(this.k, g, st, m, STAGED_ROWS);
+      else {
+        // The kernel reads its rows from its own memory; the view lasts until the next staging().
+        const view = wasm.staging(this.k, st.length);
+        view.set(st);
+        wasm.gram(this.k, g, view, m, STAGED_ROWS);
+      }
+    }
+    this.staged = 0;
+  }
+
+  /** A meat as a dense symmetric `k × k` matrix (staged rows added first), or undefined when not gathered. */
+  meat(kind: MeatKind): Float64Array | undefined {
+    this.flush();
+    const g = this.meats[kind];
+    if (g === undefined) return undefined;
+    return symmetricFromUpper(this.k, unpackUpper(this.k, g));
   }
 
   private addCluster(cluster: number, e: number): void {
