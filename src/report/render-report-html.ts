@@ -9,6 +9,8 @@ import { renderResidualSection } from './render-residual-section.js';
 import type { ResidualOutcome } from './render-residual-section.js';
 import type { ReportModel, ReportRun } from './report-run.js';
 import { REPORT_CSS } from './report-styles.js';
+import { renderRobustSection } from './render-robust-section.js';
+import type { StoredResiduals } from '../store/index.js';
 
 /** Everything one report shows. */
 export interface ReportContent {
@@ -17,6 +19,8 @@ export interface ReportContent {
   /** The segment whose residuals are plotted. */
   readonly residualModel: ReportModel;
   readonly residuals: ResidualOutcome;
+  /** The residual pass's results by model id (empty or absent without one). */
+  readonly robust?: ReadonlyMap<string, StoredResiduals>;
 }
 
 const SECTIONS: readonly [string, string][] = [
@@ -24,6 +28,7 @@ const SECTIONS: readonly [string, string][] = [
   ['models', 'Models'],
   ['across-segments', 'Across segments'],
   ['residuals', 'Residuals'],
+  ['robust', 'Robust errors'],
   ['conditioning', 'Conditioning'],
   ['cautions', 'Cautions'],
 ];
@@ -41,6 +46,7 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     renderModelSection(run.models),
     await renderAcrossSegmentsSection(run.models, run.segmentColumns),
     await renderResidualSection(content.residualModel, content.residuals),
+    renderRobustSection(run.models, content.robust ?? new Map(), content.residualModel) ?? '',
     await renderConditioningSection(run.models, run.segmentColumns),
     renderCautionsSection(run.models),
   ];
@@ -60,9 +66,11 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     `<h1>Fit ${escapeHtml(run.fitName)}</h1>`,
     `<p>Run ${escapeHtml(run.runId)} · ${models} model${models === 1 ? '' : 's'} · ended ${escapeHtml(run.endedAt.toISOString().slice(0, 10))}</p>`,
     '</header>',
-    `<nav class="contents">${SECTIONS.map(([id, name]) => `<a href="#${id}">${name}</a>`).join('')}</nav>`,
+    `<nav class="contents">${SECTIONS.filter(([id]) => id !== 'robust' || (content.robust?.size ?? 0) > 0)
+      .map(([id, name]) => `<a href="#${id}">${name}</a>`)
+      .join('')}</nav>`,
     '<main>',
-    ...sections,
+    ...sections.filter((s) => s !== ''),
     '</main>',
     `<footer>Made by rowfold ${escapeHtml(context.toolVersion)} from the result tables in schema ${escapeHtml(run.schema)}. A single file: no scripts, nothing loaded from elsewhere.</footer>`,
     '</body>',

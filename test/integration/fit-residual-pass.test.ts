@@ -2,7 +2,9 @@
 // fixture; test/fixtures/reference/residual-cases.json by scripts/make-residual-fixtures.py).
 // The fixture's cases are loaded into tables in shuffled order, fitted by `rowfold fit` with a
 // residual_pass, and the published tables are compared with the fixture.
-import { readFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { runFit } from '../../src/run/run-fit.js';
 import { expectClose } from '../support/close.js';
@@ -215,5 +217,29 @@ describe(`rowfold fit with residual_pass publishes what ${SOURCE} computes`, () 
     expectClose(h.r2, want.r2, 1e-9, 'hold-out R²');
     const stored = (await tdb.query<{ rows: string; rmse: number; hold_key: string }>(`select rows::text, rmse, hold_key from rowfold.holdout_errors where run_id = $1`, [result.runId])).rows;
     expect(stored).toEqual([{ rows: counts.held, rmse: h.rmse, hold_key: 'reading_id' }]);
+  }, 60_000);
+
+  it('the report has a section with the chosen segment\'s errors by method, its tests, influential rows and hold-out error', async () => {
+    const c = fixture.cases.find((x) => x.se_cluster !== undefined && x.se_newey_west !== undefined)!;
+    const table = await load({ ...c, name: `${c.name}_report` }, [
+      { name: 'F01', scale: 1 },
+      { name: 'F02', scale: 2 },
+    ]);
+    const spec = { ...specOf(c, table, true), name: 'rp_report' };
+    (spec.residual_pass as Record<string, unknown>)['holdout'] = { key: 'reading_id', fraction: 0.2 };
+    expect((await runCli(['fit', writeSpec(spec), '--db', tdb.url])).code).toBe(0);
+    const out = join(mkdtempSync(join(tmpdir(), 'rowfold-report-')), 'r.html');
+    const res = await runCli(['report', 'rp_report', '--db', tdb.url, '--out', out, '--segment', '["F02"]']);
+    expect(res.stderr).toBe('');
+    expect(res.code).toBe(0);
+    const html = readFileSync(out, 'utf8');
+    expect(html).toContain('<a href="#robust">');
+    const section = html.slice(html.indexOf('<section id="robust">'), html.indexOf('</section>', html.indexOf('<section id="robust">')));
+    expect(section).toContain('Segment feeder=F02');
+    for (const title of ['HC0', 'HC3', 'cluster', 'Newey–West']) expect(section).toContain(`<th class="num">${title}</th>`);
+    for (const test of ['breusch pagan', 'durbin watson', 'jarque bera', 'residual quantiles']) expect(section).toContain(`<td>${test}</td>`);
+    expect(section).toMatch(/Breusch–Pagan p &lt; 0\.05 in \d of 2/);
+    expect(section).toMatch(/<td>reading_id=F02-\d+<\/td>/);
+    expect(section).toMatch(/Held-out rows: \d+ · RMSE/);
   }, 60_000);
 });
