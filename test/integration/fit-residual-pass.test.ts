@@ -225,8 +225,8 @@ describe(`rowfold fit with residual_pass publishes what ${SOURCE} computes`, () 
       { name: 'F01', scale: 1 },
       { name: 'F02', scale: 2 },
     ]);
-    const spec = { ...specOf(c, table, true), name: 'rp_report' };
-    (spec.residual_pass as Record<string, unknown>)['holdout'] = { key: 'reading_id', fraction: 0.2 };
+    const base = specOf(c, table, true);
+    const spec = { ...base, name: 'rp_report', residual_pass: { ...(base['residual_pass'] as object), holdout: { key: 'reading_id', fraction: 0.2 } } };
     expect((await runCli(['fit', writeSpec(spec), '--db', tdb.url])).code).toBe(0);
     const out = join(mkdtempSync(join(tmpdir(), 'rowfold-report-')), 'r.html');
     const res = await runCli(['report', 'rp_report', '--db', tdb.url, '--out', out, '--segment', '["F02"]']);
