@@ -166,7 +166,7 @@ function breuschPagan(seg: ResidualSegment, constant: boolean): ResidualTest {
   for (let j = 0; j < seg.k; j++) fitted += z[j]! ** 2;
   const r2 = constant ? 1 - (seg.sumE4 - fitted) / (seg.sumE4 - (seg.sumE2 * seg.sumE2) / n) : fitted / seg.sumE4;
   const lm = n * r2;
-  return { test: 'breusch_pagan', statistic: lm, df, p: chiSquareUpper(lm, df), extras: { form: "studentized", r2_auxiliary: r2, centred: constant ? 1 : 0 } };
+  return { test: 'breusch_pagan', statistic: lm, df, p: chiSquareUpper(lm, df), extras: { form: "studentized", r2_auxiliary: r2, centred: constant ? 'yes' : 'no' } };
 }
 
 /** Skewness, excess kurtosis, Jarque–Bera and the quantiles of the (whitened) residuals. */

@@ -80,6 +80,7 @@ export function renderRobustSection(models: readonly ReportModel[], results: Rea
   const terms = [...new Set(r.errors.map((e) => e.term))];
   if (methods.length > 0) {
     out.push(
+      '<p>Standard errors by method, with the two-sided p-value of each.</p>',
       '<table id="robust-errors"><thead><tr><th>term</th>' + methods.map((m) => `<th class="num">${escapeHtml(METHOD_TITLE[m]!)}</th>`).join('') + '</tr></thead><tbody>',
     );
     for (const term of terms) {
@@ -92,6 +93,7 @@ export function renderRobustSection(models: readonly ReportModel[], results: Rea
     out.push('</tbody></table>');
   }
   const shown = r.tests.filter((t) => t.test !== 'notes');
+  out.push('<h3>Tests and summaries of the residuals</h3>');
   out.push('<table id="residual-tests"><thead><tr><th>test</th><th class="num">statistic</th><th class="num">df</th><th class="num">p</th><th>details</th></tr></thead><tbody>');
   for (const t of shown) {
     const extras = Object.entries(t.extras)
