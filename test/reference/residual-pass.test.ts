@@ -164,4 +164,22 @@ describe(`residual pass against ${SOURCE}`, () => {
       for (let i = 0; i < block.rows; i++) seg.row(block.values, i * layout.width, c.clusters![i]!, i);
     }).toThrow(/segment \["north"\]: residual_pass.cluster_by has more than 10 clusters/);
   });
+
+  it(`an aliased term is left out and the kept terms' robust errors are the reduced model's (${SOURCE})`, () => {
+    const c = fixture.cases[0]!;
+    const p = c.terms.length;
+    // One more column, the sum of the first two: aliased, so the kept model is the fixture's.
+    const rows = c.rows.map((r) => [...r.slice(0, p), r[0]! + r[1]!, ...r.slice(p)]);
+    const shape: DesignShape = { terms: [...c.terms, 'x01'], response: 'y', intercept: true };
+    const solution = solve(foldRows(shape, rows));
+    expect(solution.aliased).toEqual(['x01']);
+    const layout = blockLayout(shape);
+    const seg = new ResidualSegment(residualModel(solution, shape)!, { robust: ['hc3'], cluster: false, maxClusterValues: 0, ordered: false, influentialTop: 0 }, layout, 'aliased');
+    const block = toBlock(rows, layout.width);
+    for (let i = 0; i < block.rows; i++) seg.row(block.values, i * layout.width, 0, i);
+    const f = residualFindings(seg, residualContext(solution, shape, { clusterBy: null, orderBy: null }));
+    const hc3 = f.errors.filter((e) => e.method === 'hc3');
+    expect(hc3.map((e) => e.term)).toEqual(['intercept', ...c.terms]);
+    c.se_hc3.forEach((v, j) => expectClose(hc3[j]!.stdError, v, 1e-7, `hc3 ${j}`));
+  });
 });
