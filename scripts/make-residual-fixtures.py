@@ -122,6 +122,11 @@ def main():
         e[t] = 0.5 * e[t - 1] + rng.normal()
     y = sig6(-2.0 + X @ [0.5, 0.0, 3.0] + e / np.sqrt(w))
     cases.append(case("weighted_clustered_ordered", X, y, w=w, groups=groups, ordered=True))
+    # Wide: 14 terms, so the meats are summed in staged blocks (12 coefficients and up).
+    n = 400
+    X = sig6(rng.normal(size=(n, 14)))
+    y = sig6(5.0 + X @ np.linspace(-1, 1, 14) + rng.normal(size=n) * (0.5 + np.abs(X[:, 3])))
+    cases.append(case("wide", X, y))
     doc = {
         "generator": "scripts/make-residual-fixtures.py",
         "library": f"statsmodels {statsmodels.__version__}, numpy {np.__version__}, scipy {scipy.__version__}",

@@ -194,7 +194,7 @@ function residualShape(seg: ResidualSegment): ResidualTest[] {
 
 /**
  * Quantile `q` of the residuals from the histogram: the ends exact (min, max), inner quantiles
- * interpolated within a bin of width 16σ/640 = σ/40 (their resolution).
+ * interpolated within a bin of width 16σ/200 = 0.08σ (their resolution).
  */
 export function residualQuantile(seg: ResidualSegment, q: number): number | null {
   const n = seg.rows;

@@ -52,9 +52,16 @@ type MeatKind = 'hc0' | 'hc2' | 'hc3';
  */
 const STAGED_ROWS = 32;
 
+/**
+ * Below this many coefficients a row is added to the meats at once (a few flops; staging
+ * blocks would cost a segment more memory than its meats, which matters with millions of
+ * segments).
+ */
+const STAGE_FROM = 12;
+
 /** Bins of the standardised-residual histogram behind the quantiles, over [-Z, Z]. */
 export const QUANTILE_RANGE = 8;
-export const QUANTILE_BINS = 640;
+export const QUANTILE_BINS = 200;
 
 /** The Newey–West lag for `n` rows: ⌊4·(n/100)^(2/9)⌋ (Newey and West 1994, recalled from memory). */
 export function neweyWestLag(n: number): number {
@@ -101,8 +108,8 @@ export class ResidualSegment {
   m4 = 0;
   min = Number.POSITIVE_INFINITY;
   max = Number.NEGATIVE_INFINITY;
-  /** Histogram of ẽ/σ over [−8, 8], with the rows below and above it at the ends. */
-  readonly histogram = new Float64Array(QUANTILE_BINS + 2);
+  /** Histogram of ẽ/σ over [−8, 8] (4 bytes a bin), with the rows below and above it at the ends. */
+  readonly histogram = new Uint32Array(QUANTILE_BINS + 2);
   /** Sums over the rows held out of the fit (spec residual_pass.holdout). */
   readonly holdout = { rows: 0, sumWeights: 0, sse: 0, sae: 0, meanY: 0, sst: 0 };
   readonly topCooks: InfluentialRow[] = [];
@@ -130,7 +137,7 @@ export class ResidualSegment {
     if (this.breadFactor !== null && hc.has('hc3')) kinds.push('hc3');
     for (const kind of kinds) {
       this.meats[kind] = new Float64Array(packedLength(k));
-      this.stages[kind] = new Float64Array(k * STAGED_ROWS);
+      if (k >= STAGE_FROM) this.stages[kind] = new Float64Array(k * STAGED_ROWS);
     }
     this.lag = options.ordered ? neweyWestLag(model.rows) : 0;
     this.nwCross = options.ordered ? new Float64Array(k * k) : null;
@@ -176,13 +183,21 @@ export class ResidualSegment {
     const oneMinusH = 1 - h;
     const full = !(oneMinusH > 1e-12);
     if (full && this.breadFactor !== null) this.fullLeverageRows++;
-    const ae = Math.abs(e);
-    const r = this.staged;
-    this.stage('hc0', r, ae);
-    // A row of leverage 1 adds nothing here; fullLeverageRows makes HC2 and HC3 undefined.
-    this.stage('hc2', r, full ? 0 : ae / Math.sqrt(oneMinusH));
-    this.stage('hc3', r, full ? 0 : ae / oneMinusH);
-    if (++this.staged === STAGED_ROWS) this.flush();
+    // A row of leverage 1 adds nothing to HC2 and HC3; fullLeverageRows makes them undefined.
+    if (k < STAGE_FROM) {
+      this.addNow('hc0', e2);
+      if (!full) {
+        this.addNow('hc2', e2 / oneMinusH);
+        this.addNow('hc3', e2 / (oneMinusH * oneMinusH));
+      }
+    } else {
+      const ae = Math.abs(e);
+      const r = this.staged;
+      this.stage('hc0', r, ae);
+      this.stage('hc2', r, full ? 0 : ae / Math.sqrt(oneMinusH));
+      this.stage('hc3', r, full ? 0 : ae / oneMinusH);
+      if (++this.staged === STAGED_ROWS) this.flush();
+    }
     if (this.options.cluster) this.addCluster(cluster, e);
     if (this.nwCross !== null) this.addNeweyWest(e);
     if (this.options.ordered) {
@@ -222,6 +237,19 @@ export class ResidualSegment {
     const d = y - h.meanY;
     h.meanY += (w / h.sumWeights) * d;
     h.sst += w * d * (y - h.meanY);
+  }
+
+  /** Adds ω·x̃x̃ᵀ to a packed meat at once (small k). */
+  private addNow(kind: MeatKind, omega: number): void {
+    const g = this.meats[kind];
+    if (g === undefined) return;
+    const { k, x } = this;
+    let o = 0;
+    for (let i = 0; i < k; i++) {
+      const a = omega * x[i]!;
+      for (let j = i; j < k; j++) g[o + j - i] = g[o + j - i]! + a * x[j]!;
+      o += k - i;
+    }
   }
 
   /** Writes row `r` of a meat's staging block: x̃ scaled by `scale` = √ω. */

@@ -9,7 +9,7 @@ import type { DesignShape } from '../../src/fit/accumulator.js';
 import { blockLayout, residualContext, residualModel } from '../../src/fit/residual-model.js';
 import { residualFindings, residualQuantile } from '../../src/fit/residual-results.js';
 import type { ResidualFindings } from '../../src/fit/residual-results.js';
-import { ResidualSegment } from '../../src/fit/residual-segment.js';
+import { QUANTILE_BINS, QUANTILE_RANGE, ResidualSegment } from '../../src/fit/residual-segment.js';
 import type { ResidualPassOptions } from '../../src/fit/residual-segment.js';
 import { solve } from '../../src/fit/solve.js';
 import { expectClose } from '../support/close.js';
@@ -122,8 +122,8 @@ describe(`residual pass against ${SOURCE}`, () => {
         // Largest first.
         expect(findings.topCooks[0]!.cooksDistance).toBe(Math.max(...c.cooks_distance.map((_, i) => findings.topCooks.find((r) => r.id === i)!.cooksDistance)));
       });
-      it(`residual quantiles within the histogram's resolution σ/40 plus the gap of the order statistics there (${SOURCE}: numpy.quantile, linear)`, () => {
-        const resolution = c.sigma / 40;
+      it(`residual quantiles within the histogram's resolution 0.08σ plus the gap of the order statistics there (${SOURCE}: numpy.quantile, linear)`, () => {
+        const resolution = (2 * QUANTILE_RANGE * c.sigma) / QUANTILE_BINS;
         // The whitened residuals from the reference's estimates, sorted: numpy's quantile
         // interpolates between neighbouring order statistics, the histogram within a bin.
         const e = c.rows
