@@ -74,6 +74,7 @@ export interface ResidualContext {
  * Breusch–Pagan studentized (Koenker 1981): n·R² of ẽ² on X̃, χ² on k−1; Durbin–Watson.
  */
 export function residualFindings(seg: ResidualSegment, ctx: ResidualContext): ResidualFindings {
+  seg.finish();
   const { k } = seg;
   const n = seg.rows;
   const notes: string[] = [];

@@ -84,8 +84,15 @@ export class ResidualSegment {
   fullLeverageRows = 0;
   /** Packed upper-triangle meats Σ ω·x̃x̃ᵀ with ω = ẽ² (hc0/hc1), ẽ²/(1−h) (hc2), ẽ²/(1−h)² (hc3). */
   private readonly meats: Partial<Record<MeatKind, Float64Array>> = {};
-  /** Per meat, rows staged column-major (k × STAGED_ROWS), scaled by √ω. */
-  private readonly stages: Partial<Record<MeatKind, Float64Array>> = {};
+  /** Rows staged column-major (k × STAGED_ROWS) with their residuals and ids (k ≥ STAGE_FROM). */
+  private readonly raw: Float64Array | null;
+  private readonly zs: Float64Array | null;
+  private readonly scaled: Float64Array | null;
+  private readonly stagedE = new Float64Array(STAGED_ROWS);
+  private readonly stagedId = new Float64Array(STAGED_ROWS);
+  private readonly stagedH = new Float64Array(STAGED_ROWS);
+  private readonly stagedScale = new Float64Array(STAGED_ROWS);
+  private readonly stagedFull = new Uint8Array(STAGED_ROWS);
   private staged = 0;
   /** Cluster id → Σ ẽ·x̃ over its rows. */
   readonly clusters = new Map<number, Float64Array>();
@@ -135,10 +142,11 @@ export class ResidualSegment {
     if (hc.has('hc0') || hc.has('hc1')) kinds.push('hc0');
     if (this.breadFactor !== null && hc.has('hc2')) kinds.push('hc2');
     if (this.breadFactor !== null && hc.has('hc3')) kinds.push('hc3');
-    for (const kind of kinds) {
-      this.meats[kind] = new Float64Array(packedLength(k));
-      if (k >= STAGE_FROM) this.stages[kind] = new Float64Array(k * STAGED_ROWS);
-    }
+    for (const kind of kinds) this.meats[kind] = new Float64Array(packedLength(k));
+    const staging = k >= STAGE_FROM;
+    this.raw = staging ? new Float64Array(k * STAGED_ROWS) : null;
+    this.zs = staging && this.breadFactor !== null ? new Float64Array(k * STAGED_ROWS) : null;
+    this.scaled = staging ? new Float64Array(k * STAGED_ROWS) : null;
     this.lag = options.ordered ? neweyWestLag(model.rows) : 0;
     this.nwCross = options.ordered ? new Float64Array(k * k) : null;
     this.nwMeat = options.ordered && this.meats.hc0 === undefined ? new Float64Array(k * k) : null;
@@ -173,30 +181,29 @@ export class ResidualSegment {
     const e = sw * (values[offset + this.layout.response]! - fitted);
     this.rows++;
     const e2 = e * e;
-    let h = Number.NaN;
-    if (this.breadFactor !== null) {
-      lowerTransposedTimes(k, this.breadFactor, x, 0, this.z);
-      h = 0;
-      for (let j = 0; j < k; j++) h += this.z[j]! ** 2;
-    }
-    // 1 − h below rounding: the row alone determines a coefficient; its HC2/HC3 weight is infinite.
-    const oneMinusH = 1 - h;
-    const full = !(oneMinusH > 1e-12);
-    if (full && this.breadFactor !== null) this.fullLeverageRows++;
-    // A row of leverage 1 adds nothing to HC2 and HC3; fullLeverageRows makes them undefined.
-    if (k < STAGE_FROM) {
+    if (k >= STAGE_FROM) {
+      // Leverages, the meats and influence wait for a block of rows (see flush).
+      const r = this.staged;
+      const raw = this.raw!;
+      for (let j = 0; j < k; j++) raw[j * STAGED_ROWS + r] = x[j]!;
+      this.stagedE[r] = e;
+      this.stagedId[r] = id;
+      if (++this.staged === STAGED_ROWS) this.flush();
+    } else {
+      let h = Number.NaN;
+      if (this.breadFactor !== null) {
+        lowerTransposedTimes(k, this.breadFactor, x, 0, this.z);
+        h = 0;
+        for (let j = 0; j < k; j++) h += this.z[j]! ** 2;
+      }
+      const oneMinusH = 1 - h;
+      const full = this.leverageTaken(e, h, id);
       this.addNow('hc0', e2);
+      // A row of leverage 1 adds nothing to HC2 and HC3; fullLeverageRows makes them undefined.
       if (!full) {
         this.addNow('hc2', e2 / oneMinusH);
         this.addNow('hc3', e2 / (oneMinusH * oneMinusH));
       }
-    } else {
-      const ae = Math.abs(e);
-      const r = this.staged;
-      this.stage('hc0', r, ae);
-      this.stage('hc2', r, full ? 0 : ae / Math.sqrt(oneMinusH));
-      this.stage('hc3', r, full ? 0 : ae / oneMinusH);
-      if (++this.staged === STAGED_ROWS) this.flush();
     }
     if (this.options.cluster) this.addCluster(cluster, e);
     if (this.nwCross !== null) this.addNeweyWest(e);
@@ -211,12 +218,27 @@ export class ResidualSegment {
     const bin = model.sigma > 0 ? Math.floor(((e / model.sigma + QUANTILE_RANGE) / (2 * QUANTILE_RANGE)) * QUANTILE_BINS) : 0;
     const slot = bin < 0 ? 0 : bin >= QUANTILE_BINS ? QUANTILE_BINS + 1 : bin + 1;
     this.histogram[slot] = this.histogram[slot]! + 1;
-    if (this.options.influentialTop > 0 && !Number.isNaN(h) && !full) {
-      const cooks = (e2 * h) / (k * model.sigma * model.sigma * oneMinusH * oneMinusH);
+  }
+
+  /**
+   * Counts a row of leverage 1 and keeps the row among the influential ones; true when its
+   * leverage is 1 to rounding (1 − h ≤ 1e-12: the row alone determines a coefficient).
+   */
+  private leverageTaken(e: number, h: number, id: number): boolean {
+    if (Number.isNaN(h)) return false;
+    const oneMinusH = 1 - h;
+    if (!(oneMinusH > 1e-12)) {
+      this.fullLeverageRows++;
+      return true;
+    }
+    if (this.options.influentialTop > 0) {
+      const s = this.model.sigma;
+      const cooks = (e * e * h) / (this.k * s * s * oneMinusH * oneMinusH);
       const r: InfluentialRow = { id, residual: e, leverage: h, cooksDistance: cooks };
       keepTop(this.topCooks, r, cooks, this.options.influentialTop, (a) => a.cooksDistance);
       keepTop(this.topLeverage, r, h, this.options.influentialTop, (a) => a.leverage);
     }
+    return false;
   }
 
   /** A row held out of the fit: its prediction error, weighted (see holdout). */
@@ -252,32 +274,63 @@ export class ResidualSegment {
     }
   }
 
-  /** Writes row `r` of a meat's staging block: x̃ scaled by `scale` = √ω. */
-  private stage(kind: MeatKind, r: number, scale: number): void {
-    const st = this.stages[kind];
-    if (st === undefined) return;
-    const { k, x } = this;
-    for (let j = 0; j < k; j++) st[j * STAGED_ROWS + r] = scale * x[j]!;
-  }
-
-  /** Adds the staged rows to every meat (one rank-`staged` update each). */
+  /**
+   * The staged rows' leverages, as one block: Z = Lᵀ·X̃ column by column (each entry of L read
+   * once per block rather than once per row), hᵣ = ‖zᵣ‖²; then their influence, and each meat's
+   * rows scaled by √ω added by one rank-`staged` update (the Gram kernel).
+   */
   private flush(): void {
     const m = this.staged;
     if (m === 0) return;
-    const wasm = wasmFold();
-    for (const kind of ['hc0', 'hc2', 'hc3'] as const) {
-      const st = this.stages[kind];
-      if (st === undefined) continue;
-      const g = this.meats[kind]!;
-      if (wasm === null) gramUpdate(this.k, g, st, m, STAGED_ROWS);
-      else {
-        // The kernel reads its rows from its own memory; the view lasts until the next staging().
-        const view = wasm.staging(this.k, st.length);
-        view.set(st);
-        wasm.gram(this.k, g, view, m, STAGED_ROWS);
+    const { k } = this;
+    const raw = this.raw!;
+    const h = this.stagedH;
+    const l = this.breadFactor;
+    if (l === null) h.fill(Number.NaN);
+    else {
+      const z = this.zs!;
+      z.fill(0);
+      for (let j = 0; j < k; j++) {
+        const xo = j * STAGED_ROWS;
+        for (let i = 0; i <= j; i++) {
+          const a = l[j * k + i]!;
+          if (a === 0) continue;
+          const zo = i * STAGED_ROWS;
+          for (let r = 0; r < m; r++) z[zo + r] = z[zo + r]! + a * raw[xo + r]!;
+        }
+      }
+      h.fill(0);
+      for (let i = 0; i < k; i++) {
+        const zo = i * STAGED_ROWS;
+        for (let r = 0; r < m; r++) h[r] = h[r]! + z[zo + r]! * z[zo + r]!;
       }
     }
+    const scale = this.stagedScale;
+    const wasm = wasmFold();
+    for (let r = 0; r < m; r++) this.stagedFull[r] = this.leverageTaken(this.stagedE[r]!, h[r]!, this.stagedId[r]!) ? 1 : 0;
+    for (const kind of ['hc0', 'hc2', 'hc3'] as const) {
+      const g = this.meats[kind];
+      if (g === undefined) continue;
+      for (let r = 0; r < m; r++) {
+        const ae = Math.abs(this.stagedE[r]!);
+        const oneMinusH = 1 - h[r]!;
+        scale[r] = kind === 'hc0' ? ae : this.stagedFull[r] === 1 ? 0 : kind === 'hc2' ? ae / Math.sqrt(oneMinusH) : ae / oneMinusH;
+      }
+      // The kernel reads its rows from its own memory; the view lasts until the next staging().
+      const st = wasm === null ? this.scaled! : wasm.staging(k, k * STAGED_ROWS);
+      for (let j = 0; j < k; j++) {
+        const o = j * STAGED_ROWS;
+        for (let r = 0; r < m; r++) st[o + r] = scale[r]! * raw[o + r]!;
+      }
+      if (wasm === null) gramUpdate(k, g, st, m, STAGED_ROWS);
+      else wasm.gram(k, g, st, m, STAGED_ROWS);
+    }
     this.staged = 0;
+  }
+
+  /** Takes the rows still staged (call before reading influence, leverage counts or meats). */
+  finish(): void {
+    this.flush();
   }
 
   /** A meat as a dense symmetric `k × k` matrix (staged rows added first), or undefined when not gathered. */
