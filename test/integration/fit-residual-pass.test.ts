@@ -242,4 +242,21 @@ describe(`rowfold fit with residual_pass publishes what ${SOURCE} computes`, () 
     expect(section).toMatch(/<td>reading_id=F02-\d+<\/td>/);
     expect(section).toMatch(/Held-out rows: \d+ · RMSE/);
   }, 60_000);
+
+  it('20,000 segments, a NULL segment key among them, near-zero beside large coefficients: every model gets its robust errors, default settings', async () => {
+    await tdb.exec(`create table rp_many as
+      select case when g % 20001 = 0 then null else (g % 20000)::text end as feeder,
+             (g % 97)::float8 as temp_c, 1e6 + 250 * (g % 97) + 1e-6 * (g % 13) + ((g * 7919) % 101)::float8 / 101 * (1 + (g % 97) / 10.0) as load_kw
+        from generate_series(1, 200000) g`);
+    const spec = { name: 'rp_many', source: 'rp_many', response: 'load_kw', terms: ['temp_c'], segment_by: 'feeder', residual_pass: {} };
+    const result = await runFit({ specPath: writeSpec(spec), db: tdb.url, env: {} });
+    const ok = result.models.filter((m) => m.solution.status === 'ok');
+    expect(result.models.length).toBe(20001);
+    expect(result.models.some((m) => m.segment?.['feeder'] === null)).toBe(true);
+    for (const m of ok) {
+      expect(m.residuals?.errors.filter((e) => e.method === 'hc3' && e.stdError !== null)).toHaveLength(2);
+    }
+    const stored = await tdb.query<{ n: string }>(`select count(distinct model_id)::text as n from rowfold.coefficient_errors where run_id = $1 and method = 'hc3'`, [result.runId]);
+    expect(Number(stored.rows[0]!.n)).toBe(ok.length);
+  }, 300_000);
 });
