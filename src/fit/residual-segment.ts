@@ -88,11 +88,11 @@ export class ResidualSegment {
   private readonly raw: Float64Array | null;
   private readonly zs: Float64Array | null;
   private readonly scaled: Float64Array | null;
-  private readonly stagedE = new Float64Array(STAGED_ROWS);
-  private readonly stagedId = new Float64Array(STAGED_ROWS);
-  private readonly stagedH = new Float64Array(STAGED_ROWS);
-  private readonly stagedScale = new Float64Array(STAGED_ROWS);
-  private readonly stagedFull = new Uint8Array(STAGED_ROWS);
+  private readonly stagedE: Float64Array;
+  private readonly stagedId: Float64Array;
+  private readonly stagedH: Float64Array;
+  private readonly stagedScale: Float64Array;
+  private readonly stagedFull: Uint8Array;
   private staged = 0;
   /** Cluster id → Σ ẽ·x̃ over its rows. */
   readonly clusters = new Map<number, Float64Array>();
@@ -147,6 +147,13 @@ export class ResidualSegment {
     this.raw = staging ? new Float64Array(k * STAGED_ROWS) : null;
     this.zs = staging && this.breadFactor !== null ? new Float64Array(k * STAGED_ROWS) : null;
     this.scaled = staging ? new Float64Array(k * STAGED_ROWS) : null;
+    // Small models (the millions-of-segments case) keep no staging arrays at all.
+    const rows = staging ? STAGED_ROWS : 0;
+    this.stagedE = new Float64Array(rows);
+    this.stagedId = new Float64Array(rows);
+    this.stagedH = new Float64Array(rows);
+    this.stagedScale = new Float64Array(rows);
+    this.stagedFull = new Uint8Array(rows);
     this.lag = options.ordered ? neweyWestLag(model.rows) : 0;
     this.nwCross = options.ordered ? new Float64Array(k * k) : null;
     this.nwMeat = options.ordered && this.meats.hc0 === undefined ? new Float64Array(k * k) : null;
