@@ -10,6 +10,8 @@ import type { ResidualOutcome } from './render-residual-section.js';
 import type { ReportModel, ReportRun } from './report-run.js';
 import { REPORT_CSS } from './report-styles.js';
 import { MANY_SEGMENTS, renderDistributionSection, standouts } from './many-segments.js';
+import { renderRobustSection } from './render-robust-section.js';
+import type { StoredResiduals } from '../store/index.js';
 
 /** Everything one report shows. */
 export interface ReportContent {
@@ -18,6 +20,8 @@ export interface ReportContent {
   /** The segment whose residuals are plotted. */
   readonly residualModel: ReportModel;
   readonly residuals: ResidualOutcome;
+  /** The residual pass's results by model id (empty or absent without one). */
+  readonly robust?: ReadonlyMap<string, StoredResiduals>;
 }
 
 const SECTIONS: readonly [string, string][] = [
@@ -25,6 +29,7 @@ const SECTIONS: readonly [string, string][] = [
   ['models', 'Models'],
   ['across-segments', 'Across segments'],
   ['residuals', 'Residuals'],
+  ['robust', 'Robust errors'],
   ['conditioning', 'Conditioning'],
   ['cautions', 'Cautions'],
 ];
@@ -47,6 +52,7 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     // Many segments: the distributions first, they say what the standouts stand out from.
     ...(many ? [across, models] : [models, across]),
     await renderResidualSection(content.residualModel, content.residuals),
+    renderRobustSection(run.models, content.robust ?? new Map(), content.residualModel) ?? '',
     await renderConditioningSection(run.models, run.segmentColumns, many),
     renderCautionsSection(run.models),
   ];
@@ -66,9 +72,11 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     `<h1>Fit ${escapeHtml(run.fitName)}</h1>`,
     `<p>Run ${escapeHtml(run.runId)} · ${count} model${count === 1 ? '' : 's'} · ended ${escapeHtml(run.endedAt.toISOString().slice(0, 10))}</p>`,
     '</header>',
-    `<nav class="contents">${SECTIONS.map(([id, name]) => `<a href="#${id}">${name}</a>`).join('')}</nav>`,
+    `<nav class="contents">${SECTIONS.filter(([id]) => id !== 'robust' || (content.robust?.size ?? 0) > 0)
+      .map(([id, name]) => `<a href="#${id}">${name}</a>`)
+      .join('')}</nav>`,
     '<main>',
-    ...sections,
+    ...sections.filter((s) => s !== ''),
     '</main>',
     `<footer>Made by rowfold ${escapeHtml(context.toolVersion)} from the result tables in schema ${escapeHtml(run.schema)}. A single file: no scripts, nothing loaded from elsewhere.</footer>`,
     '</body>',

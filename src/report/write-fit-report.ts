@@ -8,7 +8,8 @@ import { openServerDatabase } from '../source/server-database.js';
 import { maskSecrets } from '../source/mask-secrets.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
-import { createStoreDb, DEFAULT_STORE_SCHEMA } from '../store/index.js';
+import { createStoreDb, DEFAULT_STORE_SCHEMA, loadResidualResults } from '../store/index.js';
+import type { StoredResiduals } from '../store/index.js';
 import { chooseSegment } from './choose-segment.js';
 import { loadReportRun } from './load-report-run.js';
 import type { ResidualOutcome } from './render-residual-section.js';
@@ -57,8 +58,10 @@ export async function writeFitReport(database: Database, opts: WriteFitReportOpt
   if (!Number.isInteger(sampleRows) || sampleRows < 1) throw new RangeError(`sampleRows must be a positive whole number, got ${sampleRows}`);
   const db = createStoreDb(database.dialect());
   let run: ReportRun;
+  let robust: Map<string, StoredResiduals>;
   try {
     run = await loadReportRun(db, schema, opts.fit, (text) => tryParseSpec(text, opts.fit)?.segmentBy ?? []);
+    robust = await loadResidualResults(db, schema, run.runId);
   } finally {
     await db.destroy();
   }
@@ -69,6 +72,7 @@ export async function writeFitReport(database: Database, opts: WriteFitReportOpt
     context: { database: database.display, generatedAt: new Date(), toolVersion: toolVersion() },
     residualModel: model,
     residuals,
+    robust,
   });
   const path = resolve(opts.out);
   await mkdir(dirname(path), { recursive: true });
