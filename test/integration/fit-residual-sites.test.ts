@@ -10,6 +10,10 @@ import { mkdtempSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { mergeSplitRun } from '../../src/run/split-merge.js';
+import { foldPartition } from '../../src/run/split-partition.js';
+import { startSplitFit } from '../../src/run/split-start.js';
+import { resolveConnection } from '../../src/source/connection-target.js';
 import { expectClose } from '../support/close.js';
 import { createServerTestDatabase, ON_EMBEDDED, serverSettings } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
@@ -104,6 +108,24 @@ describe.skipIf(ON_EMBEDDED)('residual pass over read sites and read_from', () =
     expect((await tdb.query(`select to_regclass('public.remote_part') as t`)).rows[0].t).toBeNull();
     expect((await tdb.query(`select rows_read::int as n from rowfold.runs where run_id = $1`, [sharded])).rows[0].n).toBe(2 * ROWS);
     expectSameErrors(await errorsOf(tdb, sharded), await errorsOf(tdb, gathered), 'sharded');
+  }, 120_000);
+
+  it('a split run over the sharded source: the merge takes the residual pass on the read sites and publishes it with the models', async () => {
+    const residual_pass = { robust: ['hc2'], cluster_by: 'grp' };
+    const gathered = await fitJson(['fit', writeSpec({ name: 'rs_split_gathered', source: 'gathered', ...MODEL, residual_pass }), '--db', tdb.url, '--json']);
+    const specPath = writeSpec({ name: 'rs_split', source: 'readings', ...MODEL, residual_pass, split: { partitions: 2 } });
+    const target = resolveConnection({ db: tdb.url, env: {} });
+    const start = await startSplitFit({ specPath, target, connections: connectionsFile, env: {}, enqueue: async () => undefined });
+    expect(start.partitions).toBe(2);
+    for (const partition of [0, 1]) {
+      await foldPartition({ target, connections: connectionsFile, env: {}, schema: 'rowfold', runId: start.runId, partition, worker: 'test' });
+    }
+    expect(await mergeSplitRun({ target, connections: connectionsFile, env: {}, schema: 'rowfold', runId: start.runId, final: true })).toMatchObject({
+      outcome: 'published',
+      rowsRead: 2 * ROWS,
+      segments: 2,
+    });
+    expectSameErrors(await errorsOf(tdb, start.runId), await errorsOf(tdb, gathered), 'split');
   }, 120_000);
 
   it('order_by or influential rows on a sharded source read leaf by leaf is refused before any run is written, naming the key', async () => {
