@@ -4,6 +4,8 @@ import { ACCURACY_WORKLOADS, benchAccuracy } from './e2e-bench.js';
 import type { AccuracyFigure } from './e2e-bench.js';
 import { benchCompensated, benchKernels, benchRawKernels } from './kernel-bench.js';
 import type { CompensatedFigure, KernelFigure } from './kernel-bench.js';
+import { benchResidual, RESIDUAL_WORKLOADS } from './residual-bench.js';
+import type { ResidualFigure } from './residual-bench.js';
 import { measureReport, measureWorkload, REPORT_WORKLOAD, WORKLOADS } from './workloads.js';
 import type { ReportFigure, WorkloadFigure } from './workloads.js';
 import { SCORE_WORKLOADS, benchScore } from './score-bench.js';
@@ -118,7 +120,23 @@ for (const w of SCORE_WORKLOADS.filter((x) => selected(x.name))) {
     console.log(`${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
   }
 }
+const residual: ResidualFigure[] = [];
+console.log('\nresidual pass (residual_pass: {}) against a fast fit, same table (medians; each fit in a process of its own)');
+console.log('workload          rows        terms  fast      with pass  pass      pass/fast (target)  peak RSS (target)');
+for (const w of RESIDUAL_WORKLOADS.filter((x) => selected(x.name))) {
+  try {
+    const r = await benchResidual(w);
+    residual.push(r);
+    console.log(
+      `${r.name.padEnd(16)}  ${r.rows.toLocaleString('en-US').padStart(10)}  ${String(r.terms).padStart(5)}  ${r.fastSeconds.toFixed(2).padStart(6)}s  ` +
+        `${r.residualFitSeconds.toFixed(2).padStart(8)}s  ${r.passSeconds.toFixed(2).padStart(6)}s  ${r.ratio.toFixed(2).padStart(8)} (≤ ${r.target})  ` +
+        `${r.peakRssMb.toFixed(0).padStart(6)} MB (≤ ${r.rssTarget})`,
+    );
+  } catch (err) {
+    console.log(`${w.name}: skipped: ${err instanceof Error ? err.message : String(err)}`);
+  }
+}
 writeFileSync(
   new URL('../../bench/results.json', import.meta.url),
-  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, compensated, workloads, reports, accuracy, scoring }, null, 2) + '\n',
+  JSON.stringify({ when: new Date().toISOString(), node: process.version, cpus: os.cpus().length, kernels, raw, compensated, workloads, reports, accuracy, scoring, residual }, null, 2) + '\n',
 );

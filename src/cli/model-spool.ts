@@ -6,6 +6,7 @@ import { join } from 'node:path';
 import { Writable } from 'node:stream';
 import { pipeline } from 'node:stream/promises';
 import { writeSync } from 'node:fs';
+import { residualsToJson } from '../report/residuals-json.js';
 import { solutionToJson } from '../report/solution-json.js';
 import type { FittedModel } from '../run/run-fit.js';
 
@@ -34,7 +35,12 @@ export class ModelSpool {
 
   /** Appends one model (synchronously: it is called from the publishing loop). */
   add(m: FittedModel): void {
-    const text = (this.count++ === 0 ? '' : ',') + JSON.stringify({ segment: m.segment, ...solutionToJson(m.solution), passes: m.passes });
+    const text = (this.count++ === 0 ? '' : ',') + JSON.stringify({
+      segment: m.segment,
+      ...solutionToJson(m.solution),
+      passes: m.passes,
+      ...(m.residuals === undefined ? {} : { residuals: residualsToJson(m.residuals) }),
+    });
     this.buffer.push(text);
     this.bytes += text.length;
     if (this.bytes >= FLUSH_BYTES) this.flush();

@@ -24,6 +24,7 @@ export function designPlanToJson(plan: DesignPlan): unknown {
     valueTypes: plan.valueTypes,
     extended: plan.extended === undefined ? undefined : designPlanToJson(plan.extended),
     extendedFloat: plan.extendedFloat === undefined ? undefined : designPlanToJson(plan.extendedFloat),
+    residual: plan.residual === undefined ? undefined : designPlanToJson(plan.residual),
   };
 }
 
@@ -56,5 +57,6 @@ export function designPlanFromJson(value: unknown): DesignPlan {
     ...(Array.isArray(v['sites']) ? { sites: v['sites'] as (ReadSite | null)[] } : {}),
     extended: v['extended'] === undefined || v['extended'] === null ? undefined : designPlanFromJson(v['extended']),
     extendedFloat: v['extendedFloat'] === undefined || v['extendedFloat'] === null ? undefined : designPlanFromJson(v['extendedFloat']),
+    ...(v['residual'] === undefined || v['residual'] === null ? {} : { residual: designPlanFromJson(v['residual']) }),
   };
 }

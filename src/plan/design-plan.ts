@@ -6,6 +6,7 @@ import { leafRelation } from './shard-layout.js';
 import type { LeafPartition, ReadSite } from './shard-layout.js';
 import { SOURCE_ALIAS, sourceRelation } from './source-relation.js';
 import { SqlTemplate, quoteIdent } from './sql-template.js';
+import type { ResidualColumns } from './residual-columns.js';
 import { guardLevels } from './unplanned-level.js';
 
 /** One float8 column of the design query. */
@@ -50,6 +51,11 @@ export interface DesignPlan {
    * (set when that pass is scoped differently from this plan, as in a refit).
    */
   readonly extendedFloat?: DesignPlan;
+  /**
+   * The plan of the residual pass (spec key `residual_pass`): the rows the models hold, with
+   * the pass's extra keys and values, one query when it is ordered.
+   */
+  readonly residual?: DesignPlan;
 }
 
 /** Narrows a design query for incremental and window fits. */
@@ -63,6 +69,8 @@ export interface DesignScope {
    * guardLevels): for plans read outside their snapshot, as the partitions of a split run are.
    */
   readonly guardLevels?: boolean | undefined;
+  /** Extra keys, values and order of a residual pass (see residualColumns). */
+  readonly residual?: ResidualColumns | undefined;
 }
 
 /** Key name under which the bucket column of a window fit is read (after the segment columns). */
@@ -106,30 +114,40 @@ export function buildDesignPlan(
     ...(scope.bucket === undefined
       ? []
       : [SqlTemplate.join([scope.bucket, ` AS ${quoteIdent(`k${spec.segmentBy.length}`)}`])]),
+    ...(scope.residual?.keys ?? []).map((k, i) =>
+      SqlTemplate.join([k.sql, ` AS ${quoteIdent(`k${spec.segmentBy.length + (scope.bucket === undefined ? 0 : 1) + i}`)}`]),
+    ),
     ...values.map((v, i) => SqlTemplate.join([v.sql, ` AS ${quoteIdent(`v${i}`)}`])),
+    ...(scope.residual?.values ?? []).map((v, i) => SqlTemplate.join([v.sql, ` AS ${quoteIdent(`v${values.length + i}`)}`])),
   ];
   select.push(SqlTemplate.join(items, ',\n       '), '\n  FROM ');
   const head = SqlTemplate.join(select);
   const leaves = partitions !== null && partitions.length > 0 && !(partitions[0] instanceof SqlTemplate) ? (partitions as readonly LeafPartition[]) : null;
   const parts: readonly (SqlTemplate | LeafPartition | null)[] = partitions ?? [null];
+  const order = scope.residual?.orderBy ?? null;
   const queries = parts.map((p) => {
     const leaf = p === null || p instanceof SqlTemplate ? null : p;
     const base = SqlTemplate.join([head, leaf === null ? sourceRelation(spec) : leafRelation(leaf, SOURCE_ALIAS)]);
     const where = [p instanceof SqlTemplate ? p : null, scope.filter ?? null].filter((c): c is SqlTemplate => c !== null);
-    if (where.length === 0) return base;
-    if (where.length === 1) return SqlTemplate.join([base, '\n WHERE ', where[0]!]);
+    const ordered = (q: SqlTemplate) => (order === null ? q : SqlTemplate.join([q, '\n ORDER BY ', order]));
+    if (where.length === 0) return ordered(base);
+    if (where.length === 1) return ordered(SqlTemplate.join([base, '\n WHERE ', where[0]!]));
     // Both in parentheses, so neither binds to the other's operators.
-    return SqlTemplate.join([base, '\n WHERE ', SqlTemplate.join(where.map((c) => SqlTemplate.join(['(', c, ')'])), ' AND ')]);
+    return ordered(SqlTemplate.join([base, '\n WHERE ', SqlTemplate.join(where.map((c) => SqlTemplate.join(['(', c, ')'])), ' AND ')]));
   });
   return {
     columns: design.map((c) => c.name),
-    valueNames: values.map((v) => v.name),
-    origins: values.map((v) => v.origin),
-    keyNames: scope.bucket === undefined ? [...spec.segmentBy] : [...spec.segmentBy, BUCKET_KEY],
+    valueNames: [...values.map((v) => v.name), ...(scope.residual?.values ?? []).map((v) => v.name)],
+    origins: [...values.map((v) => v.origin), ...(scope.residual?.values ?? []).map((v) => v.name)],
+    keyNames: [
+      ...spec.segmentBy,
+      ...(scope.bucket === undefined ? [] : [BUCKET_KEY]),
+      ...(scope.residual?.keys ?? []).map((k) => k.name),
+    ],
     levels,
     queries,
     ...(leaves === null ? {} : { sites: leaves.map((l) => l.site) }),
-    valueTypes: values.map((v) => v.type),
+    valueTypes: [...values.map((v) => v.type), ...(scope.residual?.values ?? []).map(() => 'float8' as const)],
   };
 }
 

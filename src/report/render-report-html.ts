@@ -12,6 +12,8 @@ import type { StoredScoring } from '../store/load-latest-scoring.js';
 import type { ReportModel, ReportRun } from './report-run.js';
 import { REPORT_CSS } from './report-styles.js';
 import { MANY_SEGMENTS, renderDistributionSection, standouts } from './many-segments.js';
+import { renderRobustSection } from './render-robust-section.js';
+import type { StoredResiduals } from '../store/index.js';
 
 /** Everything one report shows. */
 export interface ReportContent {
@@ -22,6 +24,8 @@ export interface ReportContent {
   readonly residuals: ResidualOutcome;
   /** The fit's newest scoring (null: never scored, or not loaded). */
   readonly scoring?: StoredScoring | null;
+  /** The residual pass's results by model id (empty or absent without one). */
+  readonly robust?: ReadonlyMap<string, StoredResiduals>;
 }
 
 const SECTIONS: readonly [string, string][] = [
@@ -30,6 +34,7 @@ const SECTIONS: readonly [string, string][] = [
   ['across-segments', 'Across segments'],
   ['residuals', 'Residuals'],
   ['predicted-actual', 'Predicted against actual'],
+  ['robust', 'Robust errors'],
   ['conditioning', 'Conditioning'],
   ['cautions', 'Cautions'],
 ];
@@ -54,6 +59,7 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     ...(many ? [across, models] : [models, across]),
     await renderResidualSection(content.residualModel, content.residuals),
     await renderScoringSection(content.scoring ?? null, content.residualModel, (key) => labels.get(key) ?? key),
+    renderRobustSection(run.models, content.robust ?? new Map(), content.residualModel) ?? '',
     await renderConditioningSection(run.models, run.segmentColumns, many),
     renderCautionsSection(run.models),
   ];
@@ -73,9 +79,11 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     `<h1>Fit ${escapeHtml(run.fitName)}</h1>`,
     `<p>Run ${escapeHtml(run.runId)} · ${count} model${count === 1 ? '' : 's'} · ended ${escapeHtml(run.endedAt.toISOString().slice(0, 10))}</p>`,
     '</header>',
-    `<nav class="contents">${SECTIONS.map(([id, name]) => `<a href="#${id}">${name}</a>`).join('')}</nav>`,
+    `<nav class="contents">${SECTIONS.filter(([id]) => id !== 'robust' || (content.robust?.size ?? 0) > 0)
+      .map(([id, name]) => `<a href="#${id}">${name}</a>`)
+      .join('')}</nav>`,
     '<main>',
-    ...sections,
+    ...sections.filter((s) => s !== ''),
     '</main>',
     `<footer>Made by rowfold ${escapeHtml(context.toolVersion)} from the result tables in schema ${escapeHtml(run.schema)}. A single file: no scripts, nothing loaded from elsewhere.</footer>`,
     '</body>',

@@ -8,7 +8,8 @@ import { openServerDatabase } from '../source/server-database.js';
 import { maskSecrets } from '../source/mask-secrets.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
-import { createStoreDb, DEFAULT_STORE_SCHEMA } from '../store/index.js';
+import { createStoreDb, DEFAULT_STORE_SCHEMA, loadResidualResults } from '../store/index.js';
+import type { StoredResiduals } from '../store/index.js';
 import { loadLatestScoring } from '../store/load-latest-scoring.js';
 import type { StoredScoring } from '../store/load-latest-scoring.js';
 import { chooseSegment } from './choose-segment.js';
@@ -61,10 +62,12 @@ export async function writeFitReport(database: Database, opts: WriteFitReportOpt
   let run: ReportRun;
   let scoring: StoredScoring | null;
   let model: ReportModel;
+  let robust: Map<string, StoredResiduals>;
   try {
     run = await loadReportRun(db, schema, opts.fit, (text) => tryParseSpec(text, opts.fit)?.segmentBy ?? []);
     model = chooseSegment(run.models, opts.segment);
     scoring = await loadLatestScoring(db, schema, opts.fit, model.segmentKey);
+    robust = await loadResidualResults(db, schema, run.runId);
   } finally {
     await db.destroy();
   }
@@ -75,6 +78,7 @@ export async function writeFitReport(database: Database, opts: WriteFitReportOpt
     residualModel: model,
     residuals,
     scoring,
+    robust,
   });
   const path = resolve(opts.out);
   await mkdir(dirname(path), { recursive: true });

@@ -4,6 +4,8 @@ import type { DesignPlan, DesignScope } from '../plan/design-plan.js';
 import { partitionPredicates } from '../plan/partition-predicates.js';
 import { PlanError } from '../plan/plan-error.js';
 import { leafLevelQuery, levelQuery, mergedLevelsQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
+import { withoutHoldout } from '../plan/holdout-split.js';
+import { residualColumns } from '../plan/residual-columns.js';
 import { resolveLevels } from '../plan/resolve-levels.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
 import { LEAF_PARTITIONS_SQL, leafPartitions } from '../plan/shard-layout.js';
@@ -14,6 +16,7 @@ import type { Connections } from '../source/connections-file.js';
 import type { DbSession } from '../source/database.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { describeQuery, queryAll } from '../source/query-helpers.js';
+import { probeResidualColumns } from './probe-residual-columns.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { shardReadError } from './read-sites.js';
 
@@ -52,6 +55,7 @@ export async function planFit(
     throw await locateProbeFailure(client, spec, expressions, e);
   }
   const casts = checkExpressionTypes(expressions, types);
+  await probeResidualColumns(client, spec);
   const numeric = numericExpressionKeys(expressions, types);
   const levels: CategoricalLevels[] = [];
   for (const [i, cat] of spec.categorical.entries()) {
@@ -73,12 +77,38 @@ export async function planFit(
   guardLevels = guardLevels || leaves !== null;
   // The first pass may be scoped differently from a second, double-double one: an incremental
   // fit folds only new rows (per bucket) into stored state, the second pass reads them all.
-  const first = { ...scope.first, guardLevels };
-  const second = scope.extended === undefined ? undefined : { ...scope.extended, guardLevels };
+  // Rows held out (residual_pass.holdout) enter no fit pass; the residual pass reads them too.
+  const first = { ...scope.first, filter: withoutHoldout(spec, scope.first?.filter), guardLevels };
+  const second = scope.extended === undefined ? undefined : { ...scope.extended, filter: withoutHoldout(spec, scope.extended.filter), guardLevels };
   const fast = buildDesignPlan(spec, casts, levels, partitions, new Set(), first);
   const extended = buildDesignPlan(spec, casts, levels, partitions, numeric, second ?? first);
   const extendedFloat = second === undefined ? undefined : buildDesignPlan(spec, casts, levels, partitions, new Set(), second);
-  return { ...fast, extended, extendedFloat };
+  // The residual pass reads every row the models hold (for a refit, the double-double pass's
+  // scope: all rows up to the new watermark, in the window), in one query when it is ordered.
+  const extras = residualColumns(spec);
+  // On a sharded source the residual pass reads leaf by leaf on the first pass's connections
+  // (each foreign leaf on its shard); an ordered pass or a look-up of influential rows would
+  // read every leaf through the coordinator instead, so they are refused here, before any read.
+  if (extras !== undefined && leaves !== null) {
+    const rp = spec.residualPass!;
+    const key = rp.orderBy !== null ? 'residual_pass.order_by' : rp.influential !== null ? 'residual_pass.influential' : null;
+    if (key !== null) {
+      throw new PlanError(
+        key,
+        `a source with foreign partitions (${leaves.filter((l) => l.site !== null).length} of ${leaves.length} leaves on shards) is read leaf by leaf, each on its shard; ` +
+          `${key} needs the whole source in one query, which would read the shards through the coordinator: drop ${key}, or fit with --parallel 1`,
+      );
+    }
+  }
+  const residual =
+    extras === undefined
+      ? undefined
+      : buildDesignPlan(spec, casts, levels, extras.orderBy === null ? partitions : null, new Set(), {
+          ...(scope.extended ?? scope.first),
+          guardLevels,
+          residual: extras,
+        });
+  return { ...fast, extended, extendedFloat, ...(residual === undefined ? {} : { residual }) };
 }
 
 /**

@@ -14,7 +14,17 @@ import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
-import { createStoreDb, failRun, migrate, publishRun, startRun, writeFitStates, writeRefitRecord, writeRunResult } from '../store/index.js';
+import {
+  createStoreDb,
+  failRun,
+  migrate,
+  publishRun,
+  startRun,
+  writeFitStates,
+  writeRefitRecord,
+  writeResidualResults,
+  writeRunResult,
+} from '../store/index.js';
 import type { ModelRecord, RunResult, StoreDatabase } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { finishRefit, startRefit, storedStates } from './refit.js';
@@ -22,6 +32,8 @@ import type { RefitOutcome, RefitStart } from './refit.js';
 import { AUTO_TARGET_DIGITS, certifyDigits } from './accuracy-passes.js';
 import { readPass } from './read-pass.js';
 import { ReadSites } from './read-sites.js';
+import { residualPass } from './residual-pass.js';
+import type { ModelResiduals } from './residual-pass.js';
 import { previousSolutions } from './refit-anchors.js';
 import { toolVersion } from './tool-version.js';
 import { collectGarbage, MODELS_PER_COLLECTION } from './collect-garbage.js';
@@ -87,6 +99,8 @@ export interface FittedModel {
   readonly solution: FitSolution;
   /** Streamed passes over this model's rows (more than 1 when `auto` refined it or folded it in double-double). */
   readonly passes: number;
+  /** What the residual pass found (spec key `residual_pass`); absent without one. */
+  readonly residuals?: ModelResiduals | undefined;
 }
 
 /** The outcome of a run (or of a dry run: the plan only). */
@@ -217,19 +231,27 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     const runId = await startFitRun(db, spec, plan, readFromText(spec, connections, sites));
     req.onRunStarted?.(runId);
     try {
-      const out = await readAndSolve(reads, spec, plan, { ...req, sites }, refit);
+      const solved = await readAndSolve(reads, spec, plan, { ...req, sites }, refit);
+      req.signal?.throwIfAborted();
+      // The residual pass reads over the same snapshot and read sites as the first pass.
+      const out = await withResiduals(reads, spec, plan, { ...req, sites }, solved);
       req.signal?.throwIfAborted();
       const kept: FittedModel[] = [];
       let seconds = 0;
       const result = publishable(spec, out, req, kept, (t) => (seconds = t));
       const done = out.refit;
-      if (done === undefined) await publishRun(db, spec.schema, runId, result);
+      const residuals = out.residuals;
+      if (done === undefined && residuals.size === 0) await publishRun(db, spec.schema, runId, result);
       else {
-        // State, drift tests and models in one transaction: a refit never merges state of an unpublished run.
+        // State, drift tests, models and residual results in one transaction: a refit never merges
+        // state of an unpublished run, and a dashboard never sees models without their robust errors.
         await db.transaction().execute(async (trx) => {
           await writeRunResult(trx, spec.schema, runId, result);
-          await writeFitStates(trx, spec.schema, spec.name, runId, done.states);
-          await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
+          if (done !== undefined) {
+            await writeFitStates(trx, spec.schema, spec.name, runId, done.states);
+            await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
+          }
+          await writeResidualResults(trx, spec.schema, runId, residuals, spec.residualPass?.holdout ?? null);
         });
       }
       const { rowsRead, rowsUsed, rowsSkipped, modelCount } = out;
@@ -462,4 +484,43 @@ function skippedByReason(plan: DesignPlan, counts: readonly DesignReadCounts[], 
   add('non_finite', (c) => c.nonFiniteCounts);
   if (zeroWeight > 0) out.zero_weight = zeroWeight;
   return out;
+}
+
+/**
+ * The residual pass after the solve, when the spec asks for one (`residual_pass`): its findings
+ * join each model as it is published (`residuals`, also by segment key for the result tables).
+ * It reads every row the models hold, so an incremental refit, which folds only new rows, still
+ * takes this pass over all of them; its time counts in the run's `seconds`.
+ *
+ * The pass needs every segment's solved coefficients before its read, so with a residual pass
+ * the models are solved at once (once each: they are not solved again when published) and held
+ * until published, each let go as it is taken. Memory grows with segments × terms² (a solution's
+ * covariance beside the pass's per-segment sums, of the same order as the factors the run holds
+ * anyway); without a residual pass the models are solved as they are published, as before.
+ */
+export async function withResiduals(
+  database: Database,
+  spec: FitSpec,
+  plan: DesignPlan,
+  req: RunFitRequest,
+  solved: SolvedRun,
+): Promise<SolvedRun & { readonly residuals: ReadonlyMap<string, ModelResiduals> }> {
+  if (spec.residualPass === null || plan.residual === undefined) return { ...solved, residuals: new Map() };
+  const held: (FittedModel | undefined)[] = [];
+  for (const m of solved.models()) {
+    if ((held.length & 1023) === 1023) req.signal?.throwIfAborted();
+    held.push(m);
+  }
+  const found = await residualPass(database, spec, plan, req, held as FittedModel[]);
+  let taken = false;
+  function* models(): Generator<FittedModel> {
+    if (taken) throw new Error('the models of a run are solved once');
+    taken = true;
+    for (let i = 0; i < held.length; i++) {
+      const m = held[i]!;
+      held[i] = undefined;
+      yield { ...m, residuals: found.get(m.segmentKey) };
+    }
+  }
+  return { ...solved, models, residuals: found };
 }

@@ -5,10 +5,19 @@ import { PlanOutdatedError, sourceChangedError } from '../plan/plan-outdated-err
 import type { ConnectionTarget } from '../source/connection-target.js';
 import type { DesignReadCounts } from '../source/read-design.js';
 import { openServerDatabase } from '../source/server-database.js';
-import { createStoreDb, deletePartials, failRunsAndPartials, loadPartialFactors, loadSplitRun, recordSplitRunSeconds, writeRunResult } from '../store/index.js';
+import {
+  createStoreDb,
+  deletePartials,
+  failRunsAndPartials,
+  loadPartialFactors,
+  loadSplitRun,
+  recordSplitRunSeconds,
+  writeResidualResults,
+  writeRunResult,
+} from '../store/index.js';
 import type { StoreDatabase } from '../store/index.js';
 import { ReadSites } from './read-sites.js';
-import { openSourceDatabase, passesOf, publishable, readAndSolve } from './run-fit.js';
+import { openSourceDatabase, passesOf, publishable, readAndSolve, withResiduals } from './run-fit.js';
 import { loadConnections } from '../source/connections-file.js';
 import { keepSplitRunAlive, splitLeaseSeconds } from './split-lease.js';
 import { splitRunSpec } from './split-partition.js';
@@ -119,12 +128,15 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const fit = new SegmentedFit(shape, firstPlan.keyNames, firstOptions);
           await mergePartialBatches(store, req.schema, req.runId, fit, req.batchStates ?? MERGE_BATCH_STATES, req.onBatch);
           const counts = partials.partitions.map((p) => p.counts as DesignReadCounts);
-          // A double-double pass reads every partition at once, over one snapshot (each shard in one of its own).
+          // A double-double pass reads every partition at once, over one snapshot (each shard in one of its own);
+          // the residual pass (residual_pass) reads every partition's rows again over the same snapshot and shards.
           const connections = loadConnections({ file: req.connections, env: req.env ?? process.env });
           const source = openSourceDatabase(spec, connections, database, Math.min(run.partitions, 4) + 1);
           const sites = plan.sites === undefined ? undefined : new ReadSites(connections, plan);
           const reads = await source.shareSnapshot();
-          const out = await readAndSolve(reads, spec, plan, { specPath: spec.origin, signal: req.signal, sites }, null, { fit, counts })
+          const passReq = { specPath: spec.origin, signal: req.signal, sites };
+          const out = await readAndSolve(reads, spec, plan, passReq, null, { fit, counts })
+            .then((solved) => withResiduals(reads, spec, plan, passReq, solved))
             .catch((e: unknown) => {
               throw e instanceof PlanOutdatedError ? e : (sourceChangedError(e, req.runId) ?? e);
             })
@@ -138,6 +150,7 @@ export async function mergeSplitRun(req: MergeRequest): Promise<MergeOutcome> {
           const result = publishable(spec, out, { keepModels: 0, signal: req.signal }, []);
           await store.transaction().execute(async (trx) => {
             await writeRunResult(trx, req.schema, req.runId, result);
+            await writeResidualResults(trx, req.schema, req.runId, out.residuals, spec.residualPass?.holdout ?? null);
             // The run's seconds are its whole duration, with the parts beside it in split_runs.
             await recordSplitRunSeconds(trx, req.schema, req.runId, (performance.now() - started) / 1000);
             await deletePartials(trx, req.schema, req.runId);

@@ -212,6 +212,56 @@ export const fitSpecSchema = z
           'Rolling window: state is stored per segment and bucket; each run folds only new rows and fits the last `keep` ' +
           'buckets; older buckets are pruned. The watermark defaults to the window column.',
       }),
+    residual_pass: z
+      .strictObject({
+        robust: z
+          .array(z.enum(['hc0', 'hc1', 'hc2', 'hc3'], { error: 'must be hc0, hc1, hc2 or hc3' }), {
+            error: 'must be a list of hc0, hc1, hc2, hc3',
+          })
+          .default(['hc0', 'hc1', 'hc2', 'hc3'])
+          .meta({ description: 'Heteroskedasticity-consistent standard errors to publish beside the classical ones.' }),
+        cluster_by: identifier(
+          'a column name',
+          'Column whose values form clusters: cluster-robust standard errors (at most 1,000,000 cluster sums × coefficients per segment).',
+        ).optional(),
+        order_by: identifier(
+          'a column name',
+          'Column that orders the rows of a segment in time: Newey–West standard errors and the Durbin–Watson statistic.',
+        ).optional(),
+        influential: z
+          .strictObject({
+            keys: z
+              .array(identifier('a column name', 'Column identifying a row.'), { error: 'must be a list of column names' })
+              .min(1, { error: 'must name at least one column' })
+              .meta({ description: 'Columns that identify a row in the results.' }),
+            top: z
+              .int({ error: 'must be a whole number from 1 to 1000' })
+              .min(1, { error: 'must be a whole number from 1 to 1000' })
+              .max(1000, { error: 'must be a whole number from 1 to 1000' })
+              .default(10)
+              .meta({ description: 'Rows kept per segment by Cook\'s distance and by leverage.' }),
+          })
+          .optional()
+          .meta({ description: 'The most influential rows of each segment, by Cook\'s distance and by leverage.' }),
+        holdout: z
+          .strictObject({
+            key: identifier('a column name', 'Column whose hash decides which rows are held out (rows with a NULL key never are).'),
+            fraction: z
+              .number({ error: 'must be a number above 0 and at most 0.5' })
+              .gt(0, { error: 'must be a number above 0 and at most 0.5' })
+              .max(0.5, { error: 'must be a number above 0 and at most 0.5' })
+              .meta({ description: 'Share of the key\'s values held out of the fit.' }),
+          })
+          .optional()
+          .meta({
+            description: 'Rows held out of the fit by a deterministic hash of a key column: RMSE, MAE and R² out of sample per segment.',
+          }),
+      })
+      .optional()
+      .meta({
+        description:
+          'One more streamed pass with the solved coefficients: robust and cluster-robust standard errors, tests of the errors, influential rows.',
+      }),
   })
   .meta({
     title: 'rowfold fit spec',

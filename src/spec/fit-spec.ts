@@ -152,10 +152,25 @@ export interface FitSpec {
   readonly watermark: string | null;
   /** Rolling window over time buckets of a timestamp or date column, or `null`. */
   readonly window: FitWindow | null;
+  /** The residual pass (robust errors, tests, influence), or `null` when the spec does not ask for it. */
+  readonly residualPass: FitResidualPass | null;
   /** File name (or label) the spec was read from, as used in error messages. */
   readonly origin: string;
   /** The spec text exactly as read. */
   readonly text: string;
   /** sha256 of `text` (UTF-8), lowercase hex. */
   readonly hash: string;
+}
+
+/** The spec's `residual_pass`: what the streamed pass after the solve gathers. */
+export interface FitResidualPass {
+  readonly robust: readonly ('hc0' | 'hc1' | 'hc2' | 'hc3')[];
+  /** Column whose values form the clusters of cluster-robust errors, or `null`. */
+  readonly clusterBy: string | null;
+  /** Column ordering a segment's rows (Newey–West, Durbin–Watson), or `null`. */
+  readonly orderBy: string | null;
+  /** Key columns and count of the influential rows kept per segment, or `null`. */
+  readonly influential: { readonly keys: readonly string[]; readonly top: number } | null;
+  /** Rows held out of the fit by a hash of `key` (about `fraction` of its values), or `null`. */
+  readonly holdout: { readonly key: string; readonly fraction: number } | null;
 }

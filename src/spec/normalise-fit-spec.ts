@@ -197,6 +197,16 @@ export function normaliseFitSpec(
           : { partitions: doc.split.partitions, jobTimeoutSeconds: doc.split.job_timeout_seconds, cutoff: doc.split.cutoff ?? null },
       watermark: doc.watermark ?? doc.window?.column ?? null,
       window: doc.window === undefined ? null : { ...doc.window },
+      residualPass:
+        doc.residual_pass === undefined
+          ? null
+          : {
+              robust: [...new Set(doc.residual_pass.robust)],
+              clusterBy: doc.residual_pass.cluster_by ?? null,
+              orderBy: doc.residual_pass.order_by ?? null,
+              influential: doc.residual_pass.influential === undefined ? null : { ...doc.residual_pass.influential },
+              holdout: doc.residual_pass.holdout === undefined ? null : { ...doc.residual_pass.holdout },
+            },
     },
   };
 }

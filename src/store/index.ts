@@ -36,3 +36,7 @@ export type { PartialFactorRecord } from './partial-factor-record.js';
 export { extendSplitRun, startSplitRun } from './start-split-run.js';
 export { writePartialFactors } from './write-partial-factors.js';
 export type { PartialWriteOutcome } from './write-partial-factors.js';
+export { writeResidualResults } from './write-residual-results.js';
+export type { HoldoutSplit, InfluentialRowRecord, ResidualRecord } from './write-residual-results.js';
+export { loadResidualResults } from './load-residual-results.js';
+export type { StoredResiduals } from './load-residual-results.js';

@@ -53,14 +53,15 @@ describe('migrate', () => {
   it('creates the schema, tables and views, with every column documented, and is idempotent', async () => {
     const db = openDb();
     const first = await migrate(db, 'rowfold');
-    expect(first.applied.map((m) => m.version)).toEqual([1, 2, 3, 4, 5, 6, 7, 8, 9]);
+    expect(first.applied.map((m) => m.version)).toEqual([1, 2, 3, 4, 5, 6, 7, 8, 9, 10]);
     const second = await migrate(db, 'rowfold');
-    expect(second).toEqual({ schema: 'rowfold', applied: [], version: 9 });
+    expect(second).toEqual({ schema: 'rowfold', applied: [], version: 10 });
 
     const relations = await sql<{ relname: string; relkind: string }>`
       select c.relname, c.relkind from pg_class c join pg_namespace n on n.oid = c.relnamespace
       where n.nspname = 'rowfold' and c.relkind in ('r', 'v') order by c.relname`.execute(db);
     expect(relations.rows).toEqual([
+      { relname: 'coefficient_errors', relkind: 'r' },
       { relname: 'coefficient_rows', relkind: 'r' },
       { relname: 'coefficients', relkind: 'v' },
       { relname: 'covariance_entries', relkind: 'v' },
@@ -68,12 +69,17 @@ describe('migrate', () => {
       { relname: 'drift', relkind: 'v' },
       { relname: 'drift_tests', relkind: 'r' },
       { relname: 'fit_states', relkind: 'r' },
+      { relname: 'holdout_errors', relkind: 'r' },
+      { relname: 'influential_rows', relkind: 'r' },
+      { relname: 'latest_coefficient_errors', relkind: 'v' },
       { relname: 'latest_coefficients', relkind: 'v' },
       { relname: 'latest_covariances', relkind: 'v' },
       { relname: 'latest_models', relkind: 'v' },
+      { relname: 'latest_residual_tests', relkind: 'v' },
       { relname: 'latest_scoring_segments', relkind: 'v' },
       { relname: 'models', relkind: 'r' },
       { relname: 'partial_factors', relkind: 'r' },
+      { relname: 'residual_tests', relkind: 'r' },
       { relname: 'runs', relkind: 'r' },
       { relname: 'schema_migrations', relkind: 'r' },
       { relname: 'scoring_samples', relkind: 'r' },
@@ -99,7 +105,7 @@ describe('migrate', () => {
     expect(index.rows[0]?.indexdef).toContain('(fit_name, segment_key, run_id DESC)');
 
     const recorded = await db.withSchema('rowfold').selectFrom('schema_migrations').selectAll().execute();
-    expect(recorded).toHaveLength(9);
+    expect(recorded).toHaveLength(10);
     expect(recorded[0]).toMatchObject({ version: 1, name: 'result_tables' });
     expect(recorded[1]).toMatchObject({ version: 2, name: 'accuracy' });
     expect(recorded[2]).toMatchObject({ version: 3, name: 'fit_states' });
@@ -109,6 +115,7 @@ describe('migrate', () => {
     expect(recorded[6]).toMatchObject({ version: 7, name: 'coefficient_arrays' });
     expect(recorded[7]).toMatchObject({ version: 8, name: 'read_from' });
     expect(recorded[8]).toMatchObject({ version: 9, name: 'scoring' });
+    expect(recorded[9]).toMatchObject({ version: 10, name: 'residual_pass' });
     expect(recorded[0]!.checksum).toMatch(/^[0-9a-f]{64}$/);
     expect(recorded[0]!.applied_at).toBeInstanceOf(Date);
     await db.destroy();
@@ -144,7 +151,7 @@ describe('migrate', () => {
   it('migrates the real schema from several processes at once', async () => {
     const dbs = Array.from({ length: 4 }, () => openDb());
     const results = await Promise.all(dbs.map((db) => migrate(db, 'race_real')));
-    expect(results.flatMap((r) => r.applied.map((m) => m.version)).sort()).toEqual([1, 2, 3, 4, 5, 6, 7, 8, 9]);
+    expect(results.flatMap((r) => r.applied.map((m) => m.version)).sort((a, b) => a - b)).toEqual([1, 2, 3, 4, 5, 6, 7, 8, 9, 10]);
     await Promise.all(dbs.map((db) => db.destroy()));
   });
 

@@ -44,6 +44,7 @@ describe('schema/fit-spec.schema.json', () => {
       'split',
       'watermark',
       'window',
+      'residual_pass',
     ]);
   });
 });

@@ -36,6 +36,7 @@ describe('parseFitSpec: defaults', () => {
       split: null,
       watermark: null,
       window: null,
+      residualPass: null,
       origin: 'load.yaml',
       text,
       hash: createHash('sha256').update(text).digest('hex'),
