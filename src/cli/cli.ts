@@ -5,7 +5,7 @@ import { PlanError } from '../plan/plan-error.js';
 import { SpecFileError } from '../run/run-fit.js';
 import { SpecError } from '../spec/spec-error.js';
 import { ConnectionConfigError } from '../source/connection-config-error.js';
-import { maskSecrets } from '../source/mask-secrets.js';
+import { maskSecrets } from '../common/mask-secrets.js';
 import { setNoticeSink } from '../source/notices.js';
 import { CliError, ExitCode } from './exit-codes.js';
 import { demoCommand } from './demo-command.js';

@@ -1,6 +1,6 @@
 import type { Argv } from 'yargs';
 import { ReportError } from '../report/report-error.js';
-import { writeFitReport } from '../report/write-fit-report.js';
+import { writeFitReport } from '../run/write-fit-report.js';
 import { openDatabase } from '../source/open-database.js';
 import { CliError, ExitCode } from './exit-codes.js';
 

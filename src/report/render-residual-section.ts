@@ -5,7 +5,7 @@ import { normalQuantilePoints } from './normal-quantile-points.js';
 import type { ReportModel } from './report-run.js';
 import { renderFigure } from './render-figure.js';
 import { residualFittedChartSpec } from './residual-fitted-chart.js';
-import type { ResidualSample } from './sample-residuals.js';
+import type { ResidualSample } from './residual-points.js';
 
 /** The residual sample of the chosen segment, or why there is none. */
 export type ResidualOutcome = { readonly sample: ResidualSample } | { readonly problem: string };

@@ -19,7 +19,7 @@ import type { RefitOutcome, RefitStart } from './refit.js';
 import { certifyDigits } from './accuracy-passes.js';
 import { readPass } from './read-pass.js';
 import { previousSolutions } from './refit-anchors.js';
-import { toolVersion } from './tool-version.js';
+import { toolVersion } from '../common/tool-version.js';
 
 /** The spec file could not be read (missing, unreadable): a usage error, not a failed fit. */
 export class SpecFileError extends Error {

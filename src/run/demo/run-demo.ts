@@ -1,4 +1,4 @@
-import { writeFitReport } from '../../report/write-fit-report.js';
+import { writeFitReport } from '../write-fit-report.js';
 import type { Database } from '../../source/database.js';
 import { openDatabase } from '../../source/open-database.js';
 import { runFit } from '../run-fit.js';

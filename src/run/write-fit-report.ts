@@ -1,16 +1,16 @@
 import { mkdir, writeFile } from 'node:fs/promises';
 import { dirname, resolve } from 'node:path';
-import { toolVersion } from '../run/tool-version.js';
+import { toolVersion } from '../common/tool-version.js';
 import type { Database } from '../source/database.js';
-import { maskSecrets } from '../source/mask-secrets.js';
+import { maskSecrets } from '../common/mask-secrets.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { createStoreDb, DEFAULT_STORE_SCHEMA } from '../store/index.js';
-import { chooseSegment } from './choose-segment.js';
-import { loadReportRun } from './load-report-run.js';
-import type { ResidualOutcome } from './render-residual-section.js';
-import { renderReportHtml } from './render-report-html.js';
-import type { ReportModel, ReportRun } from './report-run.js';
+import { chooseSegment } from '../report/choose-segment.js';
+import { loadReportRun } from '../report/load-report-run.js';
+import type { ResidualOutcome } from '../report/render-residual-section.js';
+import { renderReportHtml } from '../report/render-report-html.js';
+import type { ReportModel, ReportRun } from '../report/report-run.js';
 import { sampleResiduals } from './sample-residuals.js';
 
 /** What {@link writeFitReport} should report on, and where to write it. */
