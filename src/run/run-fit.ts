@@ -12,7 +12,7 @@ import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
 import { createStoreDb, failRun, migrate, publishRun, startRun, writeFitStates, writeRefitRecord, writeRunResult } from '../store/index.js';
-import type { ModelRecord, StoreDatabase } from '../store/index.js';
+import type { ModelRecord, RunDesign, StoreDatabase } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { finishRefit, startRefit, storedStates } from './refit.js';
 import type { RefitOutcome, RefitStart } from './refit.js';
@@ -101,7 +101,23 @@ export function startFitRun(db: Kysely<StoreDatabase>, spec: FitSpec, plan: Desi
     specText: spec.text,
     designQuery: plan.queries.map((q) => q.toBound().text).join('\n-- next partition --\n'),
     toolVersion: TOOL_VERSION,
+    design: specDesign(spec),
   });
+}
+
+/** The design of a spec as the `runs` table records it (response, weight, terms, categorical, segment_by). */
+export function specDesign(spec: FitSpec): RunDesign {
+  return {
+    response: spec.response,
+    weight: spec.weight,
+    terms: [
+      ...spec.terms.map((t) => t.name),
+      ...spec.categorical.map((c) => c.column),
+      ...spec.interactions.map(([a, b]) => `${a.name}*${b.name}`),
+    ],
+    categorical: spec.categorical.map((c) => c.column),
+    segmentBy: spec.segmentBy,
+  };
 }
 
 /**

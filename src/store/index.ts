@@ -13,7 +13,7 @@ export { publishRun, writeRunResult } from './publish-run.js';
 export type { PublishOptions, RunResult } from './publish-run.js';
 export { DEFAULT_STORE_SCHEMA, checkSchemaName } from './schema-name.js';
 export { startRun } from './start-run.js';
-export type { RunStart } from './start-run.js';
+export type { RunDesign, RunStart } from './start-run.js';
 export type * from './store-database.js';
 export type { FitStateRecord } from './fit-state-record.js';
 export { loadFitStates } from './load-fit-states.js';

@@ -49,6 +49,12 @@ export interface RunsTable {
   seconds: number | null;
   tool_version: string;
   error_message: string | null;
+  /** The fit's design, as the spec names it (migration 0011; null in runs recorded before). */
+  response: ColumnType<string | null, string | null | undefined, string | null>;
+  weight: ColumnType<string | null, string | null | undefined, string | null>;
+  terms: ColumnType<string[] | null, string[] | null | undefined, string[] | null>;
+  categorical: ColumnType<string[] | null, string[] | null | undefined, string[] | null>;
+  segment_by: ColumnType<string[] | null, string[] | null | undefined, string[] | null>;
 }
 
 /** `models`: one row per fit, segment and run. */
