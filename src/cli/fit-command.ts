@@ -1,15 +1,15 @@
 import type { Argv } from 'yargs';
 import { INTERCEPT_TERM } from '../fit/fit-solution.js';
-import { solutionToJson } from '../report/solution-json.js';
 import { formatSegmentsTable } from '../report/segments-table.js';
 import { formatSolution } from '../report/terminal-summary.js';
 import { formatCount } from '../report/format-number.js';
-import { runFitExclusive } from '../run/run-fit-exclusive.js';
+import { fitRun } from '../run/fit-api.js';
+import type { FitDocument } from '../run/fit-document.js';
 import type { RunFitResult } from '../run/run-fit.js';
 import { CliError, ExitCode } from './exit-codes.js';
 import { progressReporter } from './progress-reporter.js';
 
-/** `rowfold fit SPEC [--db URL] [--parallel N] [--threads N] [--read copy|rows] [--json] [--dry-run]`. */
+/** `rowfold fit SPEC [--db URL] [--schema NAME] [--parallel N] [--threads N] [--read copy|rows] [--json] [--dry-run]`. */
 export function fitCommand(y: Argv): Argv {
   return y.command(
     'fit <spec>',
@@ -22,6 +22,7 @@ export function fitCommand(y: Argv): Argv {
           describe:
             'PostgreSQL URL, or embedded:FOLDER (default: DATABASE_URL, then the PG* variables, then the embedded database in .rowfold/db)',
         })
+        .option('schema', { type: 'string', describe: "result schema, in place of the spec's schema (default: the spec's, else rowfold)" })
         .option('parallel', { type: 'number', default: 1, describe: 'read N disjoint partitions over N connections' })
         .option('threads', {
           type: 'number',
@@ -49,61 +50,28 @@ export function fitCommand(y: Argv): Argv {
         throw new CliError(`--threads must be a whole number from 0 to 64, got ${threads}`, ExitCode.usage);
       }
       const progress = progressReporter();
-      let result: RunFitResult;
+      let run: { document: FitDocument; result: RunFitResult };
       try {
-        result = await runFitExclusive({
-          specPath: args.spec,
+        // The command is a thin layer over the library's fit(): the same run, the same document.
+        run = await fitRun(args.spec, {
           db: args.db,
+          schema: args.schema,
           parallel,
-          threads,
-          read: args.read,
-          accuracy: args.accuracy,
+          ...(threads === undefined ? {} : { threads }),
+          ...(args.read === undefined ? {} : { read: args.read }),
+          ...(args.accuracy === undefined ? {} : { accuracy: args.accuracy }),
           dryRun: args.dryRun,
           full: args.full,
-          onProgress: args.json ? undefined : progress.update,
+          ...(args.json ? {} : { onProgress: (p) => progress.update({ rowsRead: p.rows_read, segments: p.segment_count, seconds: p.seconds }) }),
         });
       } finally {
         progress.done();
       }
+      const { document, result } = run;
       if (args.dryRun) process.stdout.write(args.json ? JSON.stringify(dryRunJson(result)) + '\n' : dryRunText(result));
-      else process.stdout.write(args.json ? JSON.stringify(runJson(result)) + '\n' : runText(result));
+      else process.stdout.write(args.json ? JSON.stringify(document) + '\n' : runText(result));
     },
   );
-}
-
-function runJson(r: RunFitResult): unknown {
-  return {
-    run: {
-      id: r.runId,
-      fit: r.spec.name,
-      status: 'succeeded',
-      rows_read: r.rowsRead,
-      rows_used: r.rowsUsed,
-      rows_skipped: r.rowsSkipped,
-      segments: r.models.length,
-      seconds: r.seconds,
-      ...(r.refit === undefined ? {} : refitJson(r.refit)),
-    },
-    models: r.models.map((m) => ({ segment: m.segment, ...solutionToJson(m.solution), passes: m.passes })),
-  };
-}
-
-function refitJson(refit: NonNullable<RunFitResult['refit']>): Record<string, unknown> {
-  return {
-    refit: refit.record.refit,
-    watermark_from: refit.record.watermarkFrom,
-    watermark_to: refit.record.watermarkTo,
-    notes: refit.record.notes,
-    drift: refit.drift.map((d) => ({
-      segment: d.segment,
-      flagged: d.test.flagged,
-      flagged_terms: d.test.flaggedTerms,
-      test: d.test.test,
-      f: d.test.f,
-      f_p: d.test.fP,
-      max_abs_z: d.test.maxAbsZ,
-    })),
-  };
 }
 
 /** Up to this many models the text output shows each in full; above, a line per model. */
@@ -151,7 +119,9 @@ function runText(r: RunFitResult): string {
 
 function dryRunJson(r: RunFitResult): unknown {
   return {
-    fit: r.spec.name,
+    fit_name: r.spec.name,
+    schema: r.spec.schema,
+    database: r.connection,
     columns: r.plan.columns,
     levels: r.plan.levels,
     queries: r.plan.queries.map((q) => q.toBound()),

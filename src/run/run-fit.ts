@@ -20,6 +20,8 @@ import { certifyDigits } from './accuracy-passes.js';
 import { readPass } from './read-pass.js';
 import { previousSolutions } from './refit-anchors.js';
 import { toolVersion } from '../common/tool-version.js';
+import type { RunOutcome } from './fit-document.js';
+import type { DatabaseOption } from '../source/open-database.js';
 
 /** The spec file could not be read (missing, unreadable): a usage error, not a failed fit. */
 export class SpecFileError extends Error {
@@ -28,9 +30,14 @@ export class SpecFileError extends Error {
 
 /** What `rowfold fit` was asked to do. */
 export interface RunFitRequest {
-  readonly specPath: string;
-  /** `--db URL`; otherwise DATABASE_URL, then the PG* variables. */
-  readonly db?: string | undefined;
+  /** The spec file; or give the spec itself in `spec`. */
+  readonly specPath?: string;
+  /** A spec already loaded (the library's spec objects); takes the place of `specPath`. */
+  readonly spec?: FitSpec;
+  /** `--schema`: the result schema, in place of the spec's `schema`. */
+  readonly schema?: string | undefined;
+  /** `--db URL` or `embedded:FOLDER`, or a pg pool the caller owns; otherwise DATABASE_URL, then the PG* variables. */
+  readonly db?: DatabaseOption;
   readonly env?: NodeJS.ProcessEnv;
   readonly parallel?: number;
   /**
@@ -43,6 +50,12 @@ export interface RunFitRequest {
   /** Overrides the spec's `accuracy`. */
   readonly accuracy?: 'auto' | 'fast' | 'extended' | undefined;
   readonly dryRun?: boolean;
+  /**
+   * False: read, fold and solve, but write nothing to the result tables (no run row, no
+   * models; the result's run id is null). Default true. A fit with a watermark or a window
+   * needs its stored state, so it always publishes.
+   */
+  readonly publish?: boolean;
   /** With a watermark: read every row and replace the stored state (late rows are folded in). */
   readonly full?: boolean;
   /** Called once the run's `runs` row is written (so a server can fail it if it must stop). */
@@ -87,6 +100,19 @@ const TOOL_VERSION = toolVersion();
  * becomes a SpecFileError (a usage error, not a failed fit).
  */
 export function loadSpecFile(specPath: string): Promise<FitSpec> {
+  return loadSpecPath(specPath);
+}
+
+/** The spec of a request: the one given, else the file's, with `schema` in place of the spec's when given. */
+export async function requestSpec(req: Pick<RunFitRequest, 'spec' | 'specPath' | 'schema'>): Promise<FitSpec> {
+  let spec: FitSpec;
+  if (req.spec !== undefined) spec = req.spec;
+  else if (req.specPath !== undefined) spec = await loadSpecPath(req.specPath);
+  else throw new SpecFileError('no spec: give a spec file or a spec object');
+  return req.schema === undefined || req.schema === spec.schema ? spec : { ...spec, schema: req.schema };
+}
+
+function loadSpecPath(specPath: string): Promise<FitSpec> {
   return loadFitSpec(specPath).catch((e: unknown) => {
     if (e instanceof SpecError) throw e;
     throw new SpecFileError(`cannot read the spec ${specPath}: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
@@ -126,12 +152,32 @@ export function specDesign(spec: FitSpec): RunDesign {
  * its `runs` row, marked failed with the error.
  */
 export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
-  const spec = await loadSpecFile(req.specPath);
+  const spec = await requestSpec(req);
   const parallel = req.parallel ?? 1;
   const database = await openDatabase({ db: req.db, env: req.env ?? process.env, sessions: parallel + 1 });
   const db = createStoreDb(database.dialect());
   let reads: SharedSnapshot | undefined;
   try {
+    return await runFitOn(database, db, spec, parallel, req, (r) => (reads = r));
+  } catch (e) {
+    throw withDatabaseNamed(e, database.display);
+  } finally {
+    await reads?.release();
+    await db.destroy();
+    await database.close();
+  }
+}
+
+async function runFitOn(
+  database: Database,
+  db: Kysely<StoreDatabase>,
+  spec: FitSpec,
+  parallel: number,
+  req: RunFitRequest,
+  holdReads: (reads: SharedSnapshot) => void,
+): Promise<RunFitResult> {
+  let reads: SharedSnapshot;
+  {
     if (parallel > database.maxSessions) {
       throw new SpecFileError(`--parallel ${parallel}: the ${database.kind} database serves ${database.maxSessions} reader(s) at once`);
     }
@@ -141,6 +187,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     // Every read of the run (the plan's probes, each partition, a second pass) sees one snapshot,
     // and the plan's locks keep the source from being altered or truncated until the run ends.
     reads = await database.shareSnapshot();
+    holdReads(reads);
     // Without a shared snapshot (the embedded database), a level the plan did not find fails the read.
     const guard = reads.snapshotId === null;
     const plan = await reads.withHoldingSession(async (session) => {
@@ -154,6 +201,11 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     const base = { spec, plan, connection: database.display };
     if (req.dryRun) {
       return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
+    }
+    if (req.publish === false && spec.watermark === null) {
+      req.signal?.throwIfAborted();
+      const out = await readAndSolve(reads, spec, plan, req, refit);
+      return { ...base, runId: null, ...out };
     }
     await migrate(db, spec.schema);
     req.signal?.throwIfAborted();
@@ -192,11 +244,37 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
       await failRun(db, spec.schema, runId, req.signal?.aborted === true ? req.signal.reason : e).catch(() => undefined);
       throw e;
     }
-  } finally {
-    await reads?.release();
-    await db.destroy();
-    await database.close();
   }
+}
+
+/**
+ * Names the database on an error that escapes a run (`error.database`, `user@host:port/db` or
+ * the embedded folder), so that a message such as "relation … does not exist" says where it
+ * was looked for. An error that already names one keeps it.
+ */
+export function withDatabaseNamed(e: unknown, display: string): unknown {
+  if (e instanceof Error && (e as { database?: unknown }).database === undefined) {
+    Object.defineProperty(e, 'database', { value: display, enumerable: true, configurable: true, writable: true });
+  }
+  return e;
+}
+
+/** A run's result in the terms of {@link fitDocument} (the one vocabulary). */
+export function runOutcome(r: RunFitResult): RunOutcome {
+  return {
+    runId: r.runId,
+    fitName: r.spec.name,
+    schema: r.spec.schema,
+    database: r.connection,
+    rowsRead: r.rowsRead,
+    rowsUsed: r.rowsUsed,
+    rowsSkipped: r.rowsSkipped,
+    seconds: r.seconds,
+    toolVersion: TOOL_VERSION,
+    design: specDesign(r.spec),
+    models: r.models.map((m) => ({ ...m, method: r.spec.method })),
+    refit: r.refit,
+  };
 }
 
 /**

@@ -12,6 +12,8 @@ import type { ResidualOutcome } from '../report/render-residual-section.js';
 import { renderReportHtml } from '../report/render-report-html.js';
 import type { ReportModel, ReportRun } from '../report/report-run.js';
 import { sampleResiduals } from './sample-residuals.js';
+import { withResultsDatabase } from './read-results.js';
+import type { ReadOptions } from './read-results.js';
 
 /** What {@link writeFitReport} should report on, and where to write it. */
 export interface WriteFitReportOptions {
@@ -105,4 +107,36 @@ async function residualOutcome(
 
 function message(e: unknown): string {
   return maskSecrets(e instanceof Error ? e.message : String(e));
+}
+
+/** Options of {@link writeReport}. */
+export interface WriteReportOptions extends ReadOptions {
+  /** The HTML file to write (default `FIT-report.html`). */
+  readonly out?: string;
+  /** Segment for the residual charts: its key or `col=value` (default the one with most rows). */
+  readonly segment?: string;
+  /** Most rows sampled for the residual charts (default 2000). */
+  readonly sampleRows?: number;
+}
+
+/**
+ * Writes the HTML report of a fit's newest succeeded run (see {@link writeFitReport}) to
+ * `out`, reading the results from the database `db` names.
+ *
+ * @throws ReportError when the fit has no succeeded run, or `segment` matches no model
+ * @example
+ * const { path } = await writeReport('feeder_load', { db: 'embedded:.rowfold/db', out: 'feeder_load.html' });
+ */
+export async function writeReport(fitName: string, opts: WriteReportOptions = {}): Promise<{ path: string; segment_count: number }> {
+  const out = opts.out ?? `${fitName}-report.html`;
+  return withResultsDatabase(opts, 2, async (database) => {
+    const { path, segments } = await writeFitReport(database, {
+      fit: fitName,
+      schema: opts.schema ?? DEFAULT_STORE_SCHEMA,
+      segment: opts.segment,
+      out,
+      ...(opts.sampleRows === undefined ? {} : { sampleRows: opts.sampleRows }),
+    });
+    return { path, segment_count: segments };
+  });
 }

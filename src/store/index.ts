@@ -36,3 +36,5 @@ export type { PartialFactorRecord } from './partial-factor-record.js';
 export { extendSplitRun, startSplitRun } from './start-split-run.js';
 export { writePartialFactors } from './write-partial-factors.js';
 export type { PartialWriteOutcome } from './write-partial-factors.js';
+export { loadLatestResults } from './load-latest-results.js';
+export type { LatestResultRows } from './load-latest-results.js';

@@ -123,12 +123,15 @@ interface RunTimes {
 /** Read-only shape of a view: every column is selectable, none writable. */
 type ViewOf<T> = { [K in keyof T]: ColumnType<SelectType<T[K]>, never, never> };
 
+/** Columns that latest_models adds from the run's design (migration 0011). */
+type RunDesignColumns = Pick<RunsTable, 'response' | 'weight' | 'terms' | 'categorical' | 'segment_by'>;
+
 /** `latest_models`: per fit and segment, the model of the newest succeeded run that has it. */
-export type LatestModelsView = ViewOf<ModelsTable & RunTimes>;
+export type LatestModelsView = ViewOf<ModelsTable & RunTimes & RunDesignColumns>;
 
 /** `latest_coefficients`: the coefficients of the models in `latest_models`. */
 export type LatestCoefficientsView = ViewOf<
-  CoefficientsTable & Pick<ModelsTable, 'fit_name' | 'segment' | 'segment_key'> & RunTimes
+  CoefficientsTable & Pick<ModelsTable, 'fit_name' | 'segment' | 'segment_key' | 'confidence'> & RunTimes
 >;
 
 /** `schema_migrations`: which numbered migrations the schema has had applied. */
