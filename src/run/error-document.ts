@@ -96,8 +96,7 @@ export function describeFailure(e: unknown, usage = false): Failure {
     exitCode = EXIT_CODE.usage;
     text = `spec does not fit the source: ${message}`;
     fields.key = e.key;
-    const located = e as PlanError & { line?: number; origin?: string };
-    if (located.line !== undefined) fields.line = located.line;
+    if (e.line !== undefined) Object.assign(fields, { line: e.line, origin: e.origin });
   } else if (e instanceof FitInputError) {
     text = `bad data: ${message}`;
     if (e.column !== undefined) fields.column = e.column;

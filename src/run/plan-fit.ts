@@ -6,7 +6,9 @@ import { PlanError } from '../plan/plan-error.js';
 import { levelQuery, probeQuery, probedExpressions, tablePagesQuery } from '../plan/probe-queries.js';
 import { resolveLevels } from '../plan/resolve-levels.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
-import { sourceTableName } from '../plan/source-relation.js';
+import { sourceRelation, sourceTableName } from '../plan/source-relation.js';
+import { SqlTemplate } from '../plan/sql-template.js';
+import { didYouMean } from '../spec/did-you-mean.js';
 import type { DbSession } from '../source/database.js';
 import { describeQuery, queryAll } from '../source/query-helpers.js';
 import type { FitSpec } from '../spec/fit-spec.js';
@@ -58,6 +60,26 @@ export async function planFit(
 }
 
 /**
+ * For an undefined column (SQLSTATE 42703), the nearest column the source has, as
+ * `; did you mean temp_c?` (the source's columns are listed when none is near), else ''.
+ */
+async function columnHint(client: DbSession, spec: FitSpec, error: unknown): Promise<string> {
+  if ((error as { code?: unknown } | null)?.code !== '42703') return '';
+  const missing = /column "?(?:[^".\s]+\.)?([^"\s]+)"? does not exist/.exec(error instanceof Error ? error.message : '')?.[1];
+  if (missing === undefined) return '';
+  let columns: string[];
+  try {
+    columns = (await describeQuery(client, SqlTemplate.join(['SELECT * FROM ', sourceRelation(spec)]))).map((c) => c.name);
+  } catch {
+    return '';
+  }
+  const near = didYouMean(missing, columns);
+  if (near !== undefined) return `; did you mean ${near}?`;
+  const shown = columns.slice(0, 20).join(', ') + (columns.length > 20 ? ', …' : '');
+  return columns.length > 0 ? `; the source has ${shown}` : '';
+}
+
+/**
  * The probe of all expressions failed: probe the source alone, then each expression, to
  * name the spec key at fault in the error.
  */
@@ -77,7 +99,8 @@ async function locateProbeFailure(
     try {
       await describeQuery(client, probeQuery(spec, [expr]));
     } catch (e) {
-      return new PlanError(expr.key, `${expr.role} ${expr.name} does not evaluate over the source: ${reason(e)}`, { cause: e });
+      const hint = await columnHint(client, spec, e);
+      return new PlanError(expr.key, `${expr.role} ${expr.name} does not evaluate over the source: ${reason(e)}${hint}`, { cause: e });
     }
   }
   return error instanceof Error ? error : new Error(String(error));

@@ -11,6 +11,8 @@ import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
+import { specKeyLine } from '../spec/spec-key-line.js';
+import { PlanError } from '../plan/plan-error.js';
 import { createStoreDb, failRun, migrate, publishRun, startRun, writeFitStates, writeRefitRecord, writeRunResult } from '../store/index.js';
 import type { ModelRecord, RunDesign, StoreDatabase } from '../store/index.js';
 import { planFit } from './plan-fit.js';
@@ -160,7 +162,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
   try {
     return await runFitOn(database, db, spec, parallel, req, (r) => (reads = r));
   } catch (e) {
-    throw withDatabaseNamed(e, database.display);
+    throw withDatabaseNamed(placePlanError(e, spec), database.display);
   } finally {
     await reads?.release();
     await db.destroy();
@@ -257,6 +259,12 @@ export function withDatabaseNamed(e: unknown, display: string): unknown {
     Object.defineProperty(e, 'database', { value: display, enumerable: true, configurable: true, writable: true });
   }
   return e;
+}
+
+/** A PlanError placed at the line of its key in the spec (`spec.yaml:7: terms[2]: …`); other errors as they are. */
+export function placePlanError(e: unknown, spec: FitSpec): unknown {
+  if (!(e instanceof PlanError) || e.line !== undefined) return e;
+  return e.at(spec.origin, specKeyLine(spec.text, e.key));
 }
 
 /** A run's result in the terms of {@link fitDocument} (the one vocabulary). */
