@@ -97,7 +97,7 @@ describe('rowfold report', () => {
 
   it('draws one SVG per chart: each term, two residual plots, the condition numbers', () => {
     const figures = html.match(/<figure class="chart"[^>]*>[\s\S]*?<\/figure>/g) ?? [];
-    // intercept, temp_c, humidity, shift; residuals vs fitted; normal quantiles; condition.
+    // intercept, temp_c, humidity, shift; residual spread; residuals beside the normal; condition.
     expect(figures).toHaveLength(7);
     for (const f of figures) expect(f.match(/<svg /g)).toHaveLength(1);
     expect(html.match(/<svg /g)).toHaveLength(7);
@@ -107,8 +107,8 @@ describe('rowfold report', () => {
       'estimates of humidity across segments',
       'estimates of shift across segments',
       'estimates of intercept across segments',
-      'residuals against fitted values',
-      'normal quantile plot of the residuals',
+      'residual spread across the fitted range',
+      'standardised residuals beside the normal',
       'condition number per segment',
     ]);
   });
