@@ -183,7 +183,8 @@ describe('rowfold report without a succeeded run', () => {
   it('fails with exit 1 for a fit that never ran, naming the fits there are', async () => {
     const res = await runCli(['report', 'no_such_fit', '--db', tdb.url, '--out', join(outDir, 'none.html')]);
     expect(res.code).toBe(1);
-    expect(res.stderr).toBe(`rowfold: fit "no_such_fit" has no run in schema "rowfold" (fits there: ${REPORT_SPEC.name})\n`);
+    // Issue 14: the database the report looked in is named.
+    expect(res.stderr).toMatch(new RegExp(`^rowfold: fit "no_such_fit" has no run in schema "rowfold" \\(fits there: ${REPORT_SPEC.name}\\) \\[database: [^\\]]+\\]\n$`));
   });
 
   it('fails with exit 1 when the only run failed, and says why it failed', async () => {
