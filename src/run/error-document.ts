@@ -109,10 +109,8 @@ export function describeFailure(e: unknown, usage = false): Failure {
     text = e.usage ? message : `bad data: ${message}`;
     if (e.column !== undefined) fields.column = e.column;
   } else if (e instanceof FitBusyError) {
-    text = message;
     fields.fit_name = e.fitName;
   } else if (e instanceof EmbeddedDatabaseLockedError) {
-    text = message;
     Object.assign(fields, { dir: e.dir, pid: e.pid });
   } else if (e instanceof MigrationError) {
     Object.assign(fields, { schema: e.schema, version: e.version ?? null });
