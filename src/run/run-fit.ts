@@ -170,6 +170,7 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
   }
 }
 
+/** The run of {@link runFit} on an open database; `holdReads` hands the shared snapshot back for release. */
 async function runFitOn(
   database: Database,
   db: Kysely<StoreDatabase>,
@@ -178,74 +179,71 @@ async function runFitOn(
   req: RunFitRequest,
   holdReads: (reads: SharedSnapshot) => void,
 ): Promise<RunFitResult> {
-  let reads: SharedSnapshot;
-  {
-    if (parallel > database.maxSessions) {
-      throw new SpecFileError(`--parallel ${parallel}: the ${database.kind} database serves ${database.maxSessions} reader(s) at once`);
-    }
-    let refit: RefitStart | null = null;
-    // Read before the session opens: the embedded database serves one session at a time.
-    const stored = spec.watermark === null ? [] : await storedStates(db, spec);
-    // Every read of the run (the plan's probes, each partition, a second pass) sees one snapshot,
-    // and the plan's locks keep the source from being altered or truncated until the run ends.
-    reads = await database.shareSnapshot();
-    holdReads(reads);
-    // Without a shared snapshot (the embedded database), a level the plan did not find fails the read.
-    const guard = reads.snapshotId === null;
-    const plan = await reads.withHoldingSession(async (session) => {
-      if (spec.watermark === null) return planFit(session, spec, parallel, {}, guard);
-      // The unscoped plan gives the design (columns, levels) that stored state must match.
-      refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel), req.full === true);
-      return planFit(session, spec, parallel, refit.scope, guard);
-    });
-    // An incremental refit refines from the previous solutions (no pass over the stored rows).
-    if (refit !== null) refit = { ...(refit as RefitStart), solved: await previousSolutions(db, spec, refit) };
-    const base = { spec, plan, connection: database.display };
-    if (req.dryRun) {
-      return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
-    }
-    if (req.publish === false && spec.watermark === null) {
-      req.signal?.throwIfAborted();
-      const out = await readAndSolve(reads, spec, plan, req, refit);
-      return { ...base, runId: null, ...out };
-    }
-    await migrate(db, spec.schema);
+  if (parallel > database.maxSessions) {
+    throw new SpecFileError(`--parallel ${parallel}: the ${database.kind} database serves ${database.maxSessions} reader(s) at once`);
+  }
+  let refit: RefitStart | null = null;
+  // Read before the session opens: the embedded database serves one session at a time.
+  const stored = spec.watermark === null ? [] : await storedStates(db, spec);
+  // Every read of the run (the plan's probes, each partition, a second pass) sees one snapshot,
+  // and the plan's locks keep the source from being altered or truncated until the run ends.
+  const reads = await database.shareSnapshot();
+  holdReads(reads);
+  // Without a shared snapshot (the embedded database), a level the plan did not find fails the read.
+  const guard = reads.snapshotId === null;
+  const plan = await reads.withHoldingSession(async (session) => {
+    if (spec.watermark === null) return planFit(session, spec, parallel, {}, guard);
+    // The unscoped plan gives the design (columns, levels) that stored state must match.
+    refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel), req.full === true);
+    return planFit(session, spec, parallel, refit.scope, guard);
+  });
+  // An incremental refit refines from the previous solutions (no pass over the stored rows).
+  if (refit !== null) refit = { ...(refit as RefitStart), solved: await previousSolutions(db, spec, refit) };
+  const base = { spec, plan, connection: database.display };
+  if (req.dryRun) {
+    return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, models: [] };
+  }
+  if (req.publish === false && spec.watermark === null) {
     req.signal?.throwIfAborted();
-    const runId = await startFitRun(db, spec, plan);
-    req.onRunStarted?.(runId);
-    try {
-      const out = await readAndSolve(reads, spec, plan, req, refit);
-      req.signal?.throwIfAborted();
-      const result = {
-        rowsRead: out.rowsRead,
-        rowsUsed: out.rowsUsed,
-        rowsSkipped: out.rowsSkipped,
-        seconds: out.seconds,
-        models: out.models.map(
-          (m): ModelRecord => ({
-            segment: m.segment,
-            segmentKey: m.segmentKey,
-            method: spec.method,
-            solution: m.solution,
-            passes: m.passes,
-          }),
-        ),
-      };
-      const done = out.refit;
-      if (done === undefined) await publishRun(db, spec.schema, runId, result);
-      else {
-        // State, drift tests and models in one transaction: a refit never merges state of an unpublished run.
-        await db.transaction().execute(async (trx) => {
-          await writeRunResult(trx, spec.schema, runId, result);
-          await writeFitStates(trx, spec.schema, spec.name, runId, done.states);
-          await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
-        });
-      }
-      return { ...base, runId, ...out };
-    } catch (e) {
-      await failRun(db, spec.schema, runId, req.signal?.aborted === true ? req.signal.reason : e).catch(() => undefined);
-      throw e;
+    const out = await readAndSolve(reads, spec, plan, req, refit);
+    return { ...base, runId: null, ...out };
+  }
+  await migrate(db, spec.schema);
+  req.signal?.throwIfAborted();
+  const runId = await startFitRun(db, spec, plan);
+  req.onRunStarted?.(runId);
+  try {
+    const out = await readAndSolve(reads, spec, plan, req, refit);
+    req.signal?.throwIfAborted();
+    const result = {
+      rowsRead: out.rowsRead,
+      rowsUsed: out.rowsUsed,
+      rowsSkipped: out.rowsSkipped,
+      seconds: out.seconds,
+      models: out.models.map(
+        (m): ModelRecord => ({
+          segment: m.segment,
+          segmentKey: m.segmentKey,
+          method: spec.method,
+          solution: m.solution,
+          passes: m.passes,
+        }),
+      ),
+    };
+    const done = out.refit;
+    if (done === undefined) await publishRun(db, spec.schema, runId, result);
+    else {
+      // State, drift tests and models in one transaction: a refit never merges state of an unpublished run.
+      await db.transaction().execute(async (trx) => {
+        await writeRunResult(trx, spec.schema, runId, result);
+        await writeFitStates(trx, spec.schema, spec.name, runId, done.states);
+        await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
+      });
     }
+    return { ...base, runId, ...out };
+  } catch (e) {
+    await failRun(db, spec.schema, runId, req.signal?.aborted === true ? req.signal.reason : e).catch(() => undefined);
+    throw e;
   }
 }
 
