@@ -12,7 +12,8 @@ import {
   RUN_ROW_COLUMNS,
 } from '../../src/run/fit-document.js';
 import type { FitDocument } from '../../src/run/fit-document.js';
-import { createTestDatabase } from '../support/pg-database.js';
+import pg from 'pg';
+import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
 
@@ -148,5 +149,21 @@ describe('one vocabulary for --json, the library and the result tables', () => {
     expect(dry.run.run_id).toBeNull();
     expect(dry.models.map((m) => m.coefficients.map((c) => c.estimate))).toEqual(doc.models.map((m) => m.coefficients.map((c) => c.estimate)));
     expect((await tdb.query(`select count(*)::int as n from rowfold.runs`)).rows[0].n).toBe(before);
+  });
+
+  it.skipIf(ON_EMBEDDED)('takes a pg pool of the caller, uses it, and leaves it open', async () => {
+    const pool = new pg.Pool({ connectionString: tdb.url, max: 3 });
+    try {
+      const viaPool = await fit({ ...SPEC, name: 'vocabulary_pool' }, { db: pool });
+      expect(viaPool.run.database).toMatch(/the caller's pool/);
+      expect(viaPool.models.map((m) => m.coefficients.map((c) => c.estimate))).toEqual(doc.models.map((m) => m.coefficients.map((c) => c.estimate)));
+      const latest = await latestResults('vocabulary_pool', { db: pool });
+      expect(latest.models.map((m) => m.run_id)).toEqual([viaPool.run.run_id, viaPool.run.run_id, viaPool.run.run_id]);
+      // Still open: the caller's pool is the caller's to end.
+      expect((await pool.query('select 1 as one')).rows).toEqual([{ one: 1 }]);
+      expect(pool.totalCount - pool.idleCount).toBe(0);
+    } finally {
+      await pool.end();
+    }
   });
 });
