@@ -105,7 +105,8 @@ def exact_fit(rows, p, intercept, weighted, kept):
 def generated_rows(spec):
     """The rows of a generated case, as test/support/exact-cases.ts makes them: draws of the
     Park-Miller generator (state = 16807 * state mod 2^31 - 1, exact in doubles) over 2^31,
-    y summed left to right in double arithmetic, so both languages get the same doubles."""
+    each predictor the optional "offset" plus a draw, y summed left to right in double
+    arithmetic from the optional "constant", so both languages get the same doubles."""
     state = spec["seed"]
 
     def draw():
@@ -115,8 +116,8 @@ def generated_rows(spec):
 
     rows = []
     for _ in range(spec["rows"]):
-        x = [draw() for _ in spec["coefficients"]]
-        y = 0.0
+        x = [spec.get("offset", 0.0) + draw() for _ in spec["coefficients"]]
+        y = spec.get("constant", 0.0)
         for c, v in zip(spec["coefficients"], x):
             y += c * v
         y += (draw() - 0.5) * spec["noise"]
@@ -225,6 +226,22 @@ def main():
     gen = {"seed": 20261113, "rows": 100000, "coefficients": [1.5, -2.25, 0.75, 3.0, -1.0, 0.5, 2.0, -0.25], "noise": 0.2}
     cases.append(case("generated-100k", "100,000 generated rows, eight uniform predictors, true intercept 0, noise uniform of width 0.2.",
                       generated_rows(gen), [f"g{j + 1}" for j in range(8)], True, False, generated=gen))
+
+    # 9. Predictors far from zero (about 10^6 + a draw) and a response far from zero (about
+    # 5*10^7), one true zero: the factor folds shifted columns, and every refinement path
+    # (a pass of its own, sums gathered in the first pass, a refit from the previous
+    # solution) must carry the intercept through the shift.
+    gen = {"seed": 20261205, "rows": 4000, "coefficients": [1.5, 0.0, -2.0, 0.75, 3.0], "noise": 1e-4,
+           "offset": 1e6, "constant": 5e7}
+    cases.append(case("offset-columns", "4,000 generated rows, five predictors about 10^6, response about 5*10^7, one true zero, noise uniform of width 1e-4.",
+                      generated_rows(gen), [f"o{j + 1}" for j in range(5)], True, False, generated=gen))
+
+    # 10. Predictors far from zero whose effects cancel (y = x1 - x2 + ...): the response and
+    # the folded intercept are small, while the shifts make the rounding of the slopes a large
+    # error of the folded intercept.
+    gen = {"seed": 20261206, "rows": 3000, "coefficients": [1.0, -1.0, 0.0, 0.5, -0.5], "noise": 1e-6, "offset": 1e6}
+    cases.append(case("offset-cancelling", "3,000 generated rows, five predictors about 10^6 whose effects cancel (1, -1, 0, 0.5, -0.5), noise uniform of width 1e-6.",
+                      generated_rows(gen), [f"k{j + 1}" for j in range(5)], True, False, generated=gen))
 
     with open(OUT, "w") as fh:
         json.dump({"generator": GENERATOR, "library": LIBRARY, "cases": cases}, fh, indent=1)

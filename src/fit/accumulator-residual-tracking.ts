@@ -1,4 +1,5 @@
 import { mergeResidualSums, residualSum, residualSumsLength } from '../numeric/residual-sums.js';
+import { dd, ddAdd, twoProd, twoSum } from '../numeric/double-double.js';
 import { packedIndex } from '../numeric/packed.js';
 import type { FoldCounts, FoldLayout, RefinementAnchor } from './accumulator-state.js';
 import { foldRowsResiduals } from './accumulator-fold-residuals.js';
@@ -26,6 +27,20 @@ export interface TrackingState {
   readonly nextMove: number;
   /** False once tracking was given up (the sums then mean nothing). */
   readonly valid: boolean;
+  /** Stored rows taken as solved by the anchor (see solvedTracking), when there are any. */
+  readonly seed?: SolvedSeed | undefined;
+}
+
+/**
+ * Stored rows whose gradient at a fixed anchor was taken as zero (a refit's previous
+ * solution): their packed factor (folded with `shift`) and the anchor's error per
+ * coefficient (coordinates as given). The gradient left out is G_old·e, which moves the
+ * refined solution by (XᵀWX)⁻¹G_old·e: a solve needs both to say what that costs in digits.
+ */
+export interface SolvedSeed {
+  readonly factor: Float64Array;
+  readonly shift: Float64Array | undefined;
+  readonly error: Float64Array;
 }
 
 /**
@@ -47,6 +62,7 @@ export class ResidualTracking {
   readonly follow: boolean;
   nextMove: number;
   valid: boolean;
+  seed: SolvedSeed | undefined;
   private static readonly scratch: FoldCounts = { rows: 0, zeroWeightRows: 0, sumWeights: 0, sumLogWeights: 0 };
 
   constructor(q: number, anchor: RefinementAnchor | undefined, state?: TrackingState) {
@@ -58,6 +74,7 @@ export class ResidualTracking {
       this.follow = state.follow;
       this.nextMove = state.nextMove;
       this.valid = state.valid;
+      this.seed = state.seed;
       return;
     }
     this.anchor = anchor ?? { coefficients: new Float64Array(q), centre: 0 };
@@ -67,6 +84,7 @@ export class ResidualTracking {
     this.follow = anchor === undefined;
     this.nextMove = this.follow ? FIRST_ANCHOR_ROWS : Number.POSITIVE_INFINITY;
     this.valid = true;
+    this.seed = undefined;
   }
 
   /** A plain copy, for storage or transfer to another thread. */
@@ -80,6 +98,7 @@ export class ResidualTracking {
       follow: this.follow,
       nextMove: this.nextMove,
       valid: this.valid,
+      ...(this.seed === undefined ? {} : { seed: this.seed }),
     };
   }
 
@@ -104,8 +123,7 @@ export class ResidualTracking {
       return;
     }
     const q = order - 1;
-    const d = next.coefficients.map((c, j) => c - this.anchor.coefficients[j]!);
-    shiftSums(this, d, gramTimes(factor, order, shift, d), rows, shift);
+    shiftSums(this, foldedMove(this.anchor.coefficients, next.coefficients, shift), factor, order, shift, rows);
     // The centre only shifts Σw(y − c) and Σw(y − c)²: re-centred in the same algebra.
     const dc = next.centre - this.anchor.centre;
     if (dc !== 0) recentre(this.sums, q, dc, factorWeightSum(factor, order));
@@ -123,7 +141,8 @@ export class ResidualTracking {
     theirs: { factor: Float64Array; shift: Float64Array | undefined; rows: number },
     order: number,
   ): void {
-    if (!other.valid || !this.valid) {
+    // Two sets of stored rows taken as solved cannot be told apart afterwards: given up.
+    if (!other.valid || !this.valid || (other.seed !== undefined && this.seed !== undefined)) {
       this.abandon();
       return;
     }
@@ -140,6 +159,7 @@ export class ResidualTracking {
     for (let j = 0; j < q; j++) this.drift[j] = this.drift[j]! + moved.drift[j]!;
     this.rssError += moved.rssError;
     this.nextMove = Math.max(this.nextMove, other.nextMove);
+    this.seed ??= other.seed;
   }
 
   /** Takes another tracking's state as its own (this one holds no rows). */
@@ -151,29 +171,88 @@ export class ResidualTracking {
     this.rssError = s.rssError;
     this.nextMove = s.nextMove;
     this.valid = s.valid;
+    this.seed = s.seed;
   }
 }
 
 /**
- * g(c + d) = g(c) − G d and RSS(c + d) = RSS(c) − 2dᵀg(c) + dᵀGd, with the move's drift (in the
- * folded coordinates of `shift`) and rounding.
+ * The move of an anchor from `from` to `to` (coordinates as given) in the coordinates of the
+ * factor as folded with `shift`: v = T(to − from), T₀ⱼ = c_j, so v₀ = d₀ + Σ c_j d_j and
+ * v_j = d_j. Each d_j is the exact difference (TwoSum) and v₀ is summed in double-double:
+ * with large shifts d₀ and Σ c_j d_j cancel almost entirely (the intercept as given moves by
+ * about −Σ c_j d_j while the folded one barely moves), and a rounded v₀ would move the sums
+ * by G times an error of u·|c|·|d| that no digit estimate accounts for.
  */
-function shiftSums(t: ResidualTracking, d: Float64Array, gd: Float64Array, rows: number, shift: Float64Array | undefined): void {
-  const q = d.length;
-  const s = t.sums;
-  let dg = 0;
-  let dgd = 0;
-  let folded0 = d[0]!;
-  if (shift !== undefined) for (let j = 1; j < q; j++) folded0 += shift[j - 1]! * d[j]!;
-  for (let j = 0; j < q; j++) {
-    const g = residualSum(s, j, q + j);
-    dg += d[j]! * (g.hi + g.lo);
-    dgd += d[j]! * gd[j]!;
-    addTo(s, j, q + j, -gd[j]!);
-    t.drift[j] = t.drift[j]! + rows * Math.abs(j === 0 ? folded0 : d[j]!);
+function foldedMove(from: Float64Array, to: Float64Array, shift: Float64Array | undefined): Float64Array {
+  const q = from.length;
+  const v = new Float64Array(q);
+  const t = dd();
+  const acc = dd();
+  twoSum(to[0]!, -from[0]!, acc);
+  for (let j = 1; j < q; j++) {
+    twoSum(to[j]!, -from[j]!, t);
+    const dh = t.hi;
+    const dl = t.lo;
+    v[j] = dh + dl;
+    if (shift === undefined) continue;
+    const c = shift[j - 1]!;
+    twoProd(c, dh, t);
+    ddAdd(acc.hi, acc.lo, t.hi, t.lo + c * dl, acc);
   }
+  v[0] = acc.hi + acc.lo;
+  return v;
+}
+
+/**
+ * Moves the sums by the folded move `v` (see foldedMove): g(c + d) = g(c) − G d and
+ * RSS(c + d) = RSS(c) − 2dᵀg(c) + dᵀGd. G d is formed in the folded coordinates, G'v =
+ * R_XᵀR_X v, and taken back to the coordinates as given (G d = TᵀG'v: component j gains
+ * c_j·(G'v)₀) with exact products added to the compensated sums, so that the folded
+ * gradient a solve recovers, g'_j = g_j − c_j·g₀, moves by exactly −(G'v)_j. dᵀg(c) is
+ * vᵀg'(c) and dᵀGd is ‖R_X v‖². The move's size per coefficient joins the drift.
+ */
+function shiftSums(t: ResidualTracking, v: Float64Array, factor: Float64Array, order: number, shift: Float64Array | undefined, rows: number): void {
+  const q = v.length;
+  const s = t.sums;
+  const rv = new Float64Array(q);
+  let dgd = 0;
+  for (let i = 0; i < q; i++) {
+    let sum = 0;
+    for (let j = i; j < q; j++) sum += factor[packedIndex(order, i, j)]! * v[j]!;
+    rv[i] = sum;
+    dgd += sum * sum;
+  }
+  const gv = new Float64Array(q);
+  for (let j = 0; j < q; j++) {
+    let sum = 0;
+    for (let i = 0; i <= j; i++) sum += factor[packedIndex(order, i, j)]! * rv[i]!;
+    gv[j] = sum;
+  }
+  // vᵀg'(c), the folded gradient before the move.
+  const g0 = residualSum(s, 0, q);
+  const p = dd();
+  let dg = v[0]! * (g0.hi + g0.lo);
+  for (let j = 1; j < q; j++) {
+    const g = residualSum(s, j, q + j);
+    if (shift === undefined) {
+      dg += v[j]! * (g.hi + g.lo);
+      continue;
+    }
+    twoProd(-shift[j - 1]!, g0.hi, p);
+    ddAdd(p.hi, p.lo - shift[j - 1]! * g0.lo, g.hi, g.lo, p);
+    dg += v[j]! * (p.hi + p.lo);
+  }
+  addTo(s, 0, q, -gv[0]!);
+  for (let j = 1; j < q; j++) {
+    addTo(s, j, q + j, -gv[j]!);
+    if (shift === undefined) continue;
+    twoProd(shift[j - 1]!, gv[0]!, p);
+    addTo(s, j, q + j, -p.hi);
+    addTo(s, j, q + j, -p.lo);
+  }
+  for (let j = 0; j < q; j++) t.drift[j] = t.drift[j]! + rows * Math.abs(v[j]!);
   const rss = residualSum(s, 2 * q, 2 * q + 1);
-  t.rssError += U * (Math.abs(rss.hi) + 2 * Math.abs(dg) + Math.abs(dgd));
+  t.rssError += U * (Math.abs(rss.hi) + 2 * Math.abs(dg) + dgd);
   addTo(s, 2 * q, 2 * q + 1, -2 * dg);
   addTo(s, 2 * q, 2 * q + 1, dgd);
 }
@@ -199,31 +278,6 @@ function recentre(s: Float64Array, q: number, dc: number, w: number): void {
 /** Σw read off a factor with an intercept (R₀₀²), else 0 (no centring without an intercept). */
 function factorWeightSum(factor: Float64Array, order: number): number {
   return order > 1 ? factor[packedIndex(order, 0, 0)]! ** 2 : 0;
-}
-
-/**
- * G d for the Gram matrix G of the design as given, from the packed factor R of the design
- * folded with its term columns shifted by `shift` (undefined: not shifted): the design as
- * given is the folded one times T (T₀ⱼ = c_j), so G = TᵀRᵀRT.
- */
-export function gramTimes(factor: Float64Array, order: number, shift: Float64Array | undefined, d: Float64Array): Float64Array {
-  const q = order - 1;
-  const v = d.slice();
-  if (shift !== undefined) for (let j = 1; j < q; j++) v[0] = v[0]! + shift[j - 1]! * d[j]!;
-  const rv = new Float64Array(q);
-  for (let i = 0; i < q; i++) {
-    let s = 0;
-    for (let j = i; j < q; j++) s += factor[packedIndex(order, i, j)]! * v[j]!;
-    rv[i] = s;
-  }
-  const g = new Float64Array(q);
-  for (let j = 0; j < q; j++) {
-    let s = 0;
-    for (let i = 0; i <= j; i++) s += factor[packedIndex(order, i, j)]! * rv[i]!;
-    g[j] = s;
-  }
-  if (shift !== undefined) for (let j = 1; j < q; j++) g[j] = g[j]! + shift[j - 1]! * g[0]!;
-  return g;
 }
 
 /**
@@ -264,9 +318,10 @@ export function anchorOfFactor(
 /**
  * Residual tracking over the rows a packed factor holds, against `anchor` taken as their
  * solution (a refit's previous, certified solution): the gradient there is taken as zero —
- * off by the Gram matrix times the anchor's error, which joins the drift as
- * rows·|T·error| — the residual sum of squares is the factor's last diagonal squared, and
- * Σw(y − c), Σw(y − c)² are read off its response column (c the anchor's centre).
+ * off by G_old·error, kept as the tracking's `seed` so that the solve can say what it
+ * costs (it is not a move's rounding, which the factor's rate shrinks: the refined solution
+ * inherits it in full) — the residual sum of squares is the factor's last diagonal squared,
+ * and Σw(y − c), Σw(y − c)² are read off its response column (c the anchor's centre).
  */
 export function solvedTracking(
   factor: Float64Array,
@@ -293,20 +348,15 @@ export function solvedTracking(
   } else {
     sums[2 * q + 4] = s2;
   }
-  const drift = error.map((e) => rows * Math.abs(e));
-  if (shift !== undefined) {
-    let folded = Math.abs(error[0]!);
-    for (let j = 1; j < q; j++) folded += Math.abs(shift[j - 1]! * error[j]!);
-    drift[0] = rows * folded;
-  }
   return {
     coefficients: anchor.coefficients.slice(),
     centre: anchor.centre,
     sums,
-    drift,
+    drift: new Float64Array(q),
     rssError: U * rss * Math.sqrt(Math.max(1, rows)),
     follow: false,
     nextMove: Number.POSITIVE_INFINITY,
     valid: true,
+    seed: { factor: factor.slice(), shift: shift?.slice(), error: error.slice() },
   };
 }

@@ -8,6 +8,7 @@ import { foldRowsNormal, mergeGram } from './accumulator-fold-normal.js';
 import { foldRowsQr, mergeFactorQr } from './accumulator-fold-qr.js';
 import { foldRowsResiduals } from './accumulator-fold-residuals.js';
 import { anchorOfFactor, ResidualTracking, solvedTracking } from './accumulator-residual-tracking.js';
+import type { SolvedSeed } from './accumulator-residual-tracking.js';
 import { firstRowShift, moveToShift } from './accumulator-shift.js';
 import type {
   AccumulatorState,
@@ -142,9 +143,9 @@ export class Accumulator {
    * anchor's moves (`drift`, see ResidualTracking) and a bound on their rounding of the
    * residual sum of squares — or undefined without tracking or when it was given up.
    */
-  get tracked(): { anchor: RefinementAnchor; sums: Float64Array; drift: Float64Array; rssError: number } | undefined {
+  get tracked(): { anchor: RefinementAnchor; sums: Float64Array; drift: Float64Array; rssError: number; seed: SolvedSeed | undefined } | undefined {
     const t = this.tracking;
-    return t === undefined || !t.valid ? undefined : { anchor: t.anchor, sums: t.sums, drift: t.drift, rssError: t.rssError };
+    return t === undefined || !t.valid ? undefined : { anchor: t.anchor, sums: t.sums, drift: t.drift, rssError: t.rssError, seed: t.seed };
   }
 
   /** Low parts of the double-double factor (undefined in double precision). */
@@ -384,8 +385,19 @@ export class Accumulator {
       foldRowsNormal(layout, this.r, v, width, from, to, this.counts, this.workspace);
       return;
     }
-    if (this.shiftBy === undefined && this.shifts) this.shiftBy = firstRowShift(layout, v, width, from, to);
     const t = this.tracking;
+    if (this.shiftBy === undefined && this.shifts) {
+      this.shiftBy = firstRowShift(layout, v, width, from, to);
+      // A following anchor starts where the factor does: the first row's response as the
+      // intercept (and centre), the slopes 0. Summed about 0 instead, a response far from
+      // zero leaves the sums of squares to cancel over many more digits when the anchor moves.
+      if (t !== undefined && t.follow && this.counts.rows === 0 && this.shiftBy !== undefined) {
+        const cy = this.shiftBy[this.order - 2]!;
+        const coefficients = new Float64Array(this.order - 1);
+        coefficients[0] = cy;
+        t.anchor = { coefficients, centre: cy };
+      }
+    }
     if (t === undefined) {
       foldRowsQr(layout, this.r, v, width, from, to, this.shiftBy, this.counts, this.workspace);
       return;

@@ -9,6 +9,8 @@ import type { SolveOptions } from './solve.js';
 import { analyseFactor } from './solve-factor.js';
 import type { FactorAnalysis } from './solve-factor.js';
 import { digitsOf, stdErrorErrors } from './solve-digits.js';
+import { seedErrors } from './seed-errors.js';
+import type { SolvedSeed } from './accumulator-residual-tracking.js';
 
 /** Unit roundoff of double precision (2⁻⁵³). */
 const U = Number.EPSILON / 2;
@@ -70,6 +72,8 @@ export interface RefinementInput {
    */
   readonly drift?: Float64Array | undefined;
   readonly rssError?: number | undefined;
+  /** Stored rows whose gradient at the anchor was taken as zero (a refit's; see seedErrors). */
+  readonly seed?: SolvedSeed | undefined;
 }
 
 /** A refined solution, and the norm of its scaled correction (for the next step's rate). */
@@ -147,10 +151,10 @@ export function solveRefined(acc: Accumulator, input: RefinementInput, options: 
   // A posteriori: the error left is about the rate times this step's correction. The
   // measured rate (this correction over the previous one) replaces the predicted one when it
   // is larger and the correction is above the level at which the estimates' own rounding
-  // moves them (u·‖b̃‖), where the ratio says nothing.
+  // moves them (u·‖D|T||b|‖, see scaledSize), where the ratio says nothing.
   let rate = refinementRate(f);
-  const size = scaledNorm(f, estimates);
-  if (input.previousCorrection !== undefined && correction > 16 * U * size) rate = Math.max(rate, correction / input.previousCorrection);
+  const rounding = U * scaledSize(f, estimates, true);
+  if (input.previousCorrection !== undefined && correction > 16 * rounding) rate = Math.max(rate, correction / input.previousCorrection);
   // Sums gathered while the anchor moved carry each move's error, the factor's error times
   // the move, weighted by the share of the rows it was made over.
   let moved = 0;
@@ -159,19 +163,36 @@ export function solveRefined(acc: Accumulator, input: RefinementInput, options: 
   // What the pass's arithmetic leaves: residuals formed as pairs (about (k·u)² relative to
   // the terms they cancel) whose gradient's error the solve amplifies by up to κ².
   const kappa = f.factorCondition ?? 1;
-  const floor = (k * U) ** 2 * kappa * kappa * (size + Math.sqrt(rss));
+  const floor = (k * U) ** 2 * kappa * kappa * (scaledSize(f, estimates, false) + Math.sqrt(rss));
   const errors = propagatedErrors(f, rate * (correction + moved) + floor);
+  if (input.seed !== undefined) {
+    const inherited = seedErrors(acc, f, input.seed);
+    errors.forEach((e, pos) => (errors[pos] = e + inherited[pos]!));
+  }
   // σ² comes from the pass's residual sum of squares: its rounding moves every standard error.
   const sigmaErr = rss > 0 ? (input.rssError ?? 0) / (2 * rss) : 0;
   const seErrors = stdErrorErrors(f, Number.EPSILON).map((e) => e + sigmaErr);
   return { solution: { ...solution, estimatedDigits: digitsOf(estimates, { estimate: errors, stdError: seErrors }) }, correction };
 }
 
-/** ‖b̃‖: the norm of coefficients (kept, coordinates as given) in the scaled coordinates of the factor as folded. */
-function scaledNorm(f: FactorAnalysis, estimates: Float64Array): number {
+/**
+ * The size of coefficients (kept, coordinates as given) in the scaled coordinates of the
+ * factor as folded, ‖D·v‖. With `rounded`, v = |T|·|b| (the intercept's entry |b₀| + Σ|c_j b_j|):
+ * the size their rounding has there — an anchor is held in the coordinates as given and
+ * rounded there, and with large shifts its slopes' rounding times the shifts is a large error
+ * of the folded intercept, however small that is itself. Otherwise v has the intercept
+ * b₀ + Σ c_j b_j (the response's shift left in), the measure the residual floor below was
+ * calibrated with on the exact and NIST designs.
+ */
+function scaledSize(f: FactorAnalysis, estimates: Float64Array, rounded: boolean): number {
   const { kept } = f.qr;
-  let intercept = estimates[0]!;
-  if (f.shift !== undefined) for (let pos = 1; pos < kept.length; pos++) intercept += f.shift[kept[pos]! - 1]! * estimates[pos]!;
+  let intercept = rounded ? Math.abs(estimates[0]!) : estimates[0]!;
+  if (f.shift !== undefined) {
+    for (let pos = 1; pos < kept.length; pos++) {
+      const t = f.shift[kept[pos]! - 1]! * estimates[pos]!;
+      intercept += rounded ? Math.abs(t) : t;
+    }
+  }
   let size = 0;
   kept.forEach((j, pos) => (size = Math.hypot(size, (pos === 0 ? intercept : estimates[pos]!) * f.scale[j]!)));
   return size;

@@ -60,7 +60,7 @@ export async function certifyDigits(input: AccuracyPassInput, solutions: Map<str
     if (tracked !== undefined) {
       const { solution, correction } = solveRefined(
         s.acc,
-        { anchor: tracked.anchor, sums: tracked.sums, step: 1, drift: tracked.drift, rssError: tracked.rssError },
+        { anchor: tracked.anchor, sums: tracked.sums, step: 1, drift: tracked.drift, rssError: tracked.rssError, seed: tracked.seed },
         { confidence: input.spec.confidence },
       );
       steps.set(s.keyText, 1);

@@ -28,6 +28,15 @@ const QUEUED_READS = 4;
  * copied together. Other messages (notices, parameter status) are passed whole to pg's own
  * parser; at CopyDone, or at an ErrorResponse, the socket goes back to pg with the rest of
  * the read, and pg reports the command's completion (or the error) to this query.
+ *
+ * Why not pg's own submittable hook (handleCopyData, one call per CopyData message, as other
+ * packages' COPY submittables use it): binary COPY sends one message per row, and pg's
+ * parser makes a message object and a Buffer view per message and emits it through two
+ * events; its views also live only until its next read, so the socket must pause at every
+ * read. Measured on 10,000,000 rows × 20 float8 over two connections, receiving only, that
+ * path took 6.3 s of CPU against this one's 4.0 s (and 1.6 times the wall time) on the same
+ * loaded machine, so this reader keeps the socket. It checks that it finds pg's one data
+ * listener to take over, and fails the read with a message if pg's layout ever changes.
  */
 class CopyOutReader {
   readonly text: string;

@@ -3,7 +3,9 @@ import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 
 import { SqlTemplate } from '../../src/plan/sql-template.js';
 import { DesignReadError } from '../../src/source/design-read-error.js';
+import { CopyBinaryDecoder } from '../../src/source/copy-binary-decoder.js';
 import { readDesign } from '../../src/source/read-design.js';
+import { streamCopyChunks } from '../../src/source/stream-copy-chunks.js';
 import type { BlockSink, DesignReadRequest } from '../../src/source/read-design.js';
 import { withClient } from '../../src/source/with-client.js';
 import { createTestDatabase, ON_EMBEDDED, PoolTracker } from '../support/pg-database.js';
@@ -203,6 +205,52 @@ describe.skipIf(ON_EMBEDDED)('client state after an early stop', () => {
         readDesign(client, request(new SqlTemplate(['SELECT i::text, (1.0 / (5000 - i))::float8 FROM generate_series(1, 10000) i']), 'copy'), () => {}),
       );
       expect((error as DesignReadError).code).toBe('22012');
+      expect((await client.query('SELECT 1 AS one')).rows).toEqual([{ one: 1 }]);
+    } finally {
+      await client.end();
+    }
+  });
+
+  it('copy mode: a consumer that yields to the event loop before decoding each read gets every row intact', async () => {
+    // The pieces must stay intact however long the consumer takes: a reader that handed on
+    // views into a buffer its next read overwrites (pg's parse buffer, say) fails here.
+    const client = new pg.Client({ connectionString: tdb.url });
+    await client.connect();
+    try {
+      const decoder = new CopyBinaryDecoder({ keyColumns: 1, keyNames: ['k'], valueColumns: 2, valueNames: ['x', 'z'], blockRows: 4096, nonFinite: 'pass' });
+      const query = new SqlTemplate(['SELECT (i % 7)::text AS k, i::float8 AS x, (i * 0.5)::float8 AS z FROM generate_series(1, 300000) i']);
+      let expected = 1;
+      let wrong = 0;
+      const check = (b: { rows: number; values: Float64Array; keys: Int32Array }) => {
+        for (let r = 0; r < b.rows; r++, expected++) {
+          if (b.values[2 * r] !== expected || b.values[2 * r + 1] !== expected * 0.5 || decoder.keyTable[b.keys[r]!]![0] !== String(expected % 7)) wrong++;
+        }
+      };
+      let reads = 0;
+      for await (const pieces of streamCopyChunks(client, query)) {
+        reads++;
+        await new Promise((r) => setTimeout(r, 0));
+        decoder.writePieces(pieces, check);
+      }
+      decoder.end(check);
+      expect(reads).toBeGreaterThan(10);
+      expect(expected - 1).toBe(300000);
+      expect(wrong).toBe(0);
+      expect((await client.query('SELECT 1 AS one')).rows).toEqual([{ one: 1 }]);
+    } finally {
+      await client.end();
+    }
+  });
+
+  it('copy mode: a consumer that stops after the first read leaves the client at rest and reusable', async () => {
+    const client = new pg.Client({ connectionString: tdb.url });
+    await client.connect();
+    try {
+      for await (const pieces of streamCopyChunks(client, FAST)) {
+        expect(pieces.count).toBeGreaterThan(0);
+        break;
+      }
+      // The rest of the COPY is parsed by pg and dropped; the connection comes back.
       expect((await client.query('SELECT 1 AS one')).rows).toEqual([{ one: 1 }]);
     } finally {
       await client.end();

@@ -13,7 +13,16 @@ export interface ExactCase {
   /** Rows `[terms…, y(, w)]` (see {@link rowsOf}); absent for a generated case. */
   readonly rows?: readonly number[][];
   /** How a generated case's rows are made (see {@link rowsOf}). */
-  readonly generated?: { readonly seed: number; readonly rows: number; readonly coefficients: readonly number[]; readonly noise: number };
+  readonly generated?: {
+    readonly seed: number;
+    readonly rows: number;
+    readonly coefficients: readonly number[];
+    readonly noise: number;
+    /** Added to every predictor's draw (default 0). */
+    readonly offset?: number;
+    /** Where y's sum starts (default 0). */
+    readonly constant?: number;
+  };
   /** The exact least-squares solution (rational arithmetic), 40 significant digits; null for aliased terms. */
   readonly exact: {
     readonly estimates: readonly (string | null)[];
@@ -26,7 +35,8 @@ export interface ExactCase {
 
 /**
  * The rows of a case: stored, or generated as scripts/make-refinement-fixtures.py makes them
- * (Park–Miller draws over 2³¹, y summed left to right), the same doubles in both languages.
+ * (Park–Miller draws over 2³¹ plus the offset, y summed left to right from the constant), the
+ * same doubles in both languages.
  */
 export function rowsOf(c: ExactCase): readonly number[][] {
   if (c.rows !== undefined) return c.rows;
@@ -40,8 +50,8 @@ export function rowsOf(c: ExactCase): readonly number[][] {
   };
   const rows: number[][] = [];
   for (let i = 0; i < g.rows; i++) {
-    const x = g.coefficients.map(() => draw());
-    let y = 0;
+    const x = g.coefficients.map(() => (g.offset ?? 0) + draw());
+    let y = g.constant ?? 0;
     g.coefficients.forEach((c, j) => (y += c * x[j]!));
     y += (draw() - 0.5) * g.noise;
     rows.push([...x, y]);
