@@ -15,6 +15,18 @@ export interface RunStart {
   readonly toolVersion: string;
   /** Where the rows are read when not from this database (connection names and places, no password). */
   readonly readFrom?: string | null | undefined;
+  /** The design as the spec names it, for dashboards to filter on (see migration 0011). */
+  readonly design?: RunDesign;
+}
+
+/** The design of a fit as the spec names it: the `runs` columns response … segment_by. */
+export interface RunDesign {
+  readonly response: string;
+  readonly weight: string | null;
+  /** Terms, then categorical columns, then interactions (`a*b`). */
+  readonly terms: readonly string[];
+  readonly categorical: readonly string[];
+  readonly segmentBy: readonly string[];
 }
 
 /**
@@ -41,6 +53,15 @@ export async function startRun(db: Kysely<StoreDatabase>, schema: string, run: R
       tool_version: run.toolVersion,
       status: 'running',
       ...(run.readFrom == null ? {} : { read_from: run.readFrom }),
+      ...(run.design === undefined
+        ? {}
+        : {
+            response: run.design.response,
+            weight: run.design.weight,
+            terms: [...run.design.terms],
+            categorical: [...run.design.categorical],
+            segment_by: [...run.design.segmentBy],
+          }),
     })
     .returning('run_id')
     .executeTakeFirstOrThrow();

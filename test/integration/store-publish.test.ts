@@ -213,6 +213,12 @@ describe('publishRun', () => {
       watermark_from: null,
       watermark_to: null,
       notes: [],
+      // Migration 0011: runs started through startFitRun record the design; this one did not.
+      response: null,
+      weight: null,
+      terms: null,
+      categorical: null,
+      segment_by: null,
     });
     expect(run.started_at.getTime()).toBeGreaterThanOrEqual(before.getTime() - 5000);
     expect(run.ended_at!.getTime()).toBeGreaterThanOrEqual(run.started_at.getTime());
