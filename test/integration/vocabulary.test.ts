@@ -11,7 +11,7 @@ import {
   RUN_ONLY_IN_DOCUMENT,
   RUN_ROW_COLUMNS,
 } from '../../src/run/fit-document.js';
-import type { FitDocument } from '../../src/run/fit-document.js';
+import type { FitDocument, ModelDocument } from '../../src/run/fit-document.js';
 import pg from 'pg';
 import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
@@ -149,6 +149,19 @@ describe('one vocabulary for --json, the library and the result tables', () => {
     expect(dry.run.run_id).toBeNull();
     expect(dry.models.map((m) => m.coefficients.map((c) => c.estimate))).toEqual(doc.models.map((m) => m.coefficients.map((c) => c.estimate)));
     expect((await tdb.query(`select count(*)::int as n from rowfold.runs`)).rows[0].n).toBe(before);
+  });
+
+  it('holds the first keepModels models, counts them all, and hands every one to onModel as published', async () => {
+    const streamed: ModelDocument[] = [];
+    const kept = await fit({ ...SPEC, name: 'vocabulary_kept' }, { db: tdb.url, keepModels: 1, onModel: (m) => streamed.push(m) });
+    expect(kept.run.segment_count).toBe(3);
+    expect(kept.models).toHaveLength(1);
+    expect(kept.models[0]).toEqual(streamed[0]);
+    // Every model reaches onModel, in key order, equal to the --json document's.
+    expect(streamed.map((m) => m.segment_key)).toEqual(doc.models.map((m) => m.segment_key));
+    expect(streamed.map((m) => m.coefficients.map((c) => c.estimate))).toEqual(doc.models.map((m) => m.coefficients.map((c) => c.estimate)));
+    const published = await tdb.query(`select count(*)::int as n from rowfold.models where run_id = $1`, [kept.run.run_id]);
+    expect(published.rows[0].n).toBe(3);
   });
 
   it.skipIf(ON_EMBEDDED)('takes a pg pool of the caller, uses it, and leaves it open', async () => {
