@@ -304,9 +304,9 @@ describe.skipIf(!available)('reading a sharded table where it lives (issue 17; s
       await tdb.exec(`insert into growing select * from gathered where id > 12000`);
       const second = await runCli(['fit', incremental, '--db', target2.url, '--connections', connectionsFile, '--json']);
       expect(second.code, second.stderr).toBe(0);
-      const secondRun = (JSON.parse(second.stdout) as { run: { id: number; rows_read: number } }).run;
+      const secondRun = (JSON.parse(second.stdout) as { run: { run_id: number; rows_read: number } }).run;
       expect(secondRun.rows_read).toBe(12000);
-      expectSameFit(await results(target2, secondRun.id), await results(tdb, gatheredRun), 'read_from incremental');
+      expectSameFit(await results(target2, secondRun.run_id), await results(tdb, gatheredRun), 'read_from incremental');
 
       // A split run reads its partitions over read_from too, and publishes where it was started.
       const split = await driveSplit(writeSpec({ name: 'read_split', source: 'gathered', read_from: 'reader', ...MODEL, split: { partitions: 3 } }), { store: target2 });
