@@ -1,13 +1,8 @@
 import yargs from 'yargs';
 import type { Argv } from 'yargs';
-import { FitInputError } from '../fit/fit-input-error.js';
-import { PlanError } from '../plan/plan-error.js';
-import { SpecFileError } from '../run/run-fit.js';
-import { ScoreError } from '../run/score-error.js';
-import { SpecError } from '../spec/spec-error.js';
-import { ConnectionConfigError } from '../source/connection-config-error.js';
-import { ConnectionsFileError } from '../source/connections-file.js';
-import { maskSecrets } from '../source/mask-secrets.js';
+import { toolVersion } from '../common/tool-version.js';
+import { describeFailure } from '../run/error-document.js';
+import type { Failure } from '../run/error-document.js';
 import { setNoticeSink } from '../source/notices.js';
 import { CliError, ExitCode } from './exit-codes.js';
 import { demoCommand } from './demo-command.js';
@@ -25,6 +20,8 @@ const COMMANDS: readonly ((y: Argv) => Argv)[] = [fitCommand, fitCsvCommand, dem
 /**
  * Entry point of the `rowfold` command. Each command lives in its own module; this file
  * only wires them and maps errors to exit codes and messages (with any password masked).
+ * With `--json`, a failure is also one JSON document on stdout (`{"error": {…}}`, see
+ * {@link describeFailure}) so that a pipeline always has something to parse.
  */
 export async function main(argv: string[]): Promise<number> {
   setNoticeSink((message) => process.stderr.write(`rowfold: ${message}\n`));
@@ -33,7 +30,7 @@ export async function main(argv: string[]): Promise<number> {
     .strict()
     .demandCommand(1, 'name a command')
     .help()
-    .version(false)
+    .version(toolVersion())
     .fail((msg, err) => {
       // Throwing stops yargs before any handler runs; the catch below prints it.
       throw err ?? new CliError(`${msg}\n(see rowfold --help)`, ExitCode.usage);
@@ -43,30 +40,25 @@ export async function main(argv: string[]): Promise<number> {
     await cli.parseAsync();
     return ExitCode.ok;
   } catch (e) {
-    const { code, text } = describeFailure(e);
-    process.stderr.write(`rowfold: ${maskSecrets(text)}\n`);
-    return code;
+    const failure = cliFailure(e);
+    process.stderr.write(`rowfold: ${failure.text}\n`);
+    if (wantsJson(argv)) process.stdout.write(JSON.stringify(failure.document) + '\n');
+    return failure.exitCode;
   }
 }
 
-/** System error codes of a connection that could not be made. */
-const CONNECT_CODES = new Set(['ECONNREFUSED', 'ENOTFOUND', 'EHOSTUNREACH', 'ENETUNREACH', 'ETIMEDOUT', 'EAI_AGAIN']);
+/** Whether the command line asked for JSON (also when parsing it failed, so the failure is JSON too). */
+function wantsJson(argv: readonly string[]): boolean {
+  const i = argv.indexOf('--');
+  return (i < 0 ? argv : argv.slice(0, i)).some((a) => a === '--json' || a === '--json=true');
+}
 
-function describeFailure(e: unknown): { code: number; text: string } {
-  const message = e instanceof Error ? e.message : String(e);
-  if (e instanceof CliError) return { code: e.exitCode, text: message };
-  if (e instanceof SpecFileError) return { code: ExitCode.usage, text: message };
-  if (e instanceof ConnectionConfigError) return { code: ExitCode.usage, text: message };
-  if (e instanceof ConnectionsFileError) return { code: ExitCode.usage, text: message };
-  if (e instanceof ScheduleError) return { code: ExitCode.usage, text: message };
-  if (e instanceof ScoreError) return { code: ExitCode.usage, text: `cannot score: ${message}` };
-  if (e instanceof SpecError) return { code: ExitCode.usage, text: `bad spec: ${message}` };
-  if (e instanceof PlanError) return { code: ExitCode.usage, text: `spec does not fit the source: ${message}` };
-  if (e instanceof FitInputError) return { code: ExitCode.failed, text: `bad data: ${message}` };
-  const code = (e as { code?: unknown }).code;
-  if (typeof code !== 'string') return { code: ExitCode.failed, text: `error: ${message}` };
-  // A SQLSTATE is five digits or capitals; anything else is the system's code for a socket that failed.
-  if (/^[0-9A-Z]{5}$/.test(code)) return { code: ExitCode.failed, text: `error: ${message} (SQLSTATE ${code})` };
-  const hint = CONNECT_CODES.has(code) ? '; cannot reach the database: is the server running, and are its host and port right?' : '';
-  return { code: ExitCode.failed, text: `error: ${message} (${code})${hint}` };
+function cliFailure(e: unknown): Failure {
+  if (e instanceof CliError) {
+    const f = describeFailure(e, true);
+    const document = { error: { ...f.document.error, type: e.exitCode === ExitCode.usage ? 'UsageError' : 'CommandError', exit_code: e.exitCode } };
+    return { exitCode: e.exitCode, text: f.text, document };
+  }
+  if (e instanceof ScheduleError) return describeFailure(e, true);
+  return describeFailure(e);
 }

@@ -31,6 +31,7 @@ export function demoCommand(y: Argv): Argv {
         .option('out', { type: 'string', default: DEFAULT_REPORT, describe: 'HTML report file' })
         .option('report', { type: 'boolean', default: true, describe: 'write the HTML report (--no-report: skip it)' })
         .option('spec', { type: 'string', default: DEMO_SPEC_PATH, describe: 'where to write the fit spec' })
+        .option('schema', { type: 'string', describe: "result schema of the fit (default: the demo spec's, rowfold)" })
         .option('json', { type: 'boolean', default: false, describe: 'print exactly one JSON document on stdout' }),
     async (args) => {
       wholeNumber('--feeders', args.feeders, 1, 999);
@@ -53,6 +54,7 @@ export function demoCommand(y: Argv): Argv {
         days: args.days,
         seed: args.seed,
         specPath: args.spec,
+        schema: args.schema,
         reportPath: args.report ? args.out : null,
         onProgress: args.json ? undefined : show,
       }).finally(() => line.done());

@@ -1,6 +1,7 @@
 import { formatCount } from '../report/format-number.js';
 import { formatSegmentsTable } from '../report/segments-table.js';
-import { solutionToJson } from '../report/solution-json.js';
+import { fitDocument } from '../run/fit-document.js';
+import { runOutcome } from '../run/run-fit.js';
 import type { DemoCoverage } from '../run/demo/demo-coverage.js';
 import { DEMO_SCHEMA } from '../run/demo/demo-spec.js';
 import { COOLING_BASE_C, DEMO_TERMS, HEATING_BASE_C } from '../run/demo/feeder-profiles.js';
@@ -58,6 +59,7 @@ export function demoText(r: RunDemoResult, specPath: string): string {
 export function demoJson(r: RunDemoResult, specPath: string): unknown {
   const s = r.scenario;
   const f = r.fit;
+  const document = fitDocument(runOutcome(f));
   return {
     scenario: {
       feeders: s.feeders.length,
@@ -74,16 +76,7 @@ export function demoJson(r: RunDemoResult, specPath: string): unknown {
     },
     database: r.databaseKind,
     seconds: { generate: r.generateSeconds, open: r.openSeconds, load: r.loadSeconds, fit: r.fitSeconds, report: r.reportSeconds },
-    run: {
-      id: f.runId,
-      fit: f.spec.name,
-      connection: f.connection,
-      rows_read: f.rowsRead,
-      rows_used: f.rowsUsed,
-      rows_skipped: f.rowsSkipped,
-      segments: f.modelCount,
-      seconds: f.seconds,
-    },
+    run: document.run,
     coverage: {
       confidence: r.coverage.confidence,
       covered: r.coverage.covered,
@@ -93,7 +86,7 @@ export function demoJson(r: RunDemoResult, specPath: string): unknown {
     },
     spec: specPath,
     report: r.reportPath,
-    models: f.models.map((m) => ({ segment: m.segment, ...solutionToJson(m.solution) })),
+    models: document.models,
     true_coefficients: trueCoefficientRows(s).map((t) => ({ feeder_id: t.feederId, term: t.term, value: t.value })),
   };
 }

@@ -1,12 +1,7 @@
-/** Process exit codes of the rowfold command. */
-export const ExitCode = {
-  /** The command did what was asked. */
-  ok: 0,
-  /** The fit (or another operation) failed: bad data, a database error. */
-  failed: 1,
-  /** Bad usage or a bad spec: nothing was attempted. */
-  usage: 2,
-} as const;
+import { EXIT_CODE } from '../run/error-document.js';
+
+/** Process exit codes of the rowfold command (ok 0, failed 1, usage 2). */
+export const ExitCode = EXIT_CODE;
 
 /** An error that should end the process with a given exit code and a plain message. */
 export class CliError extends Error {

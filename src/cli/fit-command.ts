@@ -1,17 +1,17 @@
 import type { Argv } from 'yargs';
 import { INTERCEPT_TERM } from '../fit/fit-solution.js';
-import { solutionToJson } from '../report/solution-json.js';
 import { formatSegmentsTable } from '../report/segments-table.js';
 import { formatSolution } from '../report/terminal-summary.js';
 import { formatCount } from '../report/format-number.js';
 import { CoefficientDistribution } from '../report/coefficient-distribution.js';
-import { runFitExclusive } from '../run/run-fit-exclusive.js';
+import { fitRun } from '../run/fit-api.js';
 import { ModelSpool } from './model-spool.js';
-import type { RunFitResult } from '../run/run-fit.js';
+import type { FitDocument, ModelDocument } from '../run/fit-document.js';
+import type { FittedModel, RunFitResult } from '../run/run-fit.js';
 import { CliError, ExitCode } from './exit-codes.js';
 import { progressReporter } from './progress-reporter.js';
 
-/** `rowfold fit SPEC [--db URL] [--parallel N] [--threads N] [--read copy|rows] [--json] [--dry-run]`. */
+/** `rowfold fit SPEC [--db URL] [--schema NAME] [--parallel N] [--threads N] [--read copy|rows] [--json] [--dry-run]`. */
 export function fitCommand(y: Argv): Argv {
   return y.command(
     'fit <spec>',
@@ -25,6 +25,7 @@ export function fitCommand(y: Argv): Argv {
             'PostgreSQL URL, or embedded:FOLDER (default: DATABASE_URL, then the PG* variables, then the embedded database in .rowfold/db)',
         })
         .option('connections', { type: 'string', describe: 'connections file (YAML, name: URL) for shards and read_from (default: ROWFOLD_CONNECTIONS)' })
+        .option('schema', { type: 'string', describe: "result schema, in place of the spec's schema (default: the spec's, else rowfold)" })
         .option('parallel', { type: 'number', default: 1, describe: 'read N disjoint partitions over N connections' })
         .option('threads', {
           type: 'number',
@@ -52,76 +53,42 @@ export function fitCommand(y: Argv): Argv {
         throw new CliError(`--threads must be a whole number from 0 to 64, got ${threads}`, ExitCode.usage);
       }
       const progress = progressReporter();
-      let result: RunFitResult;
+      let run: { document: FitDocument; result: RunFitResult };
       // --json: every model is written to a spool file as it is published, and the document
       // streamed from it afterwards (a million models never become one string).
       const spool = args.json && !args.dryRun ? await ModelSpool.open() : undefined;
       const distribution = new CoefficientDistribution();
       try {
-        result = await runFitExclusive({
-          keepModels: SHOWN_MODELS,
-          onModel: (m) => {
-            spool?.add(m);
-            if (!args.json) distribution.add(m.solution);
-          },
-          specPath: args.spec,
+        // The command is a thin layer over the library's fit(): the same run, the same vocabulary.
+        run = await fitRun(args.spec, {
           db: args.db,
+          schema: args.schema,
           connections: args.connections,
+          keepModels: SHOWN_MODELS,
+          ...(spool === undefined ? {} : { onModel: (m: ModelDocument) => spool.add(m) }),
+          ...(args.json ? {} : { onFittedModel: (m: FittedModel) => distribution.add(m.solution) }),
           parallel,
-          threads,
-          read: args.read,
-          accuracy: args.accuracy,
+          ...(threads === undefined ? {} : { threads }),
+          ...(args.read === undefined ? {} : { read: args.read }),
+          ...(args.accuracy === undefined ? {} : { accuracy: args.accuracy }),
           dryRun: args.dryRun,
           full: args.full,
-          onProgress: args.json ? undefined : progress.update,
+          ...(args.json ? {} : { onProgress: (p) => progress.update({ rowsRead: p.rows_read, segments: p.segment_count, seconds: p.seconds }) }),
         });
         if (spool !== undefined) {
-          const head = JSON.stringify(runJson(result));
-          // The run object, then the models array streamed from the spool.
+          // The run object of the document, then its models array streamed from the spool.
+          const head = JSON.stringify({ run: run.document.run });
           await spool.writeDocument(head.slice(0, -1) + ',"models":[', ']}\n');
         }
       } finally {
         progress.done();
         await spool?.close();
       }
+      const { result } = run;
       if (args.dryRun) process.stdout.write(args.json ? JSON.stringify(dryRunJson(result)) + '\n' : dryRunText(result));
       else if (!args.json) process.stdout.write(runText(result, distribution));
     },
   );
-}
-
-function runJson(r: RunFitResult): unknown {
-  return {
-    run: {
-      id: r.runId,
-      fit: r.spec.name,
-      status: 'succeeded',
-      rows_read: r.rowsRead,
-      rows_used: r.rowsUsed,
-      rows_skipped: r.rowsSkipped,
-      segments: r.modelCount,
-      seconds: r.seconds,
-      ...(r.refit === undefined ? {} : refitJson(r.refit)),
-    },
-  };
-}
-
-function refitJson(refit: NonNullable<RunFitResult['refit']>): Record<string, unknown> {
-  return {
-    refit: refit.record.refit,
-    watermark_from: refit.record.watermarkFrom,
-    watermark_to: refit.record.watermarkTo,
-    notes: refit.record.notes,
-    drift: refit.drift.map((d) => ({
-      segment: d.segment,
-      flagged: d.test.flagged,
-      flagged_terms: d.test.flaggedTerms,
-      test: d.test.test,
-      f: d.test.f,
-      f_p: d.test.fP,
-      max_abs_z: d.test.maxAbsZ,
-    })),
-  };
 }
 
 /** Up to this many models the text output shows each in full; above, a line per model. */
@@ -177,7 +144,9 @@ function runText(r: RunFitResult, distribution: CoefficientDistribution): string
 
 function dryRunJson(r: RunFitResult): unknown {
   return {
-    fit: r.spec.name,
+    fit_name: r.spec.name,
+    schema: r.spec.schema,
+    database: r.connection,
     columns: r.plan.columns,
     levels: r.plan.levels,
     queries: r.plan.queries.map((q, i) => {

@@ -1,7 +1,8 @@
 import type { Argv } from 'yargs';
 import { formatSolution } from '../report/terminal-summary.js';
 import { fitCsvFile } from '../run/fit-csv-file.js';
-import { solutionToJson } from '../report/solution-json.js';
+import { fitDocument } from '../run/fit-document.js';
+import { toolVersion } from '../common/tool-version.js';
 import { CsvInputError } from '../source/csv-input-error.js';
 import { CliError, ExitCode } from './exit-codes.js';
 
@@ -27,6 +28,7 @@ export function fitCsvCommand(y: Argv): Argv {
       const named = [...terms, args.response, ...(args.weight === undefined ? [] : [args.weight])];
       const twice = named.find((c, i) => named.indexOf(c) !== i);
       if (twice !== undefined) throw new CliError(`column ${twice} is named twice (among --terms, --response and --weight)`, ExitCode.usage);
+      const started = performance.now();
       const { solution, stats } = await fitCsvFile({
         path: args.file,
         response: args.response,
@@ -40,7 +42,23 @@ export function fitCsvCommand(y: Argv): Argv {
         throw e;
       });
       if (args.json) {
-        process.stdout.write(JSON.stringify({ rows_read: stats.rowsRead, rows_skipped: stats.rowsSkipped, model: solutionToJson(solution) }) + '\n');
+        // The document of `rowfold fit --json`: nothing is published, so no run id, schema or database.
+        const rowsSkipped = Object.fromEntries(Object.entries(stats.emptyByColumn).filter(([, n]) => n > 0).map(([c, n]) => [`null:${c}`, n]));
+        if (solution.zeroWeightRows > 0) rowsSkipped.zero_weight = solution.zeroWeightRows;
+        const document = fitDocument({
+          runId: null,
+          fitName: args.file,
+          schema: null,
+          database: null,
+          rowsRead: stats.rowsRead,
+          rowsUsed: solution.rows,
+          rowsSkipped,
+          seconds: (performance.now() - started) / 1000,
+          toolVersion: toolVersion(),
+          design: { response: args.response, weight: args.weight ?? null, terms, categorical: [], segmentBy: [] },
+          models: [{ segment: null, segmentKey: '', solution, method: 'qr', passes: 1 }],
+        });
+        process.stdout.write(JSON.stringify(document) + '\n');
         return;
       }
       const skipped = Object.entries(stats.emptyByColumn).map(([c, n]) => `${n} empty in ${c}`);

@@ -6,9 +6,7 @@ import { join } from 'node:path';
 import { Writable } from 'node:stream';
 import { pipeline } from 'node:stream/promises';
 import { writeSync } from 'node:fs';
-import { residualsToJson } from '../report/residuals-json.js';
-import { solutionToJson } from '../report/solution-json.js';
-import type { FittedModel } from '../run/run-fit.js';
+import type { ModelDocument } from '../run/fit-document.js';
 
 /** Bytes of JSON gathered before they are written to the spool file. */
 const FLUSH_BYTES = 1 << 20;
@@ -33,14 +31,9 @@ export class ModelSpool {
     return new ModelSpool(dir, await open(join(dir, 'models.json'), 'w+'));
   }
 
-  /** Appends one model (synchronously: it is called from the publishing loop). */
-  add(m: FittedModel): void {
-    const text = (this.count++ === 0 ? '' : ',') + JSON.stringify({
-      segment: m.segment,
-      ...solutionToJson(m.solution),
-      passes: m.passes,
-      ...(m.residuals === undefined ? {} : { residuals: residualsToJson(m.residuals) }),
-    });
+  /** Appends one model document (synchronously: it is called from the publishing loop). */
+  add(m: ModelDocument): void {
+    const text = (this.count++ === 0 ? '' : ',') + JSON.stringify(m);
     this.buffer.push(text);
     this.bytes += text.length;
     if (this.bytes >= FLUSH_BYTES) this.flush();

@@ -1,9 +1,7 @@
 import type { Argv } from 'yargs';
 import { formatCount } from '../report/format-number.js';
-import { openDatabase } from '../source/open-database.js';
-import { createStoreDb } from '../store/create-store-db.js';
-import { listRuns } from '../store/list-runs.js';
-import type { RunSummary } from '../store/list-runs.js';
+import { fitRuns } from '../run/read-results.js';
+import type { RunRowDocument } from '../run/fit-document.js';
 import { CliError, ExitCode } from './exit-codes.js';
 
 /** `rowfold runs FIT [--db URL] [--schema NAME] [--limit N] [--json]`: past runs, newest first. */
@@ -22,53 +20,31 @@ export function runsCommand(y: Argv): Argv {
       if (!Number.isInteger(args.limit) || args.limit < 1) {
         throw new CliError(`--limit must be a whole number of at least 1, got ${args.limit}`, ExitCode.usage);
       }
-      const database = await openDatabase({ db: args.db, env: process.env, sessions: 1 });
-      const db = createStoreDb(database.dialect());
-      let runs: RunSummary[];
-      try {
-        runs = await listRuns(db, args.schema, args.fit, args.limit);
-      } finally {
-        await db.destroy();
-        await database.close();
+      const list = await fitRuns(args.fit, { db: args.db, schema: args.schema, limit: args.limit });
+      // As `report` of a fit that never ran: nothing to show is a failure (exit 1), not an empty success.
+      if (list.runs.length === 0) {
+        throw new CliError(`no runs of fit ${args.fit} in schema ${args.schema} [database: ${list.database}]`, ExitCode.failed);
       }
       if (args.json) {
-        process.stdout.write(JSON.stringify({ fit: args.fit, runs: runs.map(runJson) }) + '\n');
+        process.stdout.write(JSON.stringify(list) + '\n');
         return;
       }
-      if (runs.length === 0) {
-        process.stdout.write(`no runs of fit ${args.fit} in schema ${args.schema} (${database.display})\n`);
-        return;
-      }
-      process.stdout.write(runsText(runs));
+      process.stdout.write(runsText(list.runs));
     },
   );
 }
 
-function runJson(r: RunSummary): unknown {
-  return {
-    id: r.runId,
-    status: r.status,
-    started_at: r.startedAt.toISOString(),
-    ended_at: r.endedAt?.toISOString() ?? null,
-    seconds: r.seconds,
-    rows_read: r.rowsRead,
-    rows_used: r.rowsUsed,
-    segments: r.segments,
-    error: r.error,
-  };
-}
-
-function runsText(runs: readonly RunSummary[]): string {
+function runsText(runs: readonly RunRowDocument[]): string {
   const header = ['run', 'status', 'started (UTC)', 'seconds', 'rows read', 'rows used', 'segments'];
   const cell = (n: number | null) => (n === null ? '' : formatCount(n));
   const body = runs.map((r) => [
-    String(r.runId),
+    String(r.run_id),
     r.status,
-    r.startedAt.toISOString().replace('T', ' ').slice(0, 19),
+    r.started_at.replace('T', ' ').slice(0, 19),
     r.seconds === null ? '' : r.seconds.toFixed(2),
-    cell(r.rowsRead),
-    cell(r.rowsUsed),
-    cell(r.segments),
+    cell(r.rows_read),
+    cell(r.rows_used),
+    cell(r.segment_count),
   ]);
   const widths = header.map((h, j) => Math.max(h.length, ...body.map((row) => row[j]!.length)));
   const line = (row: readonly string[]) =>
@@ -76,7 +52,7 @@ function runsText(runs: readonly RunSummary[]): string {
   const out = [line(header)];
   runs.forEach((r, i) => {
     out.push(line(body[i]!));
-    if (r.error !== null) out.push(`    error: ${r.error.replace(/\n/g, '\n    ')}`);
+    if (r.error_message !== null) out.push(`    error: ${r.error_message.replace(/\n/g, '\n    ')}`);
   });
   return out.join('\n') + '\n';
 }

@@ -5,7 +5,7 @@ import { fitJobRunner } from '../schedule/fit-job-runner.js';
 import { loadFitSchedules } from '../schedule/fit-schedule.js';
 import { serveFits } from '../schedule/serve-fits.js';
 import { resolveConnection } from '../source/connection-target.js';
-import { maskSecrets } from '../source/mask-secrets.js';
+import { maskSecrets } from '../common/mask-secrets.js';
 import { EMBEDDED_PREFIX } from '../source/open-database.js';
 import { CliError, ExitCode } from './exit-codes.js';
 

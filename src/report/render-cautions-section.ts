@@ -23,7 +23,7 @@ export function renderCautionsSection(models: readonly ReportModel[]): string {
       'Predicting for values outside it (a hotter day than any in the data, a segment that was not fitted) is extrapolation the fit cannot vouch for.</li>',
     '<li><strong>Standard errors rest on assumptions.</strong> Standard errors, t, p and intervals assume errors that are independent of each other, ' +
       'of constant variance, around a relation that is linear in the terms. Rows close in time are often correlated and spread often grows with level; ' +
-      'then the intervals are too narrow and the p-values too small. The residual plots above help check: look for curves, funnels and long tails.</li>',
+      'then the intervals are too narrow and the p-values too small. The residual charts above help check: medians that wander from zero, bands that widen, and more large errors than the normal gives.</li>',
     `<li><strong>Many p-values, some small by chance.</strong> This run reports ${formatCount(pValues)} p-value${pValues === 1 ? '' : 's'} of terms ` +
       `across ${formatCount(models.length)} segment${models.length === 1 ? '' : 's'}. Even if no term mattered anywhere, about ${byChance} of them would fall below 0.05. ` +
       'A term that looks significant in a few segments only is weak evidence unless the pattern is expected or holds up in new data.</li>',

@@ -70,30 +70,61 @@ function renderModel(m: ReportModel, index: number, open: boolean): string {
   return out.join('\n');
 }
 
+/**
+ * The model's statistics in groups, each answering one question: how closely it fits, whether
+ * its terms help jointly, what to compare it with other models by, and what the design was.
+ * Every `data-stat` keeps its value for readers of the HTML.
+ */
 function renderStats(m: ReportModel): string {
-  const stats: [string, string, number | null][] = [
-    ['rows', formatCount(m.rows), m.rows],
-    ['rank', `${m.rank} of ${m.coefficients.length}`, m.rank],
-    ['residual df', formatCount(m.dfResidual), m.dfResidual],
-    ['R²', formatNumber(m.r2, 5), m.r2],
-    ['adjusted R²', formatNumber(m.r2Adjusted, 5), m.r2Adjusted],
-    ['σ (residual SE)', formatNumber(m.sigma, 5), m.sigma],
-    ['F', m.f === null ? '–' : `${formatNumber(m.f, 5)} on ${formatNumber(m.fDf1)} and ${formatNumber(m.fDf2)} df`, m.f],
-    ['p of F', formatP(m.fP), m.fP],
-    ['log-likelihood', formatNumber(m.logLik, 7), m.logLik],
-    ['AIC', formatNumber(m.aic, 7), m.aic],
-    ['BIC', formatNumber(m.bic, 7), m.bic],
-    ['condition number', formatNumber(m.conditionNumber, 4), m.conditionNumber],
+  type Stat = [string, string, number | null];
+  const baseline = m.intercept ? 'vs intercept alone' : 'vs no terms';
+  const groups: [string, Stat[]][] = [
+    [
+      'fit',
+      [
+        ['R²', formatNumber(m.r2, 5), m.r2],
+        ['adjusted R²', formatNumber(m.r2Adjusted, 5), m.r2Adjusted],
+        ['σ (residual SE)', formatNumber(m.sigma, 5), m.sigma],
+        ['residual df', formatCount(m.dfResidual), m.dfResidual],
+      ],
+    ],
+    [
+      `terms jointly, ${baseline}`,
+      [
+        ['F', m.f === null ? '–' : `F(${formatNumber(m.fDf1)}, ${formatNumber(m.fDf2)}) = ${formatNumber(m.f, 5)}`, m.f],
+        ['p of F', formatP(m.fP), m.fP],
+      ],
+    ],
+    [
+      'to compare models',
+      [
+        ['log-likelihood', formatNumber(m.logLik, 7), m.logLik],
+        ['AIC', formatNumber(m.aic, 7), m.aic],
+        ['BIC', formatNumber(m.bic, 7), m.bic],
+      ],
+    ],
+    [
+      'design',
+      [
+        ['rows', formatCount(m.rows), m.rows],
+        ...(m.zeroWeightRows > 0 ? [['zero-weight rows', formatCount(m.zeroWeightRows), m.zeroWeightRows] as Stat] : []),
+        ['rank', `${m.rank} of ${m.coefficients.length}`, m.rank],
+        ['condition number', formatNumber(m.conditionNumber, 4), m.conditionNumber],
+      ],
+    ],
   ];
-  if (m.zeroWeightRows > 0) stats.splice(1, 0, ['zero-weight rows', formatCount(m.zeroWeightRows), m.zeroWeightRows]);
-  const cells = stats.map(
-    ([k, text, v]) => `<div data-stat="${escapeHtml(k)}" data-value="${v === null ? '' : String(v)}"><dt>${escapeHtml(k)}</dt><dd>${escapeHtml(text)}</dd></div>`,
+  const cell = ([k, text, v]: Stat) =>
+    `<div data-stat="${escapeHtml(k)}" data-value="${v === null ? '' : String(v)}"><dt>${escapeHtml(k === 'F' ? 'test' : k)}</dt><dd>${escapeHtml(text)}</dd></div>`;
+  const out = groups.map(([title, stats]) => `<div class="stat-group"><h4>${escapeHtml(title)}</h4><dl class="stats">${stats.map(cell).join('')}</dl></div>`);
+  const design = out.pop()!;
+  out.push(
+    design.replace(
+      '</dl></div>',
+      `<div><dt>method</dt><dd>${escapeHtml(m.method)}</dd></div>` +
+        `<div data-stat="aliased terms"><dt>aliased terms</dt><dd>${m.aliasedTerms.length === 0 ? 'none' : m.aliasedTerms.map(escapeHtml).join(', ')}</dd></div></dl></div>`,
+    ),
   );
-  cells.push(`<div><dt>method</dt><dd>${escapeHtml(m.method)}</dd></div>`);
-  cells.push(
-    `<div data-stat="aliased terms"><dt>aliased terms</dt><dd>${m.aliasedTerms.length === 0 ? 'none' : m.aliasedTerms.map(escapeHtml).join(', ')}</dd></div>`,
-  );
-  return `<dl class="stats">${cells.join('')}</dl>`;
+  return `<div class="stat-groups">${out.join('')}</div>`;
 }
 
 function renderCoefficients(coefficients: readonly ReportCoefficient[], confidence: number): string {

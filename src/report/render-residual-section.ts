@@ -1,18 +1,20 @@
 import { escapeHtml } from './escape-html.js';
 import { formatCount } from './format-number.js';
-import { normalQuantileChartSpec } from './normal-quantile-chart.js';
-import { normalQuantilePoints } from './normal-quantile-points.js';
 import type { ReportModel } from './report-run.js';
 import { renderFigure } from './render-figure.js';
-import { residualFittedChartSpec } from './residual-fitted-chart.js';
-import type { ResidualSample } from './sample-residuals.js';
+import { residualBandChartSpec } from './residual-band-chart.js';
+import { normalBins, residualBands } from './residual-summaries.js';
+import { residualTailChartSpec } from './residual-tail-chart.js';
+import type { ResidualSample } from './residual-points.js';
 
 /** The residual sample of the chosen segment, or why there is none. */
 export type ResidualOutcome = { readonly sample: ResidualSample } | { readonly problem: string };
 
 /**
- * Residual plots of one segment from a random sample of its rows: residuals against fitted
- * values, and a normal quantile plot of the standardised residuals. States how the sample
+ * Residual charts of one segment from a random sample of its rows: the spread of the
+ * residuals along the fitted range in slices of equal count, and the standardised residuals
+ * counted in half-σ intervals beside what a normal distribution would give. Both summarise
+ * rather than plot every row, so they read the same at any sample size. States how the sample
  * was drawn and what was left out of it; when the rows could not be read, says why.
  */
 export async function renderResidualSection(model: ReportModel, outcome: ResidualOutcome): Promise<string> {
@@ -46,24 +48,24 @@ export async function renderResidualSection(model: ReportModel, outcome: Residua
   out.push('<div class="charts">');
   out.push(
     await renderFigure(
-      residualFittedChartSpec(s.points, residualTitle),
-      'residuals against fitted values',
-      'Orange: a local regression (loess) through the points. Look for a curve (the relation is not linear in the terms) or a funnel (the spread changes with the level).',
-      'chart-residual-fitted',
+      residualBandChartSpec(residualBands(s.points), residualTitle, s.points.length),
+      'residual spread across the fitted range',
+      'Each slice holds about the same number of rows. Dots (medians) away from the dashed zero line: the relation is not linear in the terms. Bands that widen or narrow from left to right: the spread of the errors changes with the level.',
+      'chart-residual-bands',
     ),
   );
   const standardized = s.points.map((p) => p.standardized).filter((v): v is number => v !== null);
   if (standardized.length > 0) {
     out.push(
       await renderFigure(
-        normalQuantileChartSpec(normalQuantilePoints(standardized)),
-        'normal quantile plot of the residuals',
-        'Grey: where residuals from a normal distribution would lie. Points along it: residuals close to normal; ends bending away: heavier or lighter tails; a bow: skew.',
-        'chart-normal-quantile',
+        residualTailChartSpec(normalBins(standardized)),
+        'standardised residuals beside the normal',
+        'Bars above the dots in the outer intervals: more large errors than a normal distribution gives (outliers, heavy tails), which makes p-values and intervals too optimistic. One side taller than the other: skew.',
+        'chart-residual-tails',
       ),
     );
   } else {
-    out.push('<p class="notice">The model has no residual standard error (no residual degrees of freedom): no normal quantile plot.</p>');
+    out.push('<p class="notice">The model has no residual standard error (no residual degrees of freedom): residuals cannot be standardised.</p>');
   }
   out.push('</div>', '</section>');
   return out.join('\n');

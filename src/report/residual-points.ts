@@ -32,6 +32,15 @@ export interface ResidualPoints {
   readonly vanishedTerms: readonly string[];
 }
 
+/** A random sample of one segment's rows with fitted values and residuals. */
+export interface ResidualSample extends ResidualPoints {
+  /** Most rows asked for. */
+  readonly limit: number;
+  /** Rows the sampling query returned. */
+  readonly rowsRead: number;
+  readonly weighted: boolean;
+}
+
 /**
  * Computes fitted = Xβ with the stored coefficients (an aliased term counts as 0, the
  * intercept column is 1) and the residual y − fitted of each row of the design query,

@@ -2,6 +2,32 @@ import type { FitSolution } from '../fit/fit-solution.js';
 import { formatCount, formatNumber, formatP } from './format-number.js';
 
 /**
+ * The model's statistics in three labelled lines, each answering one question a reader
+ * has of a model at a glance: how closely it fits (R², adjusted R², the residual σ and the
+ * residual degrees of freedom), whether its terms help jointly (the overall F test against
+ * the intercept alone, or against nothing without an intercept), and what to compare it with
+ * other models by (log-likelihood, AIC, BIC), with the condition number beside them.
+ *
+ * @example
+ * statisticsLines(fit);
+ * // ['  fit      R² 0.9744 · adjusted 0.9742 · residual σ 0.28276 · 247 residual df',
+ * //  '  joint    the terms against the intercept alone: F(2, 247) = 4703.1 · p 2.5e-197',
+ * //  '  compare  log-likelihood -37.43601 · AIC 82.87201 · BIC 96.95786 · condition 4.88']
+ */
+export function statisticsLines(fit: FitSolution): string[] {
+  const baseline = fit.intercept ? 'the terms against the intercept alone' : 'the terms against none (no intercept)';
+  const joint =
+    fit.f === null
+      ? `${baseline}: no F test (no residual df or no terms)`
+      : `${baseline}: F(${formatNumber(fit.fDf1)}, ${formatNumber(fit.fDf2)}) = ${formatNumber(fit.f, 5)} · p ${formatP(fit.fP)}`;
+  return [
+    `  fit      R² ${formatNumber(fit.r2, 4)} · adjusted ${formatNumber(fit.r2Adjusted, 4)} · residual σ ${formatNumber(fit.sigma, 5)} · ${formatCount(fit.dfResidual)} residual df`,
+    `  joint    ${joint}`,
+    `  compare  log-likelihood ${formatNumber(fit.logLik, 7)} · AIC ${formatNumber(fit.aic, 7)} · BIC ${formatNumber(fit.bic, 7)} · condition ${formatNumber(fit.condition, 3)}`,
+  ];
+}
+
+/**
  * A compact plain-text summary of one solved model: a header line with the fit
  * statistics and a coefficient table. Aliased terms are listed as such, never with
  * numbers.
@@ -13,16 +39,7 @@ export function formatSolution(title: string, fit: FitSolution): string {
   const out: string[] = [];
   const level = `${Math.round(fit.confidence * 1000) / 10}%`;
   out.push(`▸ ${title}  ·  ${formatCount(fit.rows)} rows  ·  rank ${fit.rank}/${fit.coefficients.length}  ·  ${fit.status}`);
-  if (fit.status === 'ok') {
-    const f =
-      fit.f === null ? '' : `  F ${formatNumber(fit.f, 5)} on ${fit.fDf1}, ${fit.fDf2} df (p ${formatP(fit.fP)})`;
-    out.push(
-      `  R² ${formatNumber(fit.r2, 4)}  adj. ${formatNumber(fit.r2Adjusted, 4)}  σ ${formatNumber(fit.sigma, 5)}${f}`,
-    );
-    out.push(
-      `  log-lik ${formatNumber(fit.logLik, 7)}  AIC ${formatNumber(fit.aic, 7)}  BIC ${formatNumber(fit.bic, 7)}  condition ${formatNumber(fit.condition, 3)}`,
-    );
-  }
+  if (fit.status === 'ok') out.push(...statisticsLines(fit));
   for (const note of fit.notes) out.push(`  note: ${note}`);
   if (fit.status === 'too_few_rows' || fit.status === 'no_rows') return out.join('\n');
 

@@ -10,9 +10,11 @@ import { resolveLevels } from '../plan/resolve-levels.js';
 import type { CategoricalLevels } from '../plan/resolve-levels.js';
 import { LEAF_PARTITIONS_SQL, leafPartitions } from '../plan/shard-layout.js';
 import type { LeafPartition } from '../plan/shard-layout.js';
-import { sourceTableName } from '../plan/source-relation.js';
 import { connectionNamed, NO_CONNECTIONS } from '../source/connections-file.js';
 import type { Connections } from '../source/connections-file.js';
+import { sourceRelation, sourceTableName } from '../plan/source-relation.js';
+import { SqlTemplate } from '../plan/sql-template.js';
+import { didYouMean } from '../spec/did-you-mean.js';
 import type { DbSession } from '../source/database.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { describeQuery, queryAll } from '../source/query-helpers.js';
@@ -167,6 +169,26 @@ async function shardLevels(
 }
 
 /**
+ * For an undefined column (SQLSTATE 42703), the nearest column the source has, as
+ * `; did you mean temp_c?` (the source's columns are listed when none is near), else ''.
+ */
+async function columnHint(client: DbSession, spec: FitSpec, error: unknown): Promise<string> {
+  if ((error as { code?: unknown } | null)?.code !== '42703') return '';
+  const missing = /column "?(?:[^".\s]+\.)?([^"\s]+)"? does not exist/.exec(error instanceof Error ? error.message : '')?.[1];
+  if (missing === undefined) return '';
+  let columns: string[];
+  try {
+    columns = (await describeQuery(client, SqlTemplate.join(['SELECT * FROM ', sourceRelation(spec)]))).map((c) => c.name);
+  } catch {
+    return '';
+  }
+  const near = didYouMean(missing, columns);
+  if (near !== undefined) return `; did you mean ${near}?`;
+  const shown = columns.slice(0, 20).join(', ') + (columns.length > 20 ? ', …' : '');
+  return columns.length > 0 ? `; the source has ${shown}` : '';
+}
+
+/**
  * The probe of all expressions failed: probe the source alone, then each expression, to
  * name the spec key at fault in the error.
  */
@@ -186,7 +208,8 @@ async function locateProbeFailure(
     try {
       await describeQuery(client, probeQuery(spec, [expr]));
     } catch (e) {
-      return new PlanError(expr.key, `${expr.role} ${expr.name} does not evaluate over the source: ${reason(e)}`, { cause: e });
+      const hint = await columnHint(client, spec, e);
+      return new PlanError(expr.key, `${expr.role} ${expr.name} does not evaluate over the source: ${reason(e)}${hint}`, { cause: e });
     }
   }
   return error instanceof Error ? error : new Error(String(error));

@@ -4,7 +4,7 @@ import type { ReadSite } from '../plan/shard-layout.js';
 import { connectionNamed } from '../source/connections-file.js';
 import type { Connections } from '../source/connections-file.js';
 import type { Database } from '../source/database.js';
-import { maskSecrets } from '../source/mask-secrets.js';
+import { maskSecrets } from '../common/mask-secrets.js';
 import { openServerDatabase } from '../source/server-database.js';
 
 /** A partition job on a shard failed: the message names the shard, its server and its table. */

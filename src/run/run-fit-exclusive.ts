@@ -2,10 +2,10 @@ import { createHash } from 'node:crypto';
 import { resolveConnection } from '../source/connection-target.js';
 import type { ConnectionTarget } from '../source/connection-target.js';
 import { EMBEDDED_PREFIX } from '../source/open-database.js';
-import { openServerDatabase } from '../source/server-database.js';
+import { openServerDatabase, poolTarget } from '../source/server-database.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { createStoreDb, failAbandonedRuns } from '../store/index.js';
-import { loadSpecFile, runFit } from './run-fit.js';
+import { requestSpec, runFit } from './run-fit.js';
 import type { RunFitRequest, RunFitResult } from './run-fit.js';
 
 /** Another run of the same fit holds its lock: this one did not start. */
@@ -55,10 +55,10 @@ export const ABANDONED_RUN_MESSAGE =
  */
 export async function runFitExclusive(req: RunFitRequest, hooks: FitLockHooks = {}): Promise<RunFitResult> {
   const env = req.env ?? process.env;
-  if (req.dryRun || (req.db !== undefined && req.db.startsWith(EMBEDDED_PREFIX))) return runFit(req);
-  const target = resolveConnection({ db: req.db, env });
+  if (req.dryRun || (typeof req.db === 'string' && req.db.startsWith(EMBEDDED_PREFIX))) return runFit(req);
+  const target = typeof req.db === 'object' ? poolTarget(req.db) : resolveConnection({ db: req.db, env });
   if (target.from === 'defaults') return runFit(req);
-  const spec = await loadSpecFile(req.specPath);
+  const spec = await requestSpec(req);
   return withFitLock(target, spec, () => runFit(req), hooks);
 }
 

@@ -14,6 +14,8 @@ import type { DesignReadCounts } from '../source/read-design.js';
 import { loadFitSpec } from '../spec/load-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { SpecError } from '../spec/spec-error.js';
+import { specKeyLine } from '../spec/spec-key-line.js';
+import { PlanError } from '../plan/plan-error.js';
 import {
   createStoreDb,
   failRun,
@@ -25,7 +27,7 @@ import {
   writeResidualResults,
   writeRunResult,
 } from '../store/index.js';
-import type { ModelRecord, RunResult, StoreDatabase } from '../store/index.js';
+import type { ModelRecord, RunDesign, RunResult, StoreDatabase } from '../store/index.js';
 import { planFit } from './plan-fit.js';
 import { finishRefit, startRefit, storedStates } from './refit.js';
 import type { RefitOutcome, RefitStart } from './refit.js';
@@ -35,8 +37,10 @@ import { ReadSites } from './read-sites.js';
 import { residualPass } from './residual-pass.js';
 import type { ModelResiduals } from './residual-pass.js';
 import { previousSolutions } from './refit-anchors.js';
-import { toolVersion } from './tool-version.js';
+import { toolVersion } from '../common/tool-version.js';
 import { collectGarbage, MODELS_PER_COLLECTION } from './collect-garbage.js';
+import type { RunOutcome } from './fit-document.js';
+import type { DatabaseOption } from '../source/open-database.js';
 
 /** The spec file could not be read (missing, unreadable): a usage error, not a failed fit. */
 export class SpecFileError extends Error {
@@ -45,9 +49,14 @@ export class SpecFileError extends Error {
 
 /** What `rowfold fit` was asked to do. */
 export interface RunFitRequest {
-  readonly specPath: string;
-  /** `--db URL`; otherwise DATABASE_URL, then the PG* variables. */
-  readonly db?: string | undefined;
+  /** The spec file; or give the spec itself in `spec`. */
+  readonly specPath?: string;
+  /** A spec already loaded (the library's spec objects); takes the place of `specPath`. */
+  readonly spec?: FitSpec;
+  /** `--schema`: the result schema, in place of the spec's `schema`. */
+  readonly schema?: string | undefined;
+  /** `--db URL` or `embedded:FOLDER`, or a pg pool the caller owns; otherwise DATABASE_URL, then the PG* variables. */
+  readonly db?: DatabaseOption;
   readonly env?: NodeJS.ProcessEnv;
   /**
    * `--connections FILE`: the connections file that names shards and the spec's `read_from`
@@ -69,6 +78,12 @@ export interface RunFitRequest {
   /** Overrides the spec's `accuracy`. */
   readonly accuracy?: 'auto' | 'fast' | 'extended' | undefined;
   readonly dryRun?: boolean;
+  /**
+   * False: read, fold and solve, but write nothing to the result tables (no run row, no
+   * models; the result's run id is null). Default true. A fit with a watermark or a window
+   * needs its stored state, so it always publishes.
+   */
+  readonly publish?: boolean;
   /** With a watermark: read every row and replace the stored state (late rows are folded in). */
   readonly full?: boolean;
   /** Called once the run's `runs` row is written (so a server can fail it if it must stop). */
@@ -131,6 +146,19 @@ const TOOL_VERSION = toolVersion();
  * becomes a SpecFileError (a usage error, not a failed fit).
  */
 export function loadSpecFile(specPath: string): Promise<FitSpec> {
+  return loadSpecPath(specPath);
+}
+
+/** The spec of a request: the one given, else the file's, with `schema` in place of the spec's when given. */
+export async function requestSpec(req: Pick<RunFitRequest, 'spec' | 'specPath' | 'schema'>): Promise<FitSpec> {
+  let spec: FitSpec;
+  if (req.spec !== undefined) spec = req.spec;
+  else if (req.specPath !== undefined) spec = await loadSpecPath(req.specPath);
+  else throw new SpecFileError('no spec: give a spec file or a spec object');
+  return req.schema === undefined || req.schema === spec.schema ? spec : { ...spec, schema: req.schema };
+}
+
+function loadSpecPath(specPath: string): Promise<FitSpec> {
   return loadFitSpec(specPath).catch((e: unknown) => {
     if (e instanceof SpecError) throw e;
     throw new SpecFileError(`cannot read the spec ${specPath}: ${e instanceof Error ? e.message : String(e)}`, { cause: e });
@@ -155,7 +183,23 @@ export function startFitRun(db: Kysely<StoreDatabase>, spec: FitSpec, plan: Desi
     toolVersion: TOOL_VERSION,
     readFrom,
     designLevels: plan.levels,
+    design: specDesign(spec),
   });
+}
+
+/** The design of a spec as the `runs` table records it (response, weight, terms, categorical, segment_by). */
+export function specDesign(spec: FitSpec): RunDesign {
+  return {
+    response: spec.response,
+    weight: spec.weight,
+    terms: [
+      ...spec.terms.map((t) => t.name),
+      ...spec.categorical.map((c) => c.column),
+      ...spec.interactions.map(([a, b]) => `${a.name}*${b.name}`),
+    ],
+    categorical: spec.categorical.map((c) => c.column),
+    segmentBy: spec.segmentBy,
+  };
 }
 
 /**
@@ -189,7 +233,7 @@ export function openSourceDatabase(spec: FitSpec, connections: Connections, data
  * its `runs` row, marked failed with the error.
  */
 export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
-  const spec = await loadSpecFile(req.specPath);
+  const spec = await requestSpec(req);
   const parallel = req.parallel ?? 1;
   const connections = loadConnections({ file: req.connections, env: req.env ?? process.env });
   // Checked before anything opens: a read_from name the file lacks is a usage error.
@@ -201,65 +245,9 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
   let reads: SharedSnapshot | undefined;
   let sites: ReadSites | undefined;
   try {
-    if (parallel > source.maxSessions) {
-      throw new SpecFileError(`--parallel ${parallel}: the ${source.kind} database serves ${source.maxSessions} reader(s) at once`);
-    }
-    let refit: RefitStart | null = null;
-    // Read before the session opens: the embedded database serves one session at a time.
-    const stored = spec.watermark === null ? [] : await storedStates(db, spec);
-    // Every read of the run (the plan's probes, each partition, a second pass) sees one snapshot,
-    // and the plan's locks keep the source from being altered or truncated until the run ends.
-    reads = await source.shareSnapshot();
-    // Without a shared snapshot (the embedded database), a level the plan did not find fails the read.
-    const guard = reads.snapshotId === null;
-    const plan = await reads.withHoldingSession(async (session) => {
-      if (spec.watermark === null) return planFit(session, spec, parallel, {}, guard, connections);
-      // The unscoped plan gives the design (columns, levels) that stored state must match.
-      refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel, {}, false, connections), req.full === true);
-      return planFit(session, spec, parallel, refit.scope, guard, connections);
-    });
-    // An incremental refit refines from the previous solutions (no pass over the stored rows).
-    if (refit !== null) refit = { ...(refit as RefitStart), solved: await previousSolutions(db, spec, refit) };
-    // Foreign partitions are read on their shards: every foreign server needs a connection of its name.
-    if (plan.sites !== undefined) sites = new ReadSites(connections, plan);
-    const base = { spec, plan, connection: database.display };
-    if (req.dryRun) {
-      return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, modelCount: 0, models: [] };
-    }
-    await migrate(db, spec.schema);
-    req.signal?.throwIfAborted();
-    const runId = await startFitRun(db, spec, plan, readFromText(spec, connections, sites));
-    req.onRunStarted?.(runId);
-    try {
-      const solved = await readAndSolve(reads, spec, plan, { ...req, sites }, refit);
-      req.signal?.throwIfAborted();
-      // The residual pass reads over the same snapshot and read sites as the first pass.
-      const out = await withResiduals(reads, spec, plan, { ...req, sites }, solved);
-      req.signal?.throwIfAborted();
-      const kept: FittedModel[] = [];
-      let seconds = 0;
-      const result = publishable(spec, out, req, kept, (t) => (seconds = t));
-      const done = out.refit;
-      const residuals = out.residuals;
-      if (done === undefined && residuals.size === 0) await publishRun(db, spec.schema, runId, result);
-      else {
-        // State, drift tests, models and residual results in one transaction: a refit never merges
-        // state of an unpublished run, and a dashboard never sees models without their robust errors.
-        await db.transaction().execute(async (trx) => {
-          await writeRunResult(trx, spec.schema, runId, result);
-          if (done !== undefined) {
-            await writeFitStates(trx, spec.schema, spec.name, runId, done.states);
-            await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
-          }
-          await writeResidualResults(trx, spec.schema, runId, residuals, spec.residualPass?.holdout ?? null);
-        });
-      }
-      const { rowsRead, rowsUsed, rowsSkipped, modelCount } = out;
-      return { ...base, runId, rowsRead, rowsUsed, rowsSkipped, seconds, modelCount, models: kept, refit: done };
-    } catch (e) {
-      await failRun(db, spec.schema, runId, req.signal?.aborted === true ? req.signal.reason : e).catch(() => undefined);
-      throw e;
-    }
+    return await runFitOn(database, source, db, spec, parallel, req, connections, (r) => (reads = r), (s) => (sites = s));
+  } catch (e) {
+    throw withDatabaseNamed(placePlanError(e, spec), database.display);
   } finally {
     await reads?.release();
     await sites?.close();
@@ -267,6 +255,137 @@ export async function runFit(req: RunFitRequest): Promise<RunFitResult> {
     await db.destroy();
     await database.close();
   }
+}
+
+/**
+ * The run of {@link runFit} on an open database (rows read from `source`, the spec's `read_from`
+ * or the database itself); `holdReads` and `holdSites` hand the shared snapshot and the shards
+ * back for release.
+ */
+async function runFitOn(
+  database: Database,
+  source: Database,
+  db: Kysely<StoreDatabase>,
+  spec: FitSpec,
+  parallel: number,
+  req: RunFitRequest,
+  connections: Connections,
+  holdReads: (reads: SharedSnapshot) => void,
+  holdSites: (sites: ReadSites) => void,
+): Promise<RunFitResult> {
+  if (parallel > source.maxSessions) {
+    throw new SpecFileError(`--parallel ${parallel}: the ${source.kind} database serves ${source.maxSessions} reader(s) at once`);
+  }
+  let refit: RefitStart | null = null;
+  // Read before the session opens: the embedded database serves one session at a time.
+  const stored = spec.watermark === null ? [] : await storedStates(db, spec);
+  // Every read of the run (the plan's probes, each partition, a second pass) sees one snapshot,
+  // and the plan's locks keep the source from being altered or truncated until the run ends.
+  const reads = await source.shareSnapshot();
+  holdReads(reads);
+  // Without a shared snapshot (the embedded database), a level the plan did not find fails the read.
+  const guard = reads.snapshotId === null;
+  const plan = await reads.withHoldingSession(async (session) => {
+    if (spec.watermark === null) return planFit(session, spec, parallel, {}, guard, connections);
+    // The unscoped plan gives the design (columns, levels) that stored state must match.
+    refit = await startRefit(session, stored, spec, await planFit(session, spec, parallel, {}, false, connections), req.full === true);
+    return planFit(session, spec, parallel, refit.scope, guard, connections);
+  });
+  // An incremental refit refines from the previous solutions (no pass over the stored rows).
+  if (refit !== null) refit = { ...(refit as RefitStart), solved: await previousSolutions(db, spec, refit) };
+  // Foreign partitions are read on their shards: every foreign server needs a connection of its name.
+  let sites: ReadSites | undefined;
+  if (plan.sites !== undefined) {
+    sites = new ReadSites(connections, plan);
+    holdSites(sites);
+  }
+  const base = { spec, plan, connection: database.display };
+  if (req.dryRun) {
+    return { ...base, runId: null, rowsRead: 0, rowsUsed: 0, rowsSkipped: {}, seconds: 0, modelCount: 0, models: [] };
+  }
+  if (req.publish === false && spec.watermark === null) {
+    req.signal?.throwIfAborted();
+    const out = await readAndSolve(reads, spec, plan, { ...req, sites }, refit);
+    // Nothing is written: the models still stream (to onModel), and the first keepModels are kept.
+    const kept: FittedModel[] = [];
+    let seconds = 0;
+    const result = publishable(spec, out, req, kept, (t) => (seconds = t));
+    for await (const _ of result.models) void _;
+    if (typeof result.seconds === 'function') result.seconds();
+    const { rowsRead, rowsUsed, rowsSkipped, modelCount } = out;
+    return { ...base, runId: null, rowsRead, rowsUsed, rowsSkipped, seconds, modelCount, models: kept, refit: out.refit };
+  }
+  await migrate(db, spec.schema);
+  req.signal?.throwIfAborted();
+  const runId = await startFitRun(db, spec, plan, readFromText(spec, connections, sites));
+  req.onRunStarted?.(runId);
+  try {
+    const solved = await readAndSolve(reads, spec, plan, { ...req, sites }, refit);
+    req.signal?.throwIfAborted();
+    // The residual pass reads over the same snapshot and read sites as the first pass.
+    const out = await withResiduals(reads, spec, plan, { ...req, sites }, solved);
+    req.signal?.throwIfAborted();
+    const kept: FittedModel[] = [];
+    let seconds = 0;
+    const result = publishable(spec, out, req, kept, (t) => (seconds = t));
+    const done = out.refit;
+    const residuals = out.residuals;
+    if (done === undefined && residuals.size === 0) await publishRun(db, spec.schema, runId, result);
+    else {
+      // State, drift tests, models and residual results in one transaction: a refit never merges
+      // state of an unpublished run, and a dashboard never sees models without their robust errors.
+      await db.transaction().execute(async (trx) => {
+        await writeRunResult(trx, spec.schema, runId, result);
+        if (done !== undefined) {
+          await writeFitStates(trx, spec.schema, spec.name, runId, done.states);
+          await writeRefitRecord(trx, spec.schema, runId, spec.name, done.record, done.drift);
+        }
+        await writeResidualResults(trx, spec.schema, runId, residuals, spec.residualPass?.holdout ?? null);
+      });
+    }
+    const { rowsRead, rowsUsed, rowsSkipped, modelCount } = out;
+    return { ...base, runId, rowsRead, rowsUsed, rowsSkipped, seconds, modelCount, models: kept, refit: done };
+  } catch (e) {
+    await failRun(db, spec.schema, runId, req.signal?.aborted === true ? req.signal.reason : e).catch(() => undefined);
+    throw e;
+  }
+}
+
+/**
+ * Names the database on an error that escapes a run (`error.database`, `user@host:port/db` or
+ * the embedded folder), so that a message such as "relation … does not exist" says where it
+ * was looked for. An error that already names one keeps it.
+ */
+export function withDatabaseNamed(e: unknown, display: string): unknown {
+  if (e instanceof Error && (e as { database?: unknown }).database === undefined) {
+    Object.defineProperty(e, 'database', { value: display, enumerable: true, configurable: true, writable: true });
+  }
+  return e;
+}
+
+/** A PlanError placed at the line of its key in the spec (`spec.yaml:7: terms[2]: …`); other errors as they are. */
+export function placePlanError(e: unknown, spec: FitSpec): unknown {
+  if (!(e instanceof PlanError) || e.line !== undefined) return e;
+  return e.at(spec.origin, specKeyLine(spec.text, e.key));
+}
+
+/** A run's result in the terms of {@link fitDocument} (the one vocabulary). */
+export function runOutcome(r: RunFitResult): RunOutcome {
+  return {
+    runId: r.runId,
+    fitName: r.spec.name,
+    schema: r.spec.schema,
+    database: r.connection,
+    rowsRead: r.rowsRead,
+    rowsUsed: r.rowsUsed,
+    rowsSkipped: r.rowsSkipped,
+    seconds: r.seconds,
+    toolVersion: TOOL_VERSION,
+    design: specDesign(r.spec),
+    models: r.models.map((m) => ({ ...m, method: r.spec.method })),
+    modelCount: r.modelCount,
+    refit: r.refit,
+  };
 }
 
 /**

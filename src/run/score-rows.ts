@@ -26,7 +26,7 @@ import { writeScoring } from '../store/write-scoring.js';
 import type { ScoringSegmentRecord } from '../store/write-scoring.js';
 import { RowScorer } from './row-scorer.js';
 import { ScoreError } from './score-error.js';
-import { toolVersion } from './tool-version.js';
+import { toolVersion } from '../common/tool-version.js';
 
 /** What `rowfold score` was asked to do. */
 export interface ScoreRequest {

@@ -5,7 +5,7 @@ import { formatSpecPath } from '../spec/format-spec-path.js';
 import { locateSpecProblem } from '../spec/locate-spec-problem.js';
 import { SpecError } from '../spec/spec-error.js';
 import type { SpecProblem } from '../spec/spec-problem.js';
-import { cronProblem } from './cron-expression.js';
+import { cronProblem } from '../spec/cron-rule.js';
 
 /** One line of a schedule file: a fit spec and, optionally, the cron that overrides its `schedule`. */
 export interface ScheduleFileEntry {

@@ -2,7 +2,7 @@ import { userInfo } from 'node:os';
 import type pg from 'pg';
 
 import { ConnectionConfigError } from './connection-config-error.js';
-import { maskSecrets } from './mask-secrets.js';
+import { maskSecrets } from '../common/mask-secrets.js';
 
 /** Where the connection settings were found, in order of precedence. */
 export type ConnectionSource = 'flag' | 'DATABASE_URL' | 'PG variables' | 'defaults';

@@ -4,7 +4,7 @@ import { parse } from 'yaml';
 
 import { resolveConnection } from './connection-target.js';
 import type { ConnectionTarget } from './connection-target.js';
-import { maskSecrets } from './mask-secrets.js';
+import { maskSecrets } from '../common/mask-secrets.js';
 
 /** The environment variable that names the connections file when `--connections` does not. */
 export const CONNECTIONS_ENV = 'ROWFOLD_CONNECTIONS';

@@ -1,15 +1,20 @@
 import { homedir } from 'node:os';
 import { resolve } from 'node:path';
 
+import type pg from 'pg';
 import { resolveConnection } from './connection-target.js';
 import type { Database } from './database.js';
 import { openEmbeddedDatabase } from './embedded-database.js';
-import { openServerDatabase } from './server-database.js';
+import { notice } from './notices.js';
+import { openServerDatabase, serverDatabaseOnPool } from './server-database.js';
+
+/** Where results are read and written: a PostgreSQL URL, `embedded:FOLDER`, or a pg pool the caller owns. */
+export type DatabaseOption = string | pg.Pool | undefined;
 
 /** Where to connect: `--db`, the environment, and how many sessions the caller needs. */
 export interface OpenDatabaseOptions {
-  /** `--db`: a PostgreSQL URL, or `embedded:FOLDER` for the embedded database. */
-  readonly db?: string | undefined;
+  /** `--db`: a PostgreSQL URL, or `embedded:FOLDER` for the embedded database; or a pg pool (left open). */
+  readonly db?: DatabaseOption;
   readonly env: NodeJS.ProcessEnv;
   /** Sessions the caller may use at once (readers + one); the embedded database serves one. */
   readonly sessions: number;
@@ -42,11 +47,17 @@ export const DEFAULT_EMBEDDED_DIR = '.rowfold/db';
  */
 export async function openDatabase(opts: OpenDatabaseOptions): Promise<Database> {
   const { db, env } = opts;
+  if (typeof db === 'object') return serverDatabaseOnPool(db);
   if (db !== undefined && db.startsWith(EMBEDDED_PREFIX)) {
     return openEmbeddedDatabase(embeddedDir(db.slice(EMBEDDED_PREFIX.length), opts));
   }
   const target = resolveConnection({ db, env });
-  if (target.from === 'defaults') return openEmbeddedDatabase(embeddedDir('', opts));
+  if (target.from === 'defaults') {
+    const dir = embeddedDir('', opts);
+    // Said every time: a forgotten --db must not pass unnoticed, and the next error names no server.
+    notice(`no server configured (--db, DATABASE_URL, PG* variables): using the embedded database in ${dir}`);
+    return openEmbeddedDatabase(dir);
+  }
   return openServerDatabase(target, Math.max(1, opts.sessions));
 }
 

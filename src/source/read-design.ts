@@ -5,7 +5,7 @@ import { CopyBinaryDecoder, CopyDecodeError } from './copy-binary-decoder.js';
 import type { CopyBinaryDecoderOptions, DecodedBlock, NonFinitePolicy } from './copy-binary-decoder.js';
 import { DesignReadError } from './design-read-error.js';
 import type { DesignTransport } from './design-transport.js';
-import { maskSecrets } from './mask-secrets.js';
+import { maskSecrets } from '../common/mask-secrets.js';
 import { RowArrayBlockBuilder } from './row-array-block-builder.js';
 import { streamCopyChunks } from './stream-copy-chunks.js';
 import { streamRowArrays } from './stream-row-arrays.js';

@@ -15,6 +15,39 @@ export function openServerDatabase(target: ConnectionTarget, maxSessions: number
   // An idle client whose backend goes away emits 'error' on the pool; the next query on
   // it fails and says why, so there is nothing to do here but not crash.
   pool.on('error', () => undefined);
+  return serverDatabaseOn(pool, target, maxSessions, true);
+}
+
+/**
+ * A PostgreSQL server reached through a pool the caller owns (the library's `db: pool`):
+ * sessions are checked out of it and given back, and `close()` leaves it open. The snapshot
+ * holder and a fit's lock take connections of their own with the pool's settings.
+ */
+export function serverDatabaseOnPool(pool: pg.Pool): Database {
+  const target = poolTarget(pool);
+  return serverDatabaseOn(pool, target, Math.max(1, pool.options.max ?? 10), false);
+}
+
+/** The connection settings and display name of a caller's pool. */
+export function poolTarget(pool: pg.Pool): ConnectionTarget {
+  const o = pool.options;
+  const fromUrl = typeof o.connectionString === 'string' ? safeUrl(o.connectionString) : undefined;
+  const user = o.user ?? (fromUrl?.username ? decodeURIComponent(fromUrl.username) : undefined) ?? process.env['PGUSER'] ?? '(user)';
+  const host = o.host ?? (fromUrl?.hostname || undefined) ?? process.env['PGHOST'] ?? 'localhost';
+  const port = o.port ?? (fromUrl?.port ? Number(fromUrl.port) : undefined) ?? 5432;
+  const database = o.database ?? (fromUrl?.pathname ? decodeURIComponent(fromUrl.pathname.slice(1)) : undefined) ?? user;
+  return { config: { ...o }, display: `${user}@${host}:${port}/${database} (the caller's pool)`, from: 'flag' };
+}
+
+function safeUrl(text: string): URL | undefined {
+  try {
+    return new URL(text);
+  } catch {
+    return undefined;
+  }
+}
+
+function serverDatabaseOn(pool: pg.Pool, target: ConnectionTarget, maxSessions: number, owned: boolean): Database {
   let closed = false;
   const database: Database = {
     kind: 'server',
@@ -29,7 +62,7 @@ export function openServerDatabase(target: ConnectionTarget, maxSessions: number
     async close() {
       if (closed) return;
       closed = true;
-      await pool.end();
+      if (owned) await pool.end();
     },
   };
   return database;

@@ -1,6 +1,6 @@
 import pg from 'pg';
 import type { Database, DbSession, QueryOutcome, SharedSnapshot } from './database.js';
-import { maskSecrets } from './mask-secrets.js';
+import { maskSecrets } from '../common/mask-secrets.js';
 import { pgSession } from './pg-session.js';
 import { withClient } from './with-client.js';
 

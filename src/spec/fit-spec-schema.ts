@@ -1,5 +1,5 @@
 import * as z from 'zod';
-import { CRON_RULE, cronProblem } from '../schedule/cron-expression.js';
+import { CRON_RULE, cronProblem } from './cron-rule.js';
 
 const NAME_PATTERN = /^[A-Za-z][A-Za-z0-9_.-]{0,62}$/;
 const IDENTIFIER_PATTERN = /^[A-Za-z_][A-Za-z0-9_]{0,62}$/;

@@ -1,4 +1,4 @@
-import { maskSecrets } from '../source/mask-secrets.js';
+import { maskSecrets } from '../common/mask-secrets.js';
 
 const MAX_LENGTH = 8000;
 const MAX_CAUSES = 5;

@@ -27,6 +27,18 @@ export interface RunStart {
    * rows through the very same indicators (`runs.design_levels`); written with the row.
    */
   readonly designLevels?: readonly StoredLevels[];
+  /** The design as the spec names it, for dashboards to filter on (see migration 0011). */
+  readonly design?: RunDesign;
+}
+
+/** The design of a fit as the spec names it: the `runs` columns response … segment_by. */
+export interface RunDesign {
+  readonly response: string;
+  readonly weight: string | null;
+  /** Terms, then categorical columns, then interactions (`a*b`). */
+  readonly terms: readonly string[];
+  readonly categorical: readonly string[];
+  readonly segmentBy: readonly string[];
 }
 
 /**
@@ -56,6 +68,15 @@ export async function startRun(db: Kysely<StoreDatabase>, schema: string, run: R
       ...(run.designLevels === undefined
         ? {}
         : { design_levels: JSON.stringify(run.designLevels.map((l) => ({ column: l.column, levels: l.levels, reference: l.reference }))) }),
+      ...(run.design === undefined
+        ? {}
+        : {
+            response: run.design.response,
+            weight: run.design.weight,
+            terms: [...run.design.terms],
+            categorical: [...run.design.categorical],
+            segment_by: [...run.design.segmentBy],
+          }),
     })
     .returning('run_id')
     .executeTakeFirstOrThrow();

@@ -53,6 +53,12 @@ export interface RunsTable {
   read_from: ColumnType<string | null, string | null | undefined, string | null>;
   /** Migration 0009: the categorical levels the run fits with (JSON array). */
   design_levels: ColumnType<unknown, string | null | undefined, string | null>;
+  /** The fit's design, as the spec names it (migration 0011; null in runs recorded before). */
+  response: ColumnType<string | null, string | null | undefined, string | null>;
+  weight: ColumnType<string | null, string | null | undefined, string | null>;
+  terms: ColumnType<string[] | null, string[] | null | undefined, string[] | null>;
+  categorical: ColumnType<string[] | null, string[] | null | undefined, string[] | null>;
+  segment_by: ColumnType<string[] | null, string[] | null | undefined, string[] | null>;
 }
 
 /** `models`: one row per fit, segment and run. */
@@ -131,12 +137,15 @@ interface RunTimes {
 /** Read-only shape of a view: every column is selectable, none writable. */
 type ViewOf<T> = { [K in keyof T]: ColumnType<SelectType<T[K]>, never, never> };
 
+/** Columns that latest_models adds from the run's design (migration 0011). */
+type RunDesignColumns = Pick<RunsTable, 'response' | 'weight' | 'terms' | 'categorical' | 'segment_by'>;
+
 /** `latest_models`: per fit and segment, the model of the newest succeeded run that has it. */
-export type LatestModelsView = ViewOf<ModelsTable & RunTimes>;
+export type LatestModelsView = ViewOf<ModelsTable & RunTimes & RunDesignColumns>;
 
 /** `latest_coefficients`: the coefficients of the models in `latest_models`. */
 export type LatestCoefficientsView = ViewOf<
-  CoefficientsTable & Pick<ModelsTable, 'fit_name' | 'segment' | 'segment_key'> & RunTimes
+  CoefficientsTable & Pick<ModelsTable, 'fit_name' | 'segment' | 'segment_key' | 'confidence'> & RunTimes
 >;
 
 /** `schema_migrations`: which numbered migrations the schema has had applied. */

@@ -4,7 +4,7 @@ import { join, resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { chromium } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { writeFitReport } from '../../src/report/write-fit-report.js';
+import { writeFitReport } from '../../src/run/write-fit-report.js';
 import { createTestDatabase } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { REPORT_SPEC, makeReportFit, openTestDatabase } from '../support/report-fixture.js';
@@ -103,8 +103,8 @@ describe('the HTML report in headless Chromium', () => {
         'estimates of humidity across segments',
         'estimates of shift across segments',
         'estimates of intercept across segments',
-        'residuals against fitted values',
-        'normal quantile plot of the residuals',
+        'residual spread across the fitted range',
+        'standardised residuals beside the normal',
         'condition number per segment',
       ]);
       for (const c of charts) {
@@ -116,9 +116,10 @@ describe('the HTML report in headless Chromium', () => {
       // One point per segment that estimated the term: six feeders, F99 has too few rows,
       // and shift is aliased in F06.
       expect(charts.slice(0, 4).map((c) => c.symbols)).toEqual([6, 6, 5, 6]);
-      // F01 has 149 usable rows, all of them within the 2,000-row sample.
-      expect(charts[4]!.symbols).toBe(149);
-      expect(charts[5]!.symbols).toBe(149);
+      // F01 has 149 usable rows, all of them within the 2,000-row sample: 20 slices, a median dot
+      // each (issue 14); 18 half-σ intervals, a dot each for the normal's count.
+      expect(charts[4]!.symbols).toBe(20);
+      expect(charts[5]!.symbols).toBe(18);
       // Bars of the condition chart: one per segment with a condition number.
       expect(await page.$$eval('#chart-condition g.mark-rect > path', (bars) => bars.length)).toBe(6);
 

@@ -4,7 +4,7 @@ import { join, resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { chromium } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { writeFitReport } from '../../src/report/write-fit-report.js';
+import { writeFitReport } from '../../src/run/write-fit-report.js';
 import { createTestDatabase } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { openTestDatabase } from '../support/report-fixture.js';

@@ -137,6 +137,7 @@ export const BAD_INPUTS: readonly BadInput[] = [
 
   // Other commands.
   { what: 'runs: a --limit below 1', args: ['runs', 'anything', '--db', 'DB', '--limit', '0'], code: 2, message: /--limit must be a whole number of at least 1, got 0/ },
+  { what: 'runs: a fit with no run (issue 14: as report)', args: ['runs', 'no_such_fit', '--db', 'DB'], code: 1, message: /no runs of fit no_such_fit in schema rowfold \[database: / },
   { what: 'report: a fit with no run', args: ['report', 'no_such_fit', '--db', 'DB', '--out', 'CSV/report.html'], code: 1, message: /fit "no_such_fit" has no run in schema "rowfold"/ },
   { what: 'schedule: a spec without a schedule', args: ['schedule', 'SPEC'], spec: { name: 'e_nosched', ...base }, code: 2, message: /fit e_nosched has no schedule: add "schedule: <cron>" to the spec/ },
   { what: 'serve: the embedded database', args: ['serve', 'SPEC', '--db', 'embedded:/nonexistent/rowfold-db'], spec: { name: 'e_serve_emb', ...base, schedule: '0 3 * * *' }, code: 2, message: /rowfold serve needs a PostgreSQL server/ },

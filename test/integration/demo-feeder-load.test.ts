@@ -23,7 +23,7 @@ interface Coefficient {
 }
 interface Doc {
   scenario: { readings: number; missing_readings: number };
-  run: { rows_read: number; rows_used: number; rows_skipped: Record<string, number>; segments: number };
+  run: { rows_read: number; rows_used: number; rows_skipped: Record<string, number>; segment_count: number };
   coverage: { covered: number; total: number };
   models: { segment: { feeder_id: string }; status: string; coefficients: Coefficient[] }[];
 }

@@ -29,7 +29,7 @@ beforeAll(async () => {
 afterAll(() => tdb?.drop());
 
 interface Doc {
-  run: { id: number; fit: string; status: string; rows_read: number; rows_used: number; rows_skipped: Record<string, number>; segments: number; seconds: number };
+  run: { run_id: number; fit_name: string; status: string; rows_read: number; rows_used: number; rows_skipped: Record<string, number>; segment_count: number; seconds: number };
   models: { segment: { feeder: string }; coefficients: { term: string; estimate: number; ci_low: number; ci_high: number }[] }[];
 }
 
@@ -55,9 +55,9 @@ describe('rowfold fit on the embedded database', () => {
     const rows = await fit('feeders_rows', 'rows');
     const nulls = (await tdb.query<{ n: number }>('select count(*)::int as n from readings where temp_c is null')).rows[0]!.n;
     expect(nulls).toBeGreaterThan(0);
-    expect(copy.run).toMatchObject({ status: 'succeeded', rows_read: 3000, rows_used: 3000 - nulls, rows_skipped: { 'null:temp_c': nulls }, segments: 3 });
-    const { seconds: _a, id: _b, fit: _c, ...copyRun } = copy.run;
-    const { seconds: _d, id: _e, fit: _f, ...rowsRun } = rows.run;
+    expect(copy.run).toMatchObject({ status: 'succeeded', rows_read: 3000, rows_used: 3000 - nulls, rows_skipped: { 'null:temp_c': nulls }, segment_count: 3 });
+    const { seconds: _a, run_id: _b, fit_name: _c, ...copyRun } = copy.run;
+    const { seconds: _d, run_id: _e, fit_name: _f, ...rowsRun } = rows.run;
     expect(rowsRun).toEqual(copyRun);
     expect(rows.models).toEqual(copy.models);
 

@@ -4,6 +4,7 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { openEmbeddedDatabase } from '../../src/source/embedded-database.js';
 import { setNoticeSink } from '../../src/source/notices.js';
+import { openDatabase } from '../../src/source/open-database.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'rowfold-notice-'));
 afterAll(() => {
@@ -22,5 +23,21 @@ describe('the embedded database on its first run', () => {
     const again = await openEmbeddedDatabase(folder);
     await again.close();
     expect(seen).toHaveLength(1);
+  }, 120_000);
+});
+
+describe('the embedded database chosen because nothing names a server (issue 14)', () => {
+  it('is named on stderr every time, so a forgotten --db does not pass unnoticed; --db embedded: says nothing more', async () => {
+    const seen: string[] = [];
+    setNoticeSink((m) => seen.push(m));
+    const cwd = join(dir, 'unconfigured');
+    const database = await openDatabase({ env: {}, sessions: 1, cwd });
+    await database.close();
+    const folder = join(cwd, '.rowfold', 'db');
+    expect(seen).toContain(`no server configured (--db, DATABASE_URL, PG* variables): using the embedded database in ${folder}`);
+    seen.length = 0;
+    const named = await openDatabase({ db: `embedded:${folder}`, env: {}, sessions: 1 });
+    await named.close();
+    expect(seen).toEqual([]);
   }, 120_000);
 });

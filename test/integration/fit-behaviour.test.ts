@@ -20,7 +20,7 @@ afterAll(async () => {
 });
 
 interface Doc {
-  run: { id: number; segments: number };
+  run: { run_id: number; segment_count: number };
   models: { segment: { grp: string } | null; status: string; notes: string[]; rows: number; coefficients: { term: string; estimate: number | null; std_error: number | null }[] }[];
 }
 
@@ -38,7 +38,7 @@ describe('rowfold fit behaviour', () => {
     expect(doc.models[2]!.notes[0]).toBe('too few rows: 2 rows for 3 coefficients');
     const stored = await tdb.query(
       `select status, notes from rowfold.models where run_id = $1 and segment->>'grp' = 'tiny'`,
-      [doc.run.id],
+      [doc.run.run_id],
     );
     expect(stored.rows).toEqual([{ status: 'too_few_rows', notes: ['too few rows: 2 rows for 3 coefficients'] }]);
   });

@@ -33,7 +33,7 @@ async function addHours(table: string, from: number, to: number, feeders = 3, sh
 interface Coefficient { term: string; estimate: number; std_error: number }
 interface Doc {
   run: {
-    id: number; rows_read: number; rows_used: number; refit?: string; notes?: string[]; watermark_from?: string | null;
+    run_id: number; rows_read: number; rows_used: number; refit?: string; notes?: string[]; watermark_from?: string | null;
     drift?: { segment: { feeder: string }; flagged: boolean; flagged_terms: string[]; test: string; f_p: number }[];
   };
   models: { segment: { feeder: string }; rows: number; coefficients: Coefficient[] }[];
@@ -94,12 +94,12 @@ describe('incremental refits (watermark)', () => {
     console.log(`incremental vs full refit: max relative difference ${worst.toExponential(2)}`);
     expect(worst).toBeLessThan(1e-10);
 
-    const run = await tdb.query(`select refit, watermark_from, watermark_to, notes from rowfold.runs where run_id = $1`, [second.run.id]);
+    const run = await tdb.query(`select refit, watermark_from, watermark_to, notes from rowfold.runs where run_id = $1`, [second.run.run_id]);
     expect(run.rows[0].refit).toBe('incremental');
     expect(run.rows[0].watermark_from).toMatch(/^2026-01-20 23:00:00/);
     expect(run.rows[0].watermark_to).toMatch(/^2026-01-30 23:00:00/);
     const states = await tdb.query(`select segment_key, rows::int as rows, run_id::int as run_id from rowfold.fit_states where fit_name = $1 order by 1`, [spec.name]);
-    expect(states.rows).toEqual(['["F00"]', '["F01"]', '["F02"]'].map((k) => ({ segment_key: k, rows: 720, run_id: second.run.id })));
+    expect(states.rows).toEqual(['["F00"]', '["F01"]', '["F02"]'].map((k) => ({ segment_key: k, rows: 720, run_id: second.run.run_id })));
   });
 
   it('late rows (at or below the watermark) are ignored by default and folded in by --full', async () => {

@@ -38,9 +38,9 @@ function peakRssMb(segments: number): number {
     maxBuffer: 1 << 30,
   });
   expect(run.status, run.stderr).toBe(0);
-  const doc = JSON.parse(run.stdout) as { run: { rows_read: number; segments: number }; models: unknown[] };
+  const doc = JSON.parse(run.stdout) as { run: { rows_read: number; segment_count: number }; models: unknown[] };
   expect(doc.run.rows_read).toBe(rows);
-  expect(doc.run.segments).toBe(segments);
+  expect(doc.run.segment_count).toBe(segments);
   expect(doc.models).toHaveLength(segments);
   const line = run.stderr.split('\n').find((l) => l.startsWith('PEAK_KB '));
   return Number(line!.split(' ')[1]) / 1024;

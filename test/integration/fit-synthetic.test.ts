@@ -25,7 +25,7 @@ beforeAll(async () => {
 afterAll(() => tdb?.drop());
 
 interface Doc {
-  run: { id: number; rows_read: number; rows_used: number; segments: number };
+  run: { run_id: number; rows_read: number; rows_used: number; segment_count: number };
   models: { segment: { s: string }; coefficients: { term: string; estimate: number; std_error: number; ci_low: number; ci_high: number }[] }[];
 }
 

@@ -4,8 +4,8 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatNumber } from '../../src/report/format-number.js';
 import { loadReportRun } from '../../src/report/load-report-run.js';
-import { sampleResiduals } from '../../src/report/sample-residuals.js';
-import { writeFitReport } from '../../src/report/write-fit-report.js';
+import { sampleResiduals } from '../../src/run/sample-residuals.js';
+import { writeFitReport } from '../../src/run/write-fit-report.js';
 import type { Database } from '../../src/source/database.js';
 import { parseFitSpec } from '../../src/spec/parse-fit-spec.js';
 import { createStoreDb } from '../../src/store/index.js';
@@ -97,7 +97,7 @@ describe('rowfold report', () => {
 
   it('draws one SVG per chart: each term, two residual plots, the condition numbers', () => {
     const figures = html.match(/<figure class="chart"[^>]*>[\s\S]*?<\/figure>/g) ?? [];
-    // intercept, temp_c, humidity, shift; residuals vs fitted; normal quantiles; condition.
+    // intercept, temp_c, humidity, shift; residual spread; residuals beside the normal; condition.
     expect(figures).toHaveLength(7);
     for (const f of figures) expect(f.match(/<svg /g)).toHaveLength(1);
     expect(html.match(/<svg /g)).toHaveLength(7);
@@ -107,8 +107,8 @@ describe('rowfold report', () => {
       'estimates of humidity across segments',
       'estimates of shift across segments',
       'estimates of intercept across segments',
-      'residuals against fitted values',
-      'normal quantile plot of the residuals',
+      'residual spread across the fitted range',
+      'standardised residuals beside the normal',
       'condition number per segment',
     ]);
   });
@@ -183,7 +183,8 @@ describe('rowfold report without a succeeded run', () => {
   it('fails with exit 1 for a fit that never ran, naming the fits there are', async () => {
     const res = await runCli(['report', 'no_such_fit', '--db', tdb.url, '--out', join(outDir, 'none.html')]);
     expect(res.code).toBe(1);
-    expect(res.stderr).toBe(`rowfold: fit "no_such_fit" has no run in schema "rowfold" (fits there: ${REPORT_SPEC.name})\n`);
+    // Issue 14: the database the report looked in is named.
+    expect(res.stderr).toMatch(new RegExp(`^rowfold: fit "no_such_fit" has no run in schema "rowfold" \\(fits there: ${REPORT_SPEC.name}\\) \\[database: [^\\]]+\\]\n$`));
   });
 
   it('fails with exit 1 when the only run failed, and says why it failed', async () => {

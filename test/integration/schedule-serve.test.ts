@@ -168,13 +168,19 @@ describe.skipIf(ON_EMBEDDED)('rowfold serve, schedules and runs (needs a server:
     const listed = writeSpec({ ...fastSpec, name: 'sched_listed' });
     for (let i = 0; i < 3; i++) expect((await runCli(['fit', listed, '--db', tdb.url, '--json'])).code).toBe(0);
     const json = await runCli(['runs', 'sched_listed', '--db', tdb.url, '--json', '--limit', '2']);
-    const doc = JSON.parse(json.stdout) as { fit: string; runs: { id: number; status: string; rows_read: number; rows_used: number; segments: number; seconds: number; error: null }[] };
+    const doc = JSON.parse(json.stdout) as { fit_name: string; runs: { run_id: number; status: string; rows_read: number; rows_used: number; segment_count: number; seconds: number; error_message: null }[] };
     expect(doc.runs).toHaveLength(2);
-    expect(doc.runs[0]!.id).toBeGreaterThan(doc.runs[1]!.id);
-    expect(doc.runs[0]).toMatchObject({ status: 'succeeded', rows_read: 500, rows_used: 500, segments: 1, error: null });
+    expect(doc.runs[0]!.run_id).toBeGreaterThan(doc.runs[1]!.run_id);
+    expect(doc.runs[0]).toMatchObject({ status: 'succeeded', rows_read: 500, rows_used: 500, segment_count: 1, error_message: null });
     expect(doc.runs[0]!.seconds).toBeGreaterThan(0);
 
+    // Issue 14: a fit with no runs exits 1, as `report` of it does, and names the database.
     const none = await runCli(['runs', 'never_ran', '--db', tdb.url]);
-    expect(none.stdout).toMatch(/^no runs of fit never_ran in schema rowfold/);
+    expect(none.code).toBe(1);
+    expect(none.stdout).toBe('');
+    expect(none.stderr).toMatch(/^rowfold: no runs of fit never_ran in schema rowfold \[database: .+\]/);
+    const noneJson = await runCli(['runs', 'never_ran', '--db', tdb.url, '--json']);
+    expect(noneJson.code).toBe(1);
+    expect(JSON.parse(noneJson.stdout)).toMatchObject({ error: { exit_code: 1, message: expect.stringContaining('no runs of fit never_ran') } });
   });
 });

@@ -141,7 +141,7 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
       // The same spec, unsplit, in one process.
       const whole = await runCli(['fit', specPath, '--db', tdb.url, '--json']);
       expect(whole.code, whole.stderr).toBe(0);
-      const wholeRun = String((JSON.parse(whole.stdout) as { run: { id: number } }).run.id);
+      const wholeRun = String((JSON.parse(whole.stdout) as { run: { run_id: number } }).run.run_id);
       const byRun = async (id: string) => ({
         models: (await tdb.query<ModelRow>(`select * from rowfold.models where run_id = $1 order by segment_key`, [id])).rows,
         coefficients: (
@@ -276,7 +276,7 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
     expect(await mergeSplitRun({ target, schema: 'rowfold', runId: start.runId, final: true })).toMatchObject({ outcome: 'published', segments: 3 });
     const whole = await runCli(['fit', specPath, '--db', tdb.url, '--json']);
     expect(whole.code, whole.stderr).toBe(0);
-    const wholeRun = (JSON.parse(whole.stdout) as { run: { id: number } }).run.id;
+    const wholeRun = (JSON.parse(whole.stdout) as { run: { run_id: number } }).run.run_id;
     const coefficients = async (id: number) =>
       (
         await tdb.query<CoefficientRow & { accuracy: string }>(
@@ -309,7 +309,7 @@ describe.skipIf(ON_EMBEDDED)('split fits across serve processes (server only: ot
     expect(await mergeSplitRun({ target, schema: 'rowfold', runId: start.runId, final: true })).toMatchObject({ outcome: 'published', rowsRead: 3000 });
     const whole = await runCli(['fit', specPath, '--db', tdb.url, '--json']);
     expect(whole.code, whole.stderr).toBe(0);
-    const wholeRun = (JSON.parse(whole.stdout) as { run: { id: number } }).run.id;
+    const wholeRun = (JSON.parse(whole.stdout) as { run: { run_id: number } }).run.run_id;
     const models = async (id: number) =>
       (await tdb.query(`select segment_key, passes, accuracy, rows from rowfold.models where run_id = $1 order by segment_key`, [id])).rows;
     expect(await models(start.runId)).toEqual([

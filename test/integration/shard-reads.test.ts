@@ -206,7 +206,7 @@ describe.skipIf(!available)('reading a sharded table where it lives (issue 17; s
     );
     const whole = await runCli(['fit', writeSpec({ name: 'gathered', source: 'gathered', ...MODEL }), '--db', tdb.url, '--json']);
     expect(whole.code, whole.stderr).toBe(0);
-    gatheredRun = (JSON.parse(whole.stdout) as { run: { id: number } }).run.id;
+    gatheredRun = (JSON.parse(whole.stdout) as { run: { run_id: number } }).run.run_id;
   }, 300_000);
 
   afterAll(async () => {
@@ -240,7 +240,7 @@ describe.skipIf(!available)('reading a sharded table where it lives (issue 17; s
     const out = await runCli(['fit', writeSpec({ name: 'sharded_parallel', source: 'readings', ...MODEL }), '--db', tdb.url, '--parallel', '4', '--connections', connectionsFile, '--json']);
     expect(out.code, out.stderr).toBe(0);
     expect(out.stdout + out.stderr).not.toContain(SECRET);
-    const runId = (JSON.parse(out.stdout) as { run: { id: number } }).run.id;
+    const runId = (JSON.parse(out.stdout) as { run: { run_id: number } }).run.run_id;
     expectSameFit(await results(tdb, runId), await results(tdb, gatheredRun), 'parallel');
     expect(await shardScans()).toEqual(shards.map(() => [1, ROWS_PER_PART]));
     expect(shards.map((_, i) => fdwConnections(i))).toEqual(fdwBefore);
@@ -254,8 +254,8 @@ describe.skipIf(!available)('reading a sharded table where it lives (issue 17; s
     const fdwBefore = shards.map((_, i) => fdwConnections(i));
     const out = await runCli(['fit', writeSpec({ name: 'sharded_cat', source: 'readings', ...cat }), '--db', tdb.url, '--parallel', '2', '--connections', connectionsFile, '--json']);
     expect(out.code, out.stderr).toBe(0);
-    const runId = (JSON.parse(out.stdout) as { run: { id: number } }).run.id;
-    const gathered = await results(tdb, (JSON.parse(whole.stdout) as { run: { id: number } }).run.id);
+    const runId = (JSON.parse(out.stdout) as { run: { run_id: number } }).run.run_id;
+    const gathered = await results(tdb, (JSON.parse(whole.stdout) as { run: { run_id: number } }).run.run_id);
     const sharded = await results(tdb, runId);
     expect(sharded.coefficients.map((c) => c.term)).toEqual(['intercept', 'temp_c', 'humidity', 'feeder=F0', 'feeder=F2']);
     expectSameFit(sharded, gathered, 'categorical');
@@ -281,7 +281,7 @@ describe.skipIf(!available)('reading a sharded table where it lives (issue 17; s
       const out = await runCli(['fit', spec, '--db', target2.url, '--connections', connectionsFile, '--json']);
       expect(out.code, out.stderr).toBe(0);
       expect(out.stdout + out.stderr).not.toContain(SECRET);
-      const runId = (JSON.parse(out.stdout) as { run: { id: number } }).run.id;
+      const runId = (JSON.parse(out.stdout) as { run: { run_id: number } }).run.run_id;
       const run = await target2.query(`select status, read_from, error_message from rowfold.runs where run_id = $1`, [runId]);
       expect(run.rows[0].status).toBe('succeeded');
       expect(run.rows[0].read_from).toBe(`reader (rowfold_reader_${tdb.name.slice(-8)}@127.0.0.1:5432/${tdb.name})`);
@@ -304,9 +304,9 @@ describe.skipIf(!available)('reading a sharded table where it lives (issue 17; s
       await tdb.exec(`insert into growing select * from gathered where id > 12000`);
       const second = await runCli(['fit', incremental, '--db', target2.url, '--connections', connectionsFile, '--json']);
       expect(second.code, second.stderr).toBe(0);
-      const secondRun = (JSON.parse(second.stdout) as { run: { id: number; rows_read: number } }).run;
+      const secondRun = (JSON.parse(second.stdout) as { run: { run_id: number; rows_read: number } }).run;
       expect(secondRun.rows_read).toBe(12000);
-      expectSameFit(await results(target2, secondRun.id), await results(tdb, gatheredRun), 'read_from incremental');
+      expectSameFit(await results(target2, secondRun.run_id), await results(tdb, gatheredRun), 'read_from incremental');
 
       // A split run reads its partitions over read_from too, and publishes where it was started.
       const split = await driveSplit(writeSpec({ name: 'read_split', source: 'gathered', read_from: 'reader', ...MODEL, split: { partitions: 3 } }), { store: target2 });

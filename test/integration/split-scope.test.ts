@@ -72,7 +72,7 @@ describe.skipIf(ON_EMBEDDED)('what a split run reads (server only: split runs ar
     await tdb.query(`update readings set loaded_at = loaded_at - interval '1 year' where id % 10 = 0 and id <= 4000`);
     const whole = await runCli(['fit', writeSpec({ ...spec, name: 'split_cutoff_whole', source: 'select * from readings where id % 10 <> 0', split: undefined }), '--db', tdb.url, '--json']);
     expect(whole.code, whole.stderr).toBe(0);
-    const wholeRun = (JSON.parse(whole.stdout) as { run: { id: number } }).run.id;
+    const wholeRun = (JSON.parse(whole.stdout) as { run: { run_id: number } }).run.run_id;
     const estimates = async (id: number) =>
       (await tdb.query<{ estimate: number }>(`select estimate from rowfold.coefficients where run_id = $1 order by model_id, term_index`, [id])).rows.map((r) => r.estimate);
     const split = await estimates(start.runId);

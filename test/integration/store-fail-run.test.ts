@@ -2,7 +2,7 @@ import type { Kysely } from 'kysely';
 import { afterAll, afterEach, beforeAll, beforeEach, describe, expect, it } from 'vitest';
 import { describeError } from '../../src/store/describe-error.js';
 import { failRun } from '../../src/store/fail-run.js';
-import { maskSecrets } from '../../src/source/mask-secrets.js';
+import { maskSecrets } from '../../src/common/mask-secrets.js';
 import { migrate } from '../../src/store/migrate.js';
 import { publishRun } from '../../src/store/publish-run.js';
 import { startRun } from '../../src/store/start-run.js';

@@ -53,9 +53,9 @@ describe('migrate', () => {
   it('creates the schema, tables and views, with every column documented, and is idempotent', async () => {
     const db = openDb();
     const first = await migrate(db, 'rowfold');
-    expect(first.applied.map((m) => m.version)).toEqual([1, 2, 3, 4, 5, 6, 7, 8, 9, 10]);
+    expect(first.applied.map((m) => m.version)).toEqual([1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11]);
     const second = await migrate(db, 'rowfold');
-    expect(second).toEqual({ schema: 'rowfold', applied: [], version: 10 });
+    expect(second).toEqual({ schema: 'rowfold', applied: [], version: 11 });
 
     const relations = await sql<{ relname: string; relkind: string }>`
       select c.relname, c.relkind from pg_class c join pg_namespace n on n.oid = c.relnamespace
@@ -105,7 +105,7 @@ describe('migrate', () => {
     expect(index.rows[0]?.indexdef).toContain('(fit_name, segment_key, run_id DESC)');
 
     const recorded = await db.withSchema('rowfold').selectFrom('schema_migrations').selectAll().execute();
-    expect(recorded).toHaveLength(10);
+    expect(recorded).toHaveLength(11);
     expect(recorded[0]).toMatchObject({ version: 1, name: 'result_tables' });
     expect(recorded[1]).toMatchObject({ version: 2, name: 'accuracy' });
     expect(recorded[2]).toMatchObject({ version: 3, name: 'fit_states' });
@@ -116,6 +116,7 @@ describe('migrate', () => {
     expect(recorded[7]).toMatchObject({ version: 8, name: 'read_from' });
     expect(recorded[8]).toMatchObject({ version: 9, name: 'scoring' });
     expect(recorded[9]).toMatchObject({ version: 10, name: 'residual_pass' });
+    expect(recorded[10]).toMatchObject({ version: 11, name: 'fit_design' });
     expect(recorded[0]!.checksum).toMatch(/^[0-9a-f]{64}$/);
     expect(recorded[0]!.applied_at).toBeInstanceOf(Date);
     await db.destroy();
@@ -151,7 +152,7 @@ describe('migrate', () => {
   it('migrates the real schema from several processes at once', async () => {
     const dbs = Array.from({ length: 4 }, () => openDb());
     const results = await Promise.all(dbs.map((db) => migrate(db, 'race_real')));
-    expect(results.flatMap((r) => r.applied.map((m) => m.version)).sort((a, b) => a - b)).toEqual([1, 2, 3, 4, 5, 6, 7, 8, 9, 10]);
+    expect(results.flatMap((r) => r.applied.map((m) => m.version)).sort((a, b) => a - b)).toEqual([1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11]);
     await Promise.all(dbs.map((db) => db.destroy()));
   });
 

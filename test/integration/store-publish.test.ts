@@ -225,6 +225,12 @@ describe('publishRun', () => {
       notes: [],
       // Migration 0009: written by rowfold fit when the run starts (startRun alone leaves it null).
       design_levels: null,
+      // Migration 0011: runs started through startFitRun record the design; this one did not.
+      response: null,
+      weight: null,
+      terms: null,
+      categorical: null,
+      segment_by: null,
     });
     expect(run.started_at.getTime()).toBeGreaterThanOrEqual(before.getTime() - 5000);
     expect(run.ended_at!.getTime()).toBeGreaterThanOrEqual(run.started_at.getTime());

@@ -26,15 +26,18 @@ describe('rowfold fit-csv', () => {
     const io = capture();
     const code = await main(['fit-csv', SAMPLE, '--response', 'load_mw', '--terms', Object.keys(TRUTH).join(','), '--confidence', '0.99', '--json']);
     expect(code).toBe(0);
+    // Issue 14: the document of `rowfold fit --json` (rows_skipped by reason and column).
     const doc = JSON.parse(io.out.join('')) as {
-      rows_read: number;
-      rows_skipped: number;
-      model: { rows: number; coefficients: { term: string; ci_low: number; ci_high: number }[] };
+      run: { run_id: null; rows_read: number; rows_used: number; rows_skipped: Record<string, number>; segment_count: number; response: string };
+      models: { rows: number; coefficients: { term: string; ci_low: number; ci_high: number }[] }[];
     };
-    expect(doc.rows_read).toBe(1344);
-    expect(doc.model.rows + doc.rows_skipped).toBe(1344);
+    expect(doc.run).toMatchObject({ run_id: null, rows_read: 1344, segment_count: 1, response: 'load_mw' });
+    const model = doc.models[0]!;
+    const skipped = Object.values(doc.run.rows_skipped).reduce((a, b) => a + b, 0);
+    expect(model.rows + skipped).toBe(1344);
+    expect(doc.run.rows_used).toBe(model.rows);
     for (const [term, truth] of Object.entries(TRUTH)) {
-      const c = doc.model.coefficients.find((x) => x.term === term)!;
+      const c = model.coefficients.find((x) => x.term === term)!;
       expect(c.ci_low, term).toBeLessThan(truth);
       expect(c.ci_high, term).toBeGreaterThan(truth);
     }

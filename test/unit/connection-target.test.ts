@@ -3,7 +3,7 @@ import { describe, expect, it } from 'vitest';
 
 import { ConnectionConfigError } from '../../src/source/connection-config-error.js';
 import { resolveConnection } from '../../src/source/connection-target.js';
-import { maskSecrets } from '../../src/source/mask-secrets.js';
+import { maskSecrets } from '../../src/common/mask-secrets.js';
 
 const PG_ENV = { PGHOST: 'pghost', PGPORT: '6543', PGUSER: 'pguser', PGDATABASE: 'pgdb', PGPASSWORD: 'pgsecret' };
 

@@ -5,7 +5,7 @@ import { segmentSampleQuery } from '../../src/plan/segment-sample-query.js';
 import { chooseSegment } from '../../src/report/choose-segment.js';
 import { showsZero } from '../../src/report/coefficient-chart.js';
 import { escapeHtml } from '../../src/report/escape-html.js';
-import { normalQuantilePoints } from '../../src/report/normal-quantile-points.js';
+import { normalBins, normalCdf, residualBands } from '../../src/report/residual-summaries.js';
 import { renderChartSvg } from '../../src/report/render-chart-svg.js';
 import { ReportError } from '../../src/report/report-error.js';
 import type { ReportCoefficient, ReportModel } from '../../src/report/report-run.js';
@@ -44,14 +44,47 @@ describe('normalQuantile (t quantile at 1e12 df)', () => {
   });
 });
 
-describe('normalQuantilePoints', () => {
-  it('sorts the values and pairs them with symmetric plotting positions', () => {
-    const pts = normalQuantilePoints([0.3, -1.2, Number.NaN, 0.8]);
-    expect(pts.map((p) => p.observed)).toEqual([-1.2, 0.3, 0.8]);
-    expect(pts[0]!.expected).toBeCloseTo(-pts[2]!.expected, 12);
-    expect(Math.abs(pts[1]!.expected)).toBeLessThan(1e-12);
-    // (1 − 3/8) / (3 + 1/4) = 0.1923…, Φ⁻¹ of which is −0.8694 (scipy 1.17.1, scipy.stats.norm.ppf).
-    expect(pts[0]!.expected).toBeCloseTo(-0.8694237, 6);
+describe('residualBands (issue 14: the residual spread chart)', () => {
+  it('cuts the rows into slices of equal count along the fitted values, with type-7 quantiles of their residuals', () => {
+    const residuals = [0.5, -1, 2, 4, -3, 0.2, 1.5, -0.5, 3, -2.2];
+    // One slice: its quantiles are numpy 2.4.6's np.percentile(x, [10, 25, 50, 75, 90]) (linear, the default).
+    const [one] = residualBands(residuals.map((r, i) => ({ fitted: 10 - i, residual: r })), 1);
+    expect(one).toMatchObject({ rows: 10, fittedLow: 1, fittedHigh: 10, fittedMid: 5.5 });
+    expect(one!.q10).toBeCloseTo(-2.28, 12);
+    expect(one!.q25).toBeCloseTo(-0.875, 12);
+    expect(one!.median).toBeCloseTo(0.35, 12);
+    expect(one!.q75).toBeCloseTo(1.875, 12);
+    expect(one!.q90).toBeCloseTo(3.1, 12);
+    // Five slices of two rows, in order of fitted value; NaN left out.
+    const five = residualBands([...residuals.map((r, i) => ({ fitted: i, residual: r })), { fitted: Number.NaN, residual: 1 }], 5);
+    expect(five.map((b) => b.rows)).toEqual([2, 2, 2, 2, 2]);
+    [-0.25, 3, -1.4, 0.5, 0.4].forEach((m, i) => expect(five[i]!.median).toBeCloseTo(m, 14));
+    expect(residualBands([], 20)).toEqual([]);
+    expect(residualBands([{ fitted: 1, residual: 2 }], 20)).toHaveLength(1);
+  });
+});
+
+describe('normalBins (issue 14: the standardised residuals beside the normal)', () => {
+  it('Φ from the χ² tail matches scipy 1.17.1 (scipy.stats.norm.cdf) to 1e-14', () => {
+    expect(normalCdf(1)).toBeCloseTo(0.8413447460685429, 14);
+    expect(normalCdf(-2.5)).toBeCloseTo(0.006209665325776132, 14);
+    expect(normalCdf(3.7)).toBeCloseTo(0.9998922002665226, 14);
+    expect(normalCdf(0)).toBe(0.5);
+  });
+
+  it('counts values in half-σ intervals with a tail bin each side, and the normal counts sum to n', () => {
+    const bins = normalBins([-5, -0.2, 0.1, 0.49, 0.5, 2.7, 9, Number.NaN]);
+    expect(bins).toHaveLength(18);
+    expect(bins[0]).toMatchObject({ from: -Infinity, to: -4, observed: 1 });
+    expect(bins[17]).toMatchObject({ from: 4, to: Infinity, observed: 1 });
+    expect(bins.find((b) => b.from === 0)!.observed).toBe(2);
+    expect(bins.find((b) => b.from === 0.5)!.observed).toBe(1);
+    expect(bins.find((b) => b.from === 2.5)!.observed).toBe(1);
+    expect(bins.reduce((n, b) => n + b.observed, 0)).toBe(7);
+    expect(bins.reduce((n, b) => n + b.expected, 0)).toBeCloseTo(7, 12);
+    // Symmetric expectations; [0, 0.5) holds n · (Φ(0.5) − 0.5) = 7 · 0.19146… (scipy 1.17.1: norm.cdf(0.5) = 0.6914624612740131).
+    expect(bins.find((b) => b.from === 0)!.expected).toBeCloseTo(7 * (0.6914624612740131 - 0.5), 12);
+    expect(bins[1]!.expected).toBeCloseTo(bins[16]!.expected, 14);
   });
 });
 

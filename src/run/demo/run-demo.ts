@@ -1,4 +1,4 @@
-import { writeFitReport } from '../../report/write-fit-report.js';
+import { writeFitReport } from '../write-fit-report.js';
 import type { Database } from '../../source/database.js';
 import { openDatabase } from '../../source/open-database.js';
 import { runFit } from '../run-fit.js';
@@ -17,6 +17,8 @@ export interface RunDemoRequest extends FeederScenarioOptions {
   readonly env?: NodeJS.ProcessEnv;
   /** Where to write the demo's fit spec (it is fitted from there). */
   readonly specPath: string;
+  /** Result schema in place of the spec's (`rowfold`). */
+  readonly schema?: string | undefined;
   /** Where to write the HTML report; null for none. */
   readonly reportPath: string | null;
   readonly onProgress?: (p: DemoProgress) => void;
@@ -77,6 +79,7 @@ export async function runDemo(req: RunDemoRequest): Promise<RunDemoResult> {
     await writeDemoSpec(req.specPath);
     const fit = await runFit({
       specPath: req.specPath,
+      schema: req.schema,
       db: req.db,
       env,
       onProgress: (p) => req.onProgress?.({ phase: 'fit', ...p }),

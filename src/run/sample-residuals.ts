@@ -1,20 +1,13 @@
 import { segmentSampleQuery } from '../plan/segment-sample-query.js';
-import { planFit } from '../run/plan-fit.js';
+import { planFit } from './plan-fit.js';
 import type { Database } from '../source/database.js';
 import type { FitSpec } from '../spec/fit-spec.js';
-import type { ReportModel } from './report-run.js';
-import { residualPoints } from './residual-points.js';
-import type { ResidualPoints } from './residual-points.js';
-import { segmentKeyValues } from './segment-label.js';
+import type { ReportModel } from '../report/report-run.js';
+import { residualPoints } from '../report/residual-points.js';
+import type { ResidualSample } from '../report/residual-points.js';
+import { segmentKeyValues } from '../report/segment-label.js';
 
-/** A random sample of one segment's rows with fitted values and residuals. */
-export interface ResidualSample extends ResidualPoints {
-  /** Most rows asked for. */
-  readonly limit: number;
-  /** Rows the sampling query returned. */
-  readonly rowsRead: number;
-  readonly weighted: boolean;
-}
+export type { ResidualSample } from '../report/residual-points.js';
 
 /**
  * Re-plans the run's spec over the source as it is now (categorical levels are discovered

@@ -1,23 +1,25 @@
 import { mkdir, writeFile } from 'node:fs/promises';
 import { dirname, resolve } from 'node:path';
-import { toolVersion } from '../run/tool-version.js';
-import { connectionNamed, NO_CONNECTIONS } from '../source/connections-file.js';
+import { toolVersion } from '../common/tool-version.js';
+import { maskSecrets } from '../common/mask-secrets.js';
+import { connectionNamed, loadConnections, NO_CONNECTIONS } from '../source/connections-file.js';
 import type { Connections } from '../source/connections-file.js';
 import type { Database } from '../source/database.js';
 import { openServerDatabase } from '../source/server-database.js';
-import { maskSecrets } from '../source/mask-secrets.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { createStoreDb, DEFAULT_STORE_SCHEMA, loadResidualResults } from '../store/index.js';
 import type { StoredResiduals } from '../store/index.js';
 import { loadLatestScoring } from '../store/load-latest-scoring.js';
 import type { StoredScoring } from '../store/load-latest-scoring.js';
-import { chooseSegment } from './choose-segment.js';
-import { loadReportRun } from './load-report-run.js';
-import type { ResidualOutcome } from './render-residual-section.js';
-import { renderReportHtml } from './render-report-html.js';
-import type { ReportModel, ReportRun } from './report-run.js';
+import { chooseSegment } from '../report/choose-segment.js';
+import { loadReportRun } from '../report/load-report-run.js';
+import type { ResidualOutcome } from '../report/render-residual-section.js';
+import { renderReportHtml } from '../report/render-report-html.js';
+import type { ReportModel, ReportRun } from '../report/report-run.js';
 import { sampleResiduals } from './sample-residuals.js';
+import { withResultsDatabase } from './read-results.js';
+import type { ReadOptions } from './read-results.js';
 
 /** What {@link writeFitReport} should report on, and where to write it. */
 export interface WriteFitReportOptions {
@@ -128,4 +130,42 @@ async function residualOutcome(
 
 function message(e: unknown): string {
   return maskSecrets(e instanceof Error ? e.message : String(e));
+}
+
+/** Options of {@link writeReport}. */
+export interface WriteReportOptions extends ReadOptions {
+  /** The HTML file to write (default `FIT-report.html`). */
+  readonly out?: string;
+  /** Segment for the residual charts: its key or `col=value` (default the one with most rows). */
+  readonly segment?: string;
+  /** Most rows sampled for the residual charts (default 2000). */
+  readonly sampleRows?: number;
+  /**
+   * The connections file (YAML, name: URL; default ROWFOLD_CONNECTIONS in `env`): a fit whose
+   * spec has `read_from` has its residual sample read over that connection.
+   */
+  readonly connections?: string;
+}
+
+/**
+ * Writes the HTML report of a fit's newest succeeded run (see {@link writeFitReport}) to
+ * `out`, reading the results from the database `db` names.
+ *
+ * @throws ReportError when the fit has no succeeded run, or `segment` matches no model
+ * @example
+ * const { path } = await writeReport('feeder_load', { db: 'embedded:.rowfold/db', out: 'feeder_load.html' });
+ */
+export async function writeReport(fitName: string, opts: WriteReportOptions = {}): Promise<{ path: string; segment_count: number }> {
+  const out = opts.out ?? `${fitName}-report.html`;
+  return withResultsDatabase(opts, 2, async (database) => {
+    const { path, segments } = await writeFitReport(database, {
+      fit: fitName,
+      schema: opts.schema ?? DEFAULT_STORE_SCHEMA,
+      segment: opts.segment,
+      out,
+      ...(opts.sampleRows === undefined ? {} : { sampleRows: opts.sampleRows }),
+      connections: loadConnections({ file: opts.connections, env: opts.env ?? process.env }),
+    });
+    return { path, segment_count: segments };
+  });
 }
