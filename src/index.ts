@@ -17,6 +17,10 @@ export type { FitOptions, FitProgress, FitSpecObject } from './run/fit-api.js';
 export { fitRuns, latestResults } from './run/read-results.js';
 export type { ReadOptions } from './run/read-results.js';
 export { writeReport } from './run/write-fit-report.js';
+export { scoreRows as score } from './run/score-rows.js';
+export type { ScoreRequest, ScoreResult } from './run/score-rows.js';
+export { scoreView } from './run/score-view.js';
+export type { ScoreViewRequest, ScoreViewResult } from './run/score-view.js';
 export type { WriteReportOptions } from './run/write-fit-report.js';
 
 export {
@@ -52,6 +56,7 @@ export { FitInputError } from './fit/fit-input-error.js';
 export { PlanError } from './plan/plan-error.js';
 export { PlanOutdatedError } from './plan/plan-outdated-error.js';
 export { ReportError } from './report/report-error.js';
+export { ScoreError } from './run/score-error.js';
 export { FitBusyError } from './run/run-fit-exclusive.js';
 export { SpecFileError } from './run/run-fit.js';
 export { ConnectionConfigError } from './source/connection-config-error.js';

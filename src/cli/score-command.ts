@@ -59,12 +59,14 @@ export function scoreCommand(y: Argv): Argv {
 }
 
 function viewJson(r: ScoreViewResult): unknown {
-  return { fit: r.fit, view: r.view, run_id: r.runId, connection: r.connection, sql: r.sql };
+  return { fit_name: r.fit, view: r.view, run_id: r.runId, database: r.connection, sql: r.sql };
 }
 
 function scoreJson(r: ScoreResult): unknown {
+  // The names of the result tables (scorings, scoring_segments) and of fit --json.
   return {
-    fit: r.fit,
+    fit_name: r.fit,
+    database: r.connection,
     scoring_id: r.scoringId,
     run_id: r.runId,
     design_run_id: r.designRunId,
