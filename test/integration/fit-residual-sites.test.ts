@@ -59,7 +59,7 @@ function expectSameErrors(got: ErrorRow[], want: ErrorRow[], label: string): voi
 async function fitJson(args: string[]): Promise<number> {
   const out = await runCli(args);
   expect(out.code, out.stderr).toBe(0);
-  return (JSON.parse(out.stdout) as { run: { id: number } }).run.id;
+  return (JSON.parse(out.stdout) as { run: { run_id: number } }).run.run_id;
 }
 
 describe.skipIf(ON_EMBEDDED)('residual pass over read sites and read_from', () => {

@@ -365,8 +365,8 @@ describe.skipIf(!available)('reading a sharded table where it lives (issue 17; s
     // One failure mid-read, then each retry finds the shard down.
     expect(errors).toHaveLength(3);
     expect(errors[0]!.message).toMatch(/^shard shard_3 \(foreign partition public\.readings_s3, table "public"\."meter_load" at 127\.0\.0\.1:55432\/postgres\) could not be read: .*(terminat|shut)/);
-    // A retry finds the shard down, or still shutting down on a loaded machine.
-    for (const e of errors.slice(1)) expect(e.message).toMatch(/^shard shard_3 .* could not be read: .*(ECONNREFUSED|shutting down)/);
+    // A retry finds the shard down, still shutting down, or its socket reset as it goes (seen on a loaded machine).
+    for (const e of errors.slice(1)) expect(e.message).toMatch(/^shard shard_3 .* could not be read: .*(ECONNREFUSED|ECONNRESET|shutting down)/);
     for (const e of errors) expect(e.message).not.toContain(SECRET);
     const run = await tdb.query(`select status, error_message from rowfold.runs where run_id = $1`, [runId]);
     expect(run.rows[0].status).toBe('failed');
