@@ -13,31 +13,9 @@ import { createTestDatabase } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
 import { rng } from '../support/synthetic.js';
+import { fixture } from '../support/residual-cases.js';
+import type { ResidualCase } from '../support/residual-cases.js';
 
-interface ResidualCase {
-  name: string;
-  terms: string[];
-  rows: number[][];
-  weighted: boolean;
-  se_hc0: number[];
-  se_hc1: number[];
-  se_hc2: number[];
-  se_hc3: number[];
-  clusters?: number[];
-  se_cluster?: number[];
-  n_clusters?: number;
-  nw_lag?: number;
-  se_newey_west?: number[];
-  durbin_watson?: number;
-  breusch_pagan: [number, number];
-  cooks_distance: number[];
-  leverage: number[];
-}
-
-const fixture = JSON.parse(readFileSync(new URL('../fixtures/reference/residual-cases.json', import.meta.url), 'utf8')) as {
-  library: string;
-  cases: ResidualCase[];
-};
 const SOURCE = fixture.library;
 const TERMS_ORDER = (c: ResidualCase) => ['intercept', ...c.terms];
 

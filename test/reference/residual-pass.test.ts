@@ -3,7 +3,6 @@
 // scripts/make-residual-fixtures.py: OLS/WLS fit(cov_type=HC0…HC3, cluster, HAC).bse,
 // het_breuschpagan(robust=True), durbin_watson, jarque_bera, OLSInfluence (hat_matrix_diag,
 // cooks_distance), numpy.quantile. Every check below names its source.
-import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import type { DesignShape } from '../../src/fit/accumulator.js';
 import { blockLayout, residualContext, residualModel } from '../../src/fit/residual-model.js';
@@ -14,38 +13,9 @@ import type { ResidualPassOptions } from '../../src/fit/residual-segment.js';
 import { solve } from '../../src/fit/solve.js';
 import { expectClose } from '../support/close.js';
 import { foldRows, toBlock } from '../support/fit-rows.js';
+import { fixture } from '../support/residual-cases.js';
+import type { ResidualCase } from '../support/residual-cases.js';
 
-interface ResidualCase {
-  name: string;
-  terms: string[];
-  rows: number[][];
-  weighted: boolean;
-  estimates: number[];
-  se_classical: number[];
-  se_hc0: number[];
-  se_hc1: number[];
-  se_hc2: number[];
-  se_hc3: number[];
-  clusters?: number[];
-  se_cluster?: number[];
-  n_clusters?: number;
-  nw_lag?: number;
-  se_newey_west?: number[];
-  durbin_watson?: number;
-  breusch_pagan: [number, number];
-  jarque_bera: [number, number];
-  skewness: number;
-  kurtosis: number;
-  leverage: number[];
-  cooks_distance: number[];
-  quantiles: Record<string, number>;
-  sigma: number;
-}
-
-const fixture = JSON.parse(readFileSync(new URL('../fixtures/reference/residual-cases.json', import.meta.url), 'utf8')) as {
-  library: string;
-  cases: ResidualCase[];
-};
 const SOURCE = fixture.library;
 
 function pass(c: ResidualCase, top: number): { seg: ResidualSegment; findings: ResidualFindings } {
