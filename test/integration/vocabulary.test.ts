@@ -178,6 +178,7 @@ describe('one vocabulary for --json, the library and the result tables', () => {
     const before = (await tdb.query(`select count(*)::int as n from rowfold.runs`)).rows[0].n as number;
     const dry = await fit({ ...SPEC, name: 'vocabulary_unpublished' }, { db: tdb.url, publish: false });
     expect(dry.run.run_id).toBeNull();
+    expect(dry.models.map((m) => m.model_id)).toEqual([null, null, null]);
     expect(dry.models.map((m) => m.coefficients.map((c) => c.estimate))).toEqual(doc.models.map((m) => m.coefficients.map((c) => c.estimate)));
     expect((await tdb.query(`select count(*)::int as n from rowfold.runs`)).rows[0].n).toBe(before);
   });
@@ -193,6 +194,9 @@ describe('one vocabulary for --json, the library and the result tables', () => {
     expect(streamed.map((m) => m.coefficients.map((c) => c.estimate))).toEqual(doc.models.map((m) => m.coefficients.map((c) => c.estimate)));
     const published = await tdb.query(`select count(*)::int as n from rowfold.models where run_id = $1`, [kept.run.run_id]);
     expect(published.rows[0].n).toBe(3);
+    // Each model handed on carries the model_id it was published under.
+    const ids = await tdb.query(`select segment_key, model_id::int from rowfold.models where run_id = $1 order by segment_key`, [kept.run.run_id]);
+    expect(streamed.map((m) => [m.segment_key, m.model_id])).toEqual(ids.rows.map((r: { segment_key: string; model_id: number }) => [r.segment_key, r.model_id]));
   });
 
   it.skipIf(ON_EMBEDDED)('takes a pg pool of the caller, uses it, and leaves it open', async () => {
