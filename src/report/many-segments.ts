@@ -78,7 +78,7 @@ export function renderSegmentIndex(index: SegmentIndex, shown: ReadonlyMap<strin
   const head =
     'segment'.padEnd(labelWidth) + '  ' + 'rows'.padStart(rowsWidth) + '  ' + index.terms.map((t) => (t.length > 11 ? t.slice(0, 10) + '…' : t).padStart(11)).join(' ') + '  status';
   const lines: string[] = [];
-  let bytes = head.length;
+  let bytes = Buffer.byteLength(head);
   let listed = 0;
   for (let i = 0; i < n; i++) {
     const label = index.labels[i]!;
@@ -89,7 +89,7 @@ export function renderSegmentIndex(index: SegmentIndex, shown: ReadonlyMap<strin
     for (let j = 0; j < k; j++) line += (j > 0 ? ' ' : '') + cell(index.estimates[i * k + j]!);
     const status = index.statuses[i]!;
     if (status !== '') line += `  ${escapeHtml(status.replaceAll('_', ' '))}`;
-    bytes += line.length + 1;
+    bytes += Buffer.byteLength(line) + 1;
     if (bytes > INDEX_BYTES) break;
     lines.push(line.trimEnd());
     listed++;
