@@ -2,6 +2,8 @@ import type { Kysely, Selectable } from 'kysely';
 import type { FitStatus } from '../fit/fit-solution.js';
 import { checkSchemaName } from '../store/index.js';
 import type { StoreDatabase } from '../store/index.js';
+import { loadManySegments } from './load-many-segments.js';
+import { MANY_SEGMENTS } from './many-segments.js';
 import { ReportError } from './report-error.js';
 import type { ReportCoefficient, ReportModel, ReportRun } from './report-run.js';
 import { segmentLabel, segmentShortLabel } from './segment-label.js';
@@ -21,6 +23,7 @@ export async function loadReportRun(
   schema: string,
   fit: string,
   keyNamesOf: (specText: string) => readonly string[],
+  wanted?: string,
 ): Promise<ReportRun> {
   const store = db.withSchema(checkSchemaName(schema));
   const run = await store
@@ -96,51 +99,61 @@ export async function loadReportRun(
     .where('run_id', '>', run.run_id)
     .orderBy('run_id')
     .execute();
-  // Pages of models in key order: the driver's rows of one page at a time, not of 100,000 models.
-  const modelRows: ModelRow[] = [];
-  const models: ReportModel[] = [];
-  for (let after: string | null = null; ; ) {
-    let page = store.selectFrom('models').selectAll().where('run_id', '=', run.run_id);
-    if (after !== null) page = page.where('segment_key', '>', after);
-    const rows = await page.orderBy('segment_key').limit(MODELS_PER_PAGE).execute();
-    for (const m of rows) {
-      if (m.terms === null) modelRows.push(m);
-      else models.push(toReportModel(m));
+  const counted = await store.selectFrom('models').select((eb) => eb.fn.countAll<string>().as('n')).where('run_id', '=', run.run_id).executeTakeFirst();
+  const modelCount = Number(counted?.n ?? 0);
+
+  const runKey = run.run_id;
+  /** Models of the run in key order (those of `keys` only, when given), read in pages. */
+  async function readModels(keys?: readonly string[]): Promise<ReportModel[]> {
+    if (keys !== undefined && keys.length === 0) return [];
+    // Pages of models in key order: the driver's rows of one page at a time, not of 100,000 models.
+    const modelRows: ModelRow[] = [];
+    const models: ReportModel[] = [];
+    for (let after: string | null = null; ; ) {
+      let page = store.selectFrom('models').selectAll().where('run_id', '=', runKey);
+      if (keys !== undefined) page = page.where('segment_key', 'in', keys);
+      if (after !== null) page = page.where('segment_key', '>', after);
+      const rows = await page.orderBy('segment_key').limit(MODELS_PER_PAGE).execute();
+      for (const m of rows) {
+        if (m.terms === null) modelRows.push(m);
+        else models.push(toReportModel(m));
+      }
+      if (rows.length < MODELS_PER_PAGE) break;
+      after = rows[rows.length - 1]!.segment_key;
     }
-    if (rows.length < MODELS_PER_PAGE) break;
-    after = rows[rows.length - 1]!.segment_key;
+
+    // Coefficients come as arrays on the model rows (migration 0007); a run published before
+    // keeps them as rows of the coefficients view.
+    if (modelRows.length > 0) {
+      let query = store.selectFrom('coefficients').selectAll().where('run_id', '=', runKey);
+      if (keys !== undefined) query = query.where('model_id', 'in', modelRows.map((m) => m.model_id));
+      const coefficientRows = await query.orderBy('model_id').orderBy('term_index').execute();
+      for (const c of coefficientRows) {
+        const id = String(c.model_id);
+        let list = byModel.get(id);
+        if (list === undefined) byModel.set(id, (list = []));
+        list.push({
+          termIndex: c.term_index,
+          term: c.term,
+          aliased: c.aliased,
+          estimate: num(c.estimate),
+          stdError: num(c.std_error),
+          t: num(c.t),
+          p: num(c.p),
+          ciLow: num(c.ci_low),
+          ciHigh: num(c.ci_high),
+          vif: num(c.vif),
+        });
+      }
+    }
+    // A run published before migration 0007 has all its coefficients as rows (a run is one or the other).
+    for (const m of modelRows) models.push(toReportModel(m));
+    return models;
   }
 
-  // Coefficients come as arrays on the model rows (migration 0007); a run published before
-  // keeps them as rows of the coefficients view.
-  if (modelRows.length > 0) {
-    const coefficientRows = await store
-      .selectFrom('coefficients')
-      .selectAll()
-      .where('run_id', '=', run.run_id)
-      .orderBy('model_id')
-      .orderBy('term_index')
-      .execute();
-    for (const c of coefficientRows) {
-      const id = String(c.model_id);
-      let list = byModel.get(id);
-      if (list === undefined) byModel.set(id, (list = []));
-      list.push({
-        termIndex: c.term_index,
-        term: c.term,
-        aliased: c.aliased,
-        estimate: num(c.estimate),
-        stdError: num(c.std_error),
-        t: num(c.t),
-        p: num(c.p),
-        ciLow: num(c.ci_low),
-        ciHigh: num(c.ci_high),
-        vif: num(c.vif),
-      });
-    }
-  }
-  // A run published before migration 0007 has all its coefficients as rows (a run is one or the other).
-  for (const m of modelRows) models.push(toReportModel(m));
+  // Many segments: aggregates from the tables and the few models shown, never every model.
+  const many = modelCount > MANY_SEGMENTS ? await loadManySegments(db, schema, String(run.run_id), modelCount, keyNames, wanted, readModels) : null;
+  const models = many === null ? await readModels() : many.standouts.map((s) => s.model);
 
   return {
     schema,
@@ -161,6 +174,8 @@ export async function loadReportRun(
     segmentColumns: keyNames,
     newerRuns: newer.map((r) => ({ runId: String(r.run_id), status: r.status, errorMessage: r.error_message })),
     models,
+    modelCount,
+    many,
   };
 }
 

@@ -6,11 +6,7 @@ import type { ReportModel } from './report-run.js';
  * What the numbers above do not say, in plain words, with the number of p-values of this
  * run so the multiple-comparison point is concrete.
  */
-export function renderCautionsSection(models: readonly ReportModel[]): string {
-  const pValues = models.reduce(
-    (n, m) => n + m.coefficients.filter((c) => c.term !== INTERCEPT_TERM && c.p !== null && Number.isFinite(c.p)).length,
-    0,
-  );
+export function renderCautionsSection(pValues: number, segments: number): string {
   const byChance = Math.round(pValues * 0.05 * 10) / 10;
   return [
     '<section id="cautions">',
@@ -25,9 +21,14 @@ export function renderCautionsSection(models: readonly ReportModel[]): string {
       'of constant variance, around a relation that is linear in the terms. Rows close in time are often correlated and spread often grows with level; ' +
       'then the intervals are too narrow and the p-values too small. The residual charts above help check: medians that wander from zero, bands that widen, and more large errors than the normal gives.</li>',
     `<li><strong>Many p-values, some small by chance.</strong> This run reports ${formatCount(pValues)} p-value${pValues === 1 ? '' : 's'} of terms ` +
-      `across ${formatCount(models.length)} segment${models.length === 1 ? '' : 's'}. Even if no term mattered anywhere, about ${byChance} of them would fall below 0.05. ` +
+      `across ${formatCount(segments)} segment${segments === 1 ? '' : 's'}. Even if no term mattered anywhere, about ${byChance} of them would fall below 0.05. ` +
       'A term that looks significant in a few segments only is weak evidence unless the pattern is expected or holds up in new data.</li>',
     '</ul>',
     '</section>',
   ].join('\n');
+}
+
+/** The p-values of terms other than the intercept across the models. */
+export function pValuesOf(models: readonly ReportModel[]): number {
+  return models.reduce((n, m) => n + m.coefficients.filter((c) => c.term !== INTERCEPT_TERM && c.p !== null && Number.isFinite(c.p)).length, 0);
 }

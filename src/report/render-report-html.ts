@@ -1,4 +1,6 @@
 import { escapeHtml } from './escape-html.js';
+import { formatCount } from './format-number.js';
+import { pValuesOf } from './render-cautions-section.js';
 import { renderAcrossSegmentsSection } from './render-across-segments-section.js';
 import { renderAuditSection } from './render-audit-section.js';
 import type { ReportContext } from './render-audit-section.js';
@@ -11,7 +13,7 @@ import { renderScoringSection } from './render-scoring-section.js';
 import type { StoredScoring } from '../store/load-latest-scoring.js';
 import type { ReportModel, ReportRun } from './report-run.js';
 import { REPORT_CSS } from './report-styles.js';
-import { MANY_SEGMENTS, renderDistributionSection, standouts } from './many-segments.js';
+import { renderDistributionSection } from './many-segments.js';
 import { renderRobustSection } from './render-robust-section.js';
 import type { StoredResiduals } from '../store/index.js';
 
@@ -47,23 +49,25 @@ const SECTIONS: readonly [string, string][] = [
 export async function renderReportHtml(content: ReportContent): Promise<string> {
   const { run, context } = content;
   const title = `rowfold · fit ${run.fitName} · run ${run.runId}`;
-  const many = run.models.length > MANY_SEGMENTS;
+  const many = run.many;
   // Many segments: distributions, the segments that stand out and their tables only.
-  const shown = many ? standouts(run.models, content.residualModel) : [];
-  const models = many ? renderModelSection(shown.map((s) => s.model), { total: run.models.length, fitName: run.fitName }) : renderModelSection(run.models);
-  const across = many ? renderDistributionSection(run.models, shown) : await renderAcrossSegmentsSection(run.models, run.segmentColumns);
+  const models = many !== null ? renderModelSection(many.standouts.map((s) => s.model), { total: run.modelCount, fitName: run.fitName }) : renderModelSection(run.models);
+  const across =
+    many !== null
+      ? renderDistributionSection(many, run.modelCount, run.models[0]?.confidence ?? 0.95)
+      : await renderAcrossSegmentsSection(run.models, run.segmentColumns);
   const labels = new Map(run.models.map((m) => [m.segmentKey, m.label]));
   const sections = [
     renderAuditSection(run, context),
     // Many segments: the distributions first, they say what the standouts stand out from.
-    ...(many ? [across, models] : [models, across]),
+    ...(many !== null ? [across, models] : [models, across]),
     await renderResidualSection(content.residualModel, content.residuals),
     await renderScoringSection(content.scoring ?? null, content.residualModel, (key) => labels.get(key) ?? key),
     renderRobustSection(run.models, content.robust ?? new Map(), content.residualModel) ?? '',
     await renderConditioningSection(run.models, run.segmentColumns, many),
-    renderCautionsSection(run.models),
+    renderCautionsSection(many === null ? pValuesOf(run.models) : many.pValues, run.modelCount),
   ];
-  const count = run.models.length;
+  const count = run.modelCount;
   return [
     '<!doctype html>',
     '<html lang="en">',
@@ -77,7 +81,7 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     '<body>',
     '<header class="page">',
     `<h1>Fit ${escapeHtml(run.fitName)}</h1>`,
-    `<p>Run ${escapeHtml(run.runId)} · ${count} model${count === 1 ? '' : 's'} · ended ${escapeHtml(run.endedAt.toISOString().slice(0, 10))}</p>`,
+    `<p>Run ${escapeHtml(run.runId)} · ${formatCount(count)} model${count === 1 ? '' : 's'} · ended ${escapeHtml(run.endedAt.toISOString().slice(0, 10))}</p>`,
     '</header>',
     `<nav class="contents">${SECTIONS.filter(([id]) => id !== 'robust' || (content.robust?.size ?? 0) > 0)
       .map(([id, name]) => `<a href="#${id}">${name}</a>`)

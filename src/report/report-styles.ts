@@ -27,6 +27,9 @@ details.segment { border: 1px solid var(--rule); background: #fff; margin: 8px 0
 details.segment > summary { cursor: pointer; padding: 7px 12px; background: var(--soft); font-weight: 600; }
 details.segment > summary span.meta { font-weight: 400; color: var(--muted); margin-left: 10px; }
 details.segment > div { padding: 8px 12px 12px; }
+details#segment-index > summary { cursor: pointer; padding: 7px 12px; background: var(--soft); font-weight: 600; }
+pre.segment-index { max-height: 70vh; margin: 0; }
+pre.segment-index-head { margin: 0; border-bottom: 0; font-weight: 600; overflow: hidden; }
 div.stat-groups { display: grid; grid-template-columns: repeat(auto-fit, minmax(210px, 1fr)); gap: 6px 18px; margin: 4px 0 10px; }
 div.stat-group h4 { margin: 0 0 2px; font-size: 0.8em; font-weight: 600; text-transform: uppercase; letter-spacing: 0.04em; color: var(--muted); }
 dl.stats { display: flex; flex-wrap: wrap; gap: 2px 16px; margin: 0; }

@@ -66,10 +66,11 @@ export async function writeFitReport(database: Database, opts: WriteFitReportOpt
   let model: ReportModel;
   let robust: Map<string, StoredResiduals>;
   try {
-    run = await loadReportRun(db, schema, opts.fit, (text) => tryParseSpec(text, opts.fit)?.segmentBy ?? []);
-    model = chooseSegment(run.models, opts.segment);
+    run = await loadReportRun(db, schema, opts.fit, (text) => tryParseSpec(text, opts.fit)?.segmentBy ?? [], opts.segment);
+    // Many segments: the loader found the segment in the tables (run.models are the shown ones).
+    model = run.many?.chosen ?? chooseSegment(run.models, opts.segment);
     scoring = await loadLatestScoring(db, schema, opts.fit, model.segmentKey);
-    robust = await loadResidualResults(db, schema, run.runId);
+    robust = await loadResidualResults(db, schema, run.runId, run.many === null ? undefined : run.models.map((m) => m.modelId));
   } finally {
     await db.destroy();
   }
@@ -85,7 +86,7 @@ export async function writeFitReport(database: Database, opts: WriteFitReportOpt
   const path = resolve(opts.out);
   await mkdir(dirname(path), { recursive: true });
   await writeFile(path, html, 'utf8');
-  return { path, segments: run.models.length };
+  return { path, segments: run.modelCount };
 }
 
 function tryParseSpec(text: string, fit: string): FitSpec | null {

@@ -23,17 +23,24 @@ const num = (v: unknown): number | null => (v === null || v === undefined ? null
 /**
  * The residual-pass results of one run by model id (tables of migration 0010). Empty when the
  * run had no residual pass; a schema migrated before the tables existed reads as empty too.
+ * With `modelIds`, those models' results only (a report of many segments shows a few).
  */
-export async function loadResidualResults(db: Kysely<StoreDatabase>, schema: string, runId: string): Promise<Map<string, StoredResiduals>> {
+export async function loadResidualResults(
+  db: Kysely<StoreDatabase>,
+  schema: string,
+  runId: string,
+  modelIds?: readonly string[],
+): Promise<Map<string, StoredResiduals>> {
   checkSchemaName(schema);
   const have = await sql<{ n: number }>`select count(*)::int as n from pg_catalog.pg_tables where schemaname = ${schema} and tablename = 'coefficient_errors'`.execute(db);
   if (Number(have.rows[0]?.n ?? 0) === 0) return new Map();
   const t = (name: string) => sql.id(schema, name);
+  const only = modelIds === undefined ? sql`` : sql` and model_id = any(${modelIds}::bigint[])`;
   const [errors, tests, influential, holdout] = await Promise.all([
-    sql<Record<string, unknown>>`select model_id::text as model_id, term, method, std_error, p, ci_low, ci_high from ${t('coefficient_errors')} where run_id = ${runId}::bigint order by model_id, method, term`.execute(db),
-    sql<Record<string, unknown>>`select model_id::text as model_id, test, statistic, df, p, extras from ${t('residual_tests')} where run_id = ${runId}::bigint order by model_id, test`.execute(db),
-    sql<Record<string, unknown>>`select model_id::text as model_id, ranked_by, rank, row_key, residual, leverage, cooks_distance from ${t('influential_rows')} where run_id = ${runId}::bigint order by model_id, ranked_by, rank`.execute(db),
-    sql<Record<string, unknown>>`select model_id::text as model_id, rows, rmse, mae, r2 from ${t('holdout_errors')} where run_id = ${runId}::bigint`.execute(db),
+    sql<Record<string, unknown>>`select model_id::text as model_id, term, method, std_error, p, ci_low, ci_high from ${t('coefficient_errors')} where run_id = ${runId}::bigint${only} order by model_id, method, term`.execute(db),
+    sql<Record<string, unknown>>`select model_id::text as model_id, test, statistic, df, p, extras from ${t('residual_tests')} where run_id = ${runId}::bigint${only} order by model_id, test`.execute(db),
+    sql<Record<string, unknown>>`select model_id::text as model_id, ranked_by, rank, row_key, residual, leverage, cooks_distance from ${t('influential_rows')} where run_id = ${runId}::bigint${only} order by model_id, ranked_by, rank`.execute(db),
+    sql<Record<string, unknown>>`select model_id::text as model_id, rows, rmse, mae, r2 from ${t('holdout_errors')} where run_id = ${runId}::bigint${only}`.execute(db),
   ]);
   type Mutable = { errors: StoredResiduals['errors'][number][]; tests: StoredResiduals['tests'][number][]; influential: StoredResiduals['influential'][number][]; holdout: StoredResiduals['holdout'] };
   const out = new Map<string, Mutable>();
