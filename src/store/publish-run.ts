@@ -26,7 +26,7 @@ export interface RunResult {
 
 /** Options of {@link publishRun}. */
 export interface PublishOptions {
-  /** Models per INSERT statement (each with its coefficients as arrays). Default 5000. */
+  /** Models per batch (one COPY of models with their coefficients as arrays, one of covariances). Default 5000. */
   readonly batchSize?: number;
 }
 
@@ -34,8 +34,8 @@ const DEFAULT_BATCH_SIZE = 5000;
 
 
 /**
- * Publishes a run in one transaction: all its models, coefficients and covariances (set-based inserts, one
- * statement per batch) and the run marked succeeded with its counts. A reader sees all of it
+ * Publishes a run in one transaction: all its models, coefficients and covariances (binary COPY in the
+ * transaction, one per table and batch) and the run marked succeeded with its counts. A reader sees all of it
  * or none; if anything fails nothing is written and the run stays `running` for the caller to
  * {@link failRun}.
  *
@@ -93,9 +93,9 @@ export async function writeRunResult(
   const flush = async () => {
     if (batch.length === 0) return;
     try {
-      await insertModels(trx, schema, runId, run.fit_name, batch);
+      const ids = await insertModels(trx, schema, runId, run.fit_name, batch);
       // The batch's covariances beside its models, before the batch is let go.
-      await insertCovariances(trx, schema, runId, batch);
+      await insertCovariances(trx, schema, runId, batch, ids);
     } catch (error) {
       throw explainInsertFailure(error, runId, batch);
     }
