@@ -2,7 +2,7 @@ import type { Kysely } from 'kysely';
 import { normalEquationsProblem } from '../fit/check-normal-equations.js';
 import type { FitSolution } from '../fit/fit-solution.js';
 import type { SegmentState, SegmentedFit, SegmentedFitOptions } from '../fit/segmented-fit.js';
-import { solve } from '../fit/solve.js';
+import { solve, solveDigits } from '../fit/solve.js';
 import { solveExtended } from '../fit/solve-extended.js';
 import type { DesignPlan } from '../plan/design-plan.js';
 import type { Database, SharedSnapshot } from '../source/database.js';
@@ -531,6 +531,12 @@ export async function readAndSolve(
   const more = accuracy === 'auto' || (accuracy === 'extended' && refit !== null);
   if (more) {
     for (const s of states) {
+      // auto: the digits alone decide (no inference assembled); only the models short of the
+      // target are solved now, the others once, as they are published.
+      if (accuracy === 'auto' && s.acc.precision === 'double') {
+        const digits = solveDigits(s.acc, { confidence: spec.confidence });
+        if (digits === undefined || digits === null || digits >= AUTO_TARGET_DIGITS) continue;
+      }
       const fit = solveOne(s);
       if (fit.status !== 'ok' && fit.status !== 'no_residual_df') continue;
       if (accuracy === 'extended' || (fit.estimatedDigits !== null && fit.estimatedDigits < AUTO_TARGET_DIGITS)) {
