@@ -87,26 +87,46 @@ export async function writeRunResult(
     throw new Error(`run ${runId} has already ${run.status}; only a running run can be published`);
   }
 
-  // Batch by batch: a batch of models is written (and let go) before the next is taken.
+  // Batch by batch: while the server takes one batch, the next is taken (solved, when the
+  // caller solves as it yields); a batch is written before the one after it is sent, so no
+  // more than two batches are held.
   let segmentCount = 0;
   let batch: ModelRecord[] = [];
-  const flush = async () => {
-    if (batch.length === 0) return;
+  let writing: Promise<void> | null = null;
+  const write = async (models: ModelRecord[]) => {
     try {
-      const ids = await insertModels(trx, schema, runId, run.fit_name, batch);
+      const ids = await insertModels(trx, schema, runId, run.fit_name, models);
       // The batch's covariances beside its models, before the batch is let go.
-      await insertCovariances(trx, schema, runId, batch, ids);
+      await insertCovariances(trx, schema, runId, models, ids);
     } catch (error) {
-      throw explainInsertFailure(error, runId, batch);
+      throw explainInsertFailure(error, runId, models);
     }
-    segmentCount += batch.length;
+    segmentCount += models.length;
+  };
+  const flush = async () => {
+    if (writing !== null) {
+      const w = writing;
+      writing = null;
+      await w;
+    }
+    if (batch.length === 0) return;
+    writing = write(batch);
+    // Awaited at the next flush; marked handled now so that a failure while the next batch is
+    // taken is not reported as unhandled.
+    writing.catch(() => undefined);
     batch = [];
   };
-  for await (const model of result.models) {
-    batch.push(model);
-    if (batch.length >= batchSize) await flush();
+  try {
+    for await (const model of result.models) {
+      batch.push(model);
+      if (batch.length >= batchSize) await flush();
+    }
+    await flush();
+    await flush();
+  } finally {
+    // A failure while taking models: the batch in flight settles before the transaction ends.
+    if (writing !== null) await (writing as Promise<void>).catch(() => undefined);
   }
-  await flush();
   const seconds = typeof result.seconds === 'function' ? result.seconds() : result.seconds;
   if (!(Number.isFinite(seconds) && seconds >= 0)) throw new RangeError(`seconds must be a finite number ≥ 0, got ${seconds}`);
 
