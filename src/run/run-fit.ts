@@ -38,7 +38,7 @@ import { residualPass } from './residual-pass.js';
 import type { ModelResiduals } from './residual-pass.js';
 import { previousSolutions } from './refit-anchors.js';
 import { toolVersion } from '../common/tool-version.js';
-import { collectGarbage, MODELS_PER_COLLECTION } from './collect-garbage.js';
+import { collectGarbage, collectGarbageWhenGrown, MODELS_PER_COLLECTION, MODELS_PER_COLLECTION_CHECK } from './collect-garbage.js';
 import type { RunOutcome } from './fit-document.js';
 import type { DatabaseOption } from '../source/open-database.js';
 
@@ -405,7 +405,7 @@ export function publishable(
     let n = 0;
     for (const m of out.models()) {
       if ((++n & 1023) === 0) req.signal?.throwIfAborted();
-      if (n % MODELS_PER_COLLECTION === 0) collectGarbage();
+      if (n % MODELS_PER_COLLECTION_CHECK === 0) collectGarbageWhenGrown();
       req.onModel?.(m);
       if (kept.length < keep) kept.push(m);
       yield { segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes };
