@@ -22,6 +22,12 @@ export interface RunResult {
    * solves as it yields never holds more than a batch of solved models.
    */
   readonly models: Iterable<ModelRecord> | AsyncIterable<ModelRecord>;
+  /**
+   * Told, batch by batch once a batch is written, the `model_id` each of its models got, in the
+   * order the models were taken (for `--json` and the library's documents). Without it the ids
+   * are not read back.
+   */
+  readonly published?: (modelIds: readonly number[]) => void;
 }
 
 /** Options of {@link publishRun}. */
@@ -94,13 +100,16 @@ export async function writeRunResult(
   let batch: ModelRecord[] = [];
   let writing: Promise<void> | null = null;
   const write = async (models: ModelRecord[]) => {
+    let ids: number[];
     try {
-      const ids = await insertModels(trx, schema, runId, run.fit_name, models);
+      ids = await insertModels(trx, schema, runId, run.fit_name, models);
       // The batch's covariances beside its models, before the batch is let go.
       await insertCovariances(trx, schema, runId, models, ids);
     } catch (error) {
       throw explainInsertFailure(error, runId, models);
     }
+    // In the order the batches were taken: each is written before the next is sent.
+    result.published?.(ids);
     segmentCount += models.length;
   };
   const flush = async () => {
@@ -145,6 +154,7 @@ export async function writeRunResult(
     .where('run_id', '=', runIdText(runId))
     .execute();
 }
+
 
 function checkResult(result: RunResult): void {
   for (const key of ['rowsRead', 'rowsUsed'] as const) {
