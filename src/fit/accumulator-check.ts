@@ -28,7 +28,7 @@ export function checkBlockRows(
   shape: DesignShape,
   pairs: boolean,
   /** The segment's label, or a function that makes it (called only to name a bad value). */
-  labelOf: string | undefined | (() => string | undefined),
+  labelOf: string | undefined | (() => string | undefined) | { labelText(): string },
   block: RowBlock,
   from: number,
   to: number,
@@ -48,7 +48,7 @@ export function checkBlockRows(
     const w = wcol < 0 ? 1 : v[base + wcol]!;
     if (probe === 0 && w >= 0) continue;
     const names = blockColumnNames(shape);
-    const label = typeof labelOf === 'function' ? labelOf() : labelOf;
+    const label = typeof labelOf === 'function' ? labelOf() : typeof labelOf === 'object' ? labelOf.labelText() : labelOf;
     const where = label === undefined ? '' : ` in segment ${label}`;
     for (let j = 0; j < width; j++) {
       const x = v[base + j]!;

@@ -1,9 +1,21 @@
-import { addResidualSums, splitCoefficients } from '../numeric/residual-sums.js';
+import { addResidualSums, splitCoefficientsInto } from '../numeric/residual-sums.js';
 import type { FoldCounts, FoldLayout, RefinementAnchor } from './accumulator-state.js';
 import { wasmCompensated } from './wasm-kernel.js';
 
-/** Dekker halves of each anchor's coefficients, made once per anchor. */
-const halves = new WeakMap<RefinementAnchor, { hi: Float64Array; lo: Float64Array }>();
+/**
+ * Dekker halves of the anchor's coefficients, split again at every call into arrays shared by
+ * all calls (O(p) against the O(rows·p) sums): a cache per anchor cost each of a hundred
+ * thousand small tracked models two arrays of their own and a weak-map entry.
+ */
+let scratch = { hi: new Float64Array(0), lo: new Float64Array(0) };
+
+function halvesOf(coefficients: Float64Array): { hi: Float64Array; lo: Float64Array } {
+  const q = coefficients.length;
+  // Of the coefficients' length exactly (the kernels take the arrays' lengths as given).
+  if (scratch.hi.length !== q) scratch = { hi: new Float64Array(q), lo: new Float64Array(q) };
+  splitCoefficientsInto(coefficients, scratch.hi, scratch.lo);
+  return scratch;
+}
 
 /**
  * The fold of a refinement pass: adds the residual sums of checked rows `from … to-1`
@@ -23,8 +35,7 @@ export function foldRowsResiduals(
   to: number,
   counts: FoldCounts,
 ): void {
-  let split = halves.get(anchor);
-  if (split === undefined) halves.set(anchor, (split = splitCoefficients(anchor.coefficients)));
+  const split = halvesOf(anchor.coefficients);
   const wasm = layout.pairs ? null : wasmCompensated();
   if (wasm === null) {
     addResidualSums(layout, v, width, from, to, anchor.coefficients, split.hi, split.lo, anchor.centre, sums, counts);

@@ -129,7 +129,13 @@ export class ResidualTracking {
     // The centre only shifts Σw(y − c) and Σw(y − c)²: re-centred in the same algebra.
     const dc = next.centre - this.anchor.centre;
     if (dc !== 0) recentre(this.sums, q, dc, factorWeightSum(factor, order));
-    this.anchor = next;
+    // A following anchor is this tracking's own: the next one is copied into its coefficients
+    // (held in the slab with the factor), so that a hundred thousand small models do not each
+    // keep an array of their own.
+    if (this.follow && this.anchor.coefficients.length === next.coefficients.length) {
+      this.anchor.coefficients.set(next.coefficients);
+      this.anchor = { coefficients: this.anchor.coefficients, centre: next.centre };
+    } else this.anchor = next;
   }
 
   /**

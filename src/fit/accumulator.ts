@@ -26,6 +26,11 @@ import { solve } from './solve.js';
 
 export type { AccumulatorState, DesignShape, FoldMethod, FoldPrecision, RefinementAnchor } from './accumulator-state.js';
 
+/** What makes a segment's label when one is needed (a segment's state: no closure per segment). */
+export interface LabelSource {
+  labelText(): string;
+}
+
 /** Rows at which a tracked small model is checked once for digits it already has (see moveAnchor). */
 const COMFORT_ROWS = 16384;
 /** Largest order checked: the check solves the model, O(order³). */
@@ -61,9 +66,10 @@ export class Accumulator {
   readonly order: number;
   /** Segment label used in error messages (optional); made when first asked for. */
   get label(): string | undefined {
-    return typeof this.labelOf === 'function' ? this.labelOf() : this.labelOf;
+    const l = this.labelOf;
+    return typeof l === 'function' ? l() : typeof l === 'object' ? l.labelText() : l;
   }
-  private readonly labelOf: string | (() => string) | undefined;
+  private readonly labelOf: string | (() => string) | LabelSource | undefined;
   readonly method: FoldMethod;
   readonly precision: FoldPrecision;
   /** Whether block values come as (hi, lo) pairs. */
@@ -88,7 +94,7 @@ export class Accumulator {
     shape: DesignShape,
     options: {
       /** A function is called only when the label is needed (a hundred thousand segments need no labels made). */
-      label?: string | (() => string) | undefined;
+      label?: string | (() => string) | LabelSource | undefined;
       workspace?: FoldWorkspace;
       /** Where the factor and sums are carved from (many small segments share slabs); default arrays of their own. */
       slab?: Float64Slab | undefined;

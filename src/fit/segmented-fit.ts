@@ -1,7 +1,7 @@
 import type { RowBlock } from '../numeric/row-block.js';
 import { Accumulator } from './accumulator.js';
 import { Float64Slab } from './float64-slab.js';
-import type { DesignShape, FoldMethod, FoldPrecision, RefinementAnchor } from './accumulator.js';
+import type { DesignShape, FoldMethod, FoldPrecision, LabelSource, RefinementAnchor } from './accumulator.js';
 
 /** How the accumulators of a SegmentedFit fold, and which segments it keeps. */
 export interface SegmentedFitOptions {
@@ -30,6 +30,20 @@ export interface SegmentState {
   /** Stable text form of the key: the JSON array of its values. */
   readonly keyText: string;
   readonly acc: Accumulator;
+}
+
+/** A segment's state as SegmentedFit keeps it: its label is made from the key only when asked for. */
+class Segment implements SegmentState, LabelSource {
+  acc!: Accumulator;
+  constructor(
+    readonly key: readonly (string | null)[],
+    readonly keyText: string,
+    private readonly names: readonly string[],
+  ) {}
+
+  labelText(): string {
+    return this.names.map((n, i) => `${n}=${this.key[i] ?? 'NULL'}`).join(', ');
+  }
 }
 
 /** Rows of one segment held back to be folded together (see SegmentedFit's `held`). */
@@ -203,13 +217,13 @@ export class SegmentedFit {
     const keyText = JSON.stringify(key);
     let s = this.segments.get(keyText);
     if (!s) {
-      const names = this.keyNames;
-      const label = names.length === 0 ? undefined : () => names.map((n, i) => `${n}=${key[i] ?? 'NULL'}`).join(', ');
       const { method, precision, pairs, factor } = this.options;
       const anchor = this.options.anchors?.get(keyText);
       const track = this.options.track instanceof Map ? this.options.track.get(keyText) : this.options.track;
       const slab = this.slab;
-      s = { key, keyText, acc: new Accumulator(this.shape, { label, slab, method, precision, pairs, anchor, track, ...(factor === undefined ? {} : { factor }) }) };
+      const state = new Segment(key, keyText, this.keyNames);
+      state.acc = new Accumulator(this.shape, { label: this.keyNames.length === 0 ? undefined : state, slab, method, precision, pairs, anchor, track, ...(factor === undefined ? {} : { factor }) });
+      s = state;
       this.segments.set(keyText, s);
     }
     return s;

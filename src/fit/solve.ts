@@ -52,6 +52,21 @@ export function solve(acc: Accumulator, options: SolveOptions = {}): FitSolution
   });
 }
 
+/**
+ * The estimated digits {@link solve} would give the model (its `estimatedDigits`), without the
+ * inference, covariance and statistics it would assemble; `undefined` for a model solve leaves
+ * unsolved (no rows, or fewer rows than coefficients). What `accuracy: auto` asks of every
+ * model before it knows which need more than the double fold.
+ */
+export function solveDigits(acc: Accumulator, options: SolveOptions = {}): number | null | undefined {
+  if (emptyUnlessSolvable(acc, options) !== null) return undefined;
+  const f = analyseFactor(acc, options.rankTolerance);
+  const k = f.qr.rank;
+  const betaScaled = f.qr.z.slice();
+  solveUpper(k, f.qr.r11, k, betaScaled);
+  return fastDigits(f, betaScaled, publishedEstimates(f, betaScaled), f.qr.residualNorm ** 2, acc.rows);
+}
+
 /** What a solve path hands to {@link assembleSolution}. */
 export interface SolvedNumbers {
   /** Estimates of the kept coefficients in the coordinates as given (unshifted), kept order. */
@@ -95,7 +110,7 @@ export function assembleSolution(acc: Accumulator, f: FactorAnalysis, options: S
 
   const inference = status === 'ok';
   const sigma2 = inference ? s.rss / dfResidual : Number.NaN;
-  const q = inference ? tQuantile(1 - (1 - confidence) / 2, dfResidual) : Number.NaN;
+  const q = inference ? intervalQuantile(confidence, dfResidual) : Number.NaN;
   const unit = unitCovariance(f);
   const coefficients: CoefficientResult[] = f.names.map((term) => nullCoefficient(term, false));
   for (const j of f.qr.aliased) coefficients[j] = nullCoefficient(f.names[j]!, true);
@@ -244,4 +259,24 @@ export function emptyUnlessSolvable(acc: Accumulator, options: SolveOptions): Fi
 
 function nullCoefficient(term: string, aliased: boolean): CoefficientResult {
   return { term, aliased, estimate: null, stdError: null, t: null, p: null, ciLow: null, ciHigh: null, vif: null };
+}
+
+/** The last t quantiles of the intervals by confidence and degrees of freedom: many segments share a few. */
+const quantiles = new Map<number, Map<number, number>>();
+
+/** t quantile 1 − (1 − confidence)/2 at `df` degrees of freedom, remembered (at most a few thousand kept). */
+function intervalQuantile(confidence: number, df: number): number {
+  let byDf = quantiles.get(confidence);
+  if (byDf === undefined) {
+    if (quantiles.size >= 16) quantiles.clear();
+    byDf = new Map();
+    quantiles.set(confidence, byDf);
+  }
+  let q = byDf.get(df);
+  if (q === undefined) {
+    if (byDf.size >= 4096) byDf.clear();
+    q = tQuantile(1 - (1 - confidence) / 2, df);
+    byDf.set(df, q);
+  }
+  return q;
 }

@@ -41,12 +41,18 @@ const SPLITTER = 134217729;
 export function splitCoefficients(coefficients: Float64Array): { hi: Float64Array; lo: Float64Array } {
   const hi = new Float64Array(coefficients.length);
   const lo = new Float64Array(coefficients.length);
-  coefficients.forEach((b, j) => {
+  splitCoefficientsInto(coefficients, hi, lo);
+  return { hi, lo };
+}
+
+/** {@link splitCoefficients} into arrays the caller holds (of at least the coefficients' length). */
+export function splitCoefficientsInto(coefficients: Float64Array, hi: Float64Array, lo: Float64Array): void {
+  for (let j = 0; j < coefficients.length; j++) {
+    const b = coefficients[j]!;
     const t = SPLITTER * b;
     hi[j] = t - (t - b);
     lo[j] = b - hi[j]!;
-  });
-  return { hi, lo };
+  }
 }
 
 /**

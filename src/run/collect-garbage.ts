@@ -2,6 +2,8 @@ import { setFlagsFromString } from 'node:v8';
 import { runInNewContext } from 'node:vm';
 
 let gc: (() => void) | undefined;
+/** Heap in use right after the last collection made here (bytes), or 0 before the first. */
+let liveAfterCollection = 0;
 
 /**
  * A full garbage collection now. Publishing a hundred thousand models makes garbage faster
@@ -15,7 +17,21 @@ export function collectGarbage(): void {
     gc = runInNewContext('gc') as () => void;
   }
   gc();
+  liveAfterCollection = process.memoryUsage().heapUsed;
 }
 
-/** Models published between two {@link collectGarbage} calls of a run. */
+/**
+ * A full collection when the heap has grown by 15 % (and 16 MB) over what was live after
+ * the last one: garbage is let go in proportion to what the run holds, so a million segments'
+ * state is not marked a hundred times over (a collection every 10,000 models cost 2.8 s of
+ * 8.9 s CPU at 100,000 segments), while the peak stays near the live heap.
+ */
+export function collectGarbageWhenGrown(): void {
+  if (process.memoryUsage().heapUsed > liveAfterCollection * 1.15 + 16 * 1024 * 1024) collectGarbage();
+}
+
+/** Models published between two checks of {@link collectGarbageWhenGrown}. */
+export const MODELS_PER_COLLECTION_CHECK = 2_000;
+
+/** Segments from which the run collects once after its read (the read's garbage before the models'). */
 export const MODELS_PER_COLLECTION = 10_000;

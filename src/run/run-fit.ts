@@ -2,7 +2,7 @@ import type { Kysely } from 'kysely';
 import { normalEquationsProblem } from '../fit/check-normal-equations.js';
 import type { FitSolution } from '../fit/fit-solution.js';
 import type { SegmentState, SegmentedFit, SegmentedFitOptions } from '../fit/segmented-fit.js';
-import { solve } from '../fit/solve.js';
+import { solve, solveDigits } from '../fit/solve.js';
 import { solveExtended } from '../fit/solve-extended.js';
 import type { DesignPlan } from '../plan/design-plan.js';
 import type { Database, SharedSnapshot } from '../source/database.js';
@@ -38,7 +38,7 @@ import { residualPass } from './residual-pass.js';
 import type { ModelResiduals } from './residual-pass.js';
 import { previousSolutions } from './refit-anchors.js';
 import { toolVersion } from '../common/tool-version.js';
-import { collectGarbage, MODELS_PER_COLLECTION } from './collect-garbage.js';
+import { collectGarbage, collectGarbageWhenGrown, MODELS_PER_COLLECTION, MODELS_PER_COLLECTION_CHECK } from './collect-garbage.js';
 import type { RunOutcome } from './fit-document.js';
 import type { DatabaseOption } from '../source/open-database.js';
 
@@ -416,7 +416,7 @@ export function publishable(
     let n = 0;
     for (const m of out.models()) {
       if ((++n & 1023) === 0) req.signal?.throwIfAborted();
-      if (n % MODELS_PER_COLLECTION === 0) collectGarbage();
+      if (n % MODELS_PER_COLLECTION_CHECK === 0) collectGarbageWhenGrown();
       if (!publishing) handOn(m);
       else if (wanted) pending.push(m);
       yield { segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes };
@@ -553,6 +553,12 @@ export async function readAndSolve(
   const more = accuracy === 'auto' || (accuracy === 'extended' && refit !== null);
   if (more) {
     for (const s of states) {
+      // auto: the digits alone decide (no inference assembled); only the models short of the
+      // target are solved now, the others once, as they are published.
+      if (accuracy === 'auto' && s.acc.precision === 'double') {
+        const digits = solveDigits(s.acc, { confidence: spec.confidence });
+        if (digits === undefined || digits === null || digits >= AUTO_TARGET_DIGITS) continue;
+      }
       const fit = solveOne(s);
       if (fit.status !== 'ok' && fit.status !== 'no_residual_df') continue;
       if (accuracy === 'extended' || (fit.estimatedDigits !== null && fit.estimatedDigits < AUTO_TARGET_DIGITS)) {

@@ -168,9 +168,18 @@ export class CopyBinaryDecoder {
   #blockFill = 0;
 
   /** Key ids by a 32-bit hash of the key's raw bytes; collisions are told apart by the bytes. */
-  readonly #keyIds = new Map<number, number | number[]>();
+  /**
+   * Key bytes → id: an open-addressed table of ids + 1 (0 is empty), probed linearly from the
+   * key's hash; the raw bytes of every key sit end to end in one arena. No object per key:
+   * a million segments cost a few typed arrays, not a million maps entries and buffers.
+   */
+  #keySlots = new Int32Array(1024);
+  #keyHashes = new Int32Array(0);
+  #keyArena = new Uint8Array(4096);
+  #keyArenaFill = 0;
+  /** Start of key id i's bytes in the arena at [2i], its length at [2i + 1]. */
+  #keySpans = new Int32Array(512);
   /** Per key id, its raw bytes (length words and bodies). */
-  readonly #keyRaw: Uint8Array[] = [];
   readonly #keyTable: (readonly (string | null)[])[] = [];
   // Raw bytes of the previous emitted row's key fields, so runs of one segment skip the Map.
   #lastKey: Buffer = Buffer.alloc(0);
@@ -649,26 +658,32 @@ export class CopyBinaryDecoder {
     // change key on almost every row).
     let h = 0x811c9dc5;
     for (let i = start; i < end; i++) h = Math.imul(h ^ bytes[i]!, 0x01000193);
-    h >>>= 0;
+    let slots = this.#keySlots;
+    let mask = slots.length - 1;
+    let at = h & mask;
     let id = -1;
-    const found = this.#keyIds.get(h);
-    if (typeof found === 'number') {
-      if (this.#isKey(found, bytes, start, length)) id = found;
-    } else if (found !== undefined) {
-      for (const candidate of found) {
-        if (this.#isKey(candidate, bytes, start, length)) {
-          id = candidate;
-          break;
-        }
+    for (let slot = slots[at]!; slot !== 0; slot = slots[at]!) {
+      if (this.#keyHashes[slot - 1] === h && this.#isKey(slot - 1, bytes, start, length)) {
+        id = slot - 1;
+        break;
       }
+      at = (at + 1) & mask;
     }
     if (id < 0) {
       id = this.#keyTable.length;
       this.#keyTable.push(this.#decodeKey(view, bytes, start));
-      this.#keyRaw.push(Uint8Array.prototype.slice.call(bytes, start, end));
-      if (found === undefined) this.#keyIds.set(h, id);
-      else if (typeof found === 'number') this.#keyIds.set(h, [found, id]);
-      else found.push(id);
+      this.#keepKey(id, h, bytes, start, length);
+      slots[at] = id + 1;
+      if (2 * (id + 1) > slots.length) {
+        // Above half full: twice the slots, every id placed again by its hash.
+        slots = this.#keySlots = new Int32Array(2 * slots.length);
+        mask = slots.length - 1;
+        for (let k = 0; k <= id; k++) {
+          let a = this.#keyHashes[k]! & mask;
+          while (slots[a] !== 0) a = (a + 1) & mask;
+          slots[a] = k + 1;
+        }
+      }
     }
     if (this.#lastKey.byteLength < length) this.#lastKey = Buffer.alloc(Math.max(length, 2 * this.#lastKey.byteLength));
     const last = this.#lastKey;
@@ -679,8 +694,31 @@ export class CopyBinaryDecoder {
   }
 
   #isKey(id: number, bytes: Uint8Array, start: number, length: number): boolean {
-    const raw = this.#keyRaw[id]!;
-    return raw.length === length && sameBytes(raw, 0, bytes, start, length);
+    return this.#keySpans[2 * id + 1] === length && sameBytes(this.#keyArena, this.#keySpans[2 * id]!, bytes, start, length);
+  }
+
+  /** Keeps key id `id`'s hash and bytes (arena and spans grow by doubling). */
+  #keepKey(id: number, h: number, bytes: Uint8Array, start: number, length: number): void {
+    if (this.#keyHashes.length <= id) {
+      const hashes = new Int32Array(Math.max(1024, 2 * this.#keyHashes.length));
+      hashes.set(this.#keyHashes);
+      this.#keyHashes = hashes;
+    }
+    this.#keyHashes[id] = h;
+    if (this.#keySpans.length < 2 * id + 2) {
+      const spans = new Int32Array(2 * this.#keySpans.length);
+      spans.set(this.#keySpans);
+      this.#keySpans = spans;
+    }
+    if (this.#keyArenaFill + length > this.#keyArena.length) {
+      const arena = new Uint8Array(Math.max(2 * this.#keyArena.length, this.#keyArenaFill + length));
+      arena.set(this.#keyArena.subarray(0, this.#keyArenaFill));
+      this.#keyArena = arena;
+    }
+    this.#keyArena.set(bytes.subarray(start, start + length), this.#keyArenaFill);
+    this.#keySpans[2 * id] = this.#keyArenaFill;
+    this.#keySpans[2 * id + 1] = length;
+    this.#keyArenaFill += length;
   }
 
   #decodeKey(view: DataView, bytes: Buffer, start: number): (string | null)[] {

@@ -1,6 +1,6 @@
 import type pg from 'pg';
 import type { DbSession, QueryOutcome } from './database.js';
-import { copyInto } from './copy-in.js';
+import { copyInto } from '../common/copy-in.js';
 import { readDesign } from './read-design.js';
 import { streamCopyChunks } from './stream-copy-chunks.js';
 

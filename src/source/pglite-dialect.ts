@@ -20,6 +20,7 @@ import type {
   TransactionSettings,
 } from 'kysely';
 
+import { COPY_FROM_INPUT, copyFromInput } from '../common/copy-from-input.js';
 import { pgliteQuery } from './pglite-query.js';
 
 /** Exclusive use of a PGlite instance, handed out by the owner's session queue. */
@@ -142,6 +143,13 @@ class PGliteConnection implements DatabaseConnection {
 
   async executeQuery<R>(compiledQuery: CompiledQuery): Promise<QueryResult<R>> {
     if (this.#released) throw new Error('this embedded database connection has been released');
+    const data = copyFromInput(compiledQuery.sql, compiledQuery.parameters);
+    if (data !== null) {
+      // PGlite reads COPY input from its virtual /dev/blob device, given as a Blob.
+      const text = `${compiledQuery.sql.slice(0, compiledQuery.sql.length - COPY_FROM_INPUT.length)}from '/dev/blob' (format binary)`;
+      const r = await this.#session.pglite.query(text, [], { blob: new Blob([data]) });
+      return { numAffectedRows: BigInt(r.affectedRows ?? 0), rows: [] };
+    }
     const result = await pgliteQuery<R>(this.#session.pglite, compiledQuery.sql, compiledQuery.parameters);
     const command = result.command;
     if (command === 'ROLLBACK' || command === 'COMMIT') return { rows: [{ command } as R] };

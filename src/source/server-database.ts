@@ -4,6 +4,7 @@ import pg from 'pg';
 import type { ConnectionTarget } from './connection-target.js';
 import type { Database } from './database.js';
 import { pgSession } from './pg-session.js';
+import { copyingClient } from '../common/copy-from-input.js';
 import { shareServerSnapshot } from './server-snapshot.js';
 import { withClient } from './with-client.js';
 
@@ -57,7 +58,7 @@ function serverDatabaseOn(pool: pg.Pool, target: ConnectionTarget, maxSessions: 
     shareSnapshot: () => shareServerSnapshot(database, pool, target.config),
     dialect(): Dialect {
       // kysely's destroy() ends its pool; this one is ended once, by close().
-      return new PostgresDialect({ pool: { connect: () => pool.connect(), end: async () => undefined } });
+      return new PostgresDialect({ pool: { connect: async () => copyingClient(await pool.connect()), end: async () => undefined } });
     },
     async close() {
       if (closed) return;
@@ -67,3 +68,4 @@ function serverDatabaseOn(pool: pg.Pool, target: ConnectionTarget, maxSessions: 
   };
   return database;
 }
+

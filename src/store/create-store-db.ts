@@ -1,6 +1,7 @@
 import { Kysely, PostgresDialect } from 'kysely';
 import type { Dialect } from 'kysely';
 import type pg from 'pg';
+import { copyingClient } from '../common/copy-from-input.js';
 import type { StoreDatabase } from './store-database.js';
 
 /**
@@ -14,6 +15,10 @@ import type { StoreDatabase } from './store-database.js';
  * try { await migrate(db); } finally { await db.destroy(); }
  */
 export function createStoreDb(source: pg.Pool | Dialect): Kysely<StoreDatabase> {
-  const dialect = 'createDriver' in source ? source : new PostgresDialect({ pool: source });
+  // The pool's clients run the store's binary COPY files (see COPY_FROM_INPUT) in the transaction.
+  const dialect =
+    'createDriver' in source
+      ? source
+      : new PostgresDialect({ pool: { connect: async () => copyingClient(await source.connect()), end: () => source.end() } });
   return new Kysely<StoreDatabase>({ dialect });
 }

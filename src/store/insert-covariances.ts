@@ -1,6 +1,5 @@
-import { sql } from 'kysely';
 import type { Kysely } from 'kysely';
-import { float8ArrayText } from './float8-array.js';
+import { CopyRows, copyRows } from './copy-rows.js';
 import type { ModelRecord } from './model-record.js';
 import type { StoreDatabase } from './store-database.js';
 
@@ -38,34 +37,30 @@ export function packCovariance(solution: ModelRecord['solution']): PackedCovaria
 }
 
 /**
- * Inserts the covariances of one batch of a run's models (those with inference), one
- * statement, in the caller's transaction, right after the batch's models: each finds its
- * model by (run_id, segment_key), the key the models table keeps unique.
+ * Inserts the covariances of one batch of a run's models (those with inference), one binary
+ * COPY in the caller's transaction, right after the batch's models: `modelIds` are the ids the
+ * models were copied with, in the order of `models`.
  */
 export async function insertCovariances(
   trx: Kysely<StoreDatabase>,
   schema: string,
   runId: number,
   models: readonly ModelRecord[],
+  modelIds: readonly number[],
 ): Promise<void> {
-  const rows: { segmentKey: string; cov: PackedCovariance }[] = [];
-  for (const m of models) {
-    const cov = packCovariance(m.solution);
-    if (cov !== null) rows.push({ segmentKey: m.segmentKey, cov });
+  if (modelIds.length !== models.length) throw new RangeError(`${modelIds.length} model ids for ${models.length} models`);
+  const out = new CopyRows(5, models.length * 200);
+  for (let i = 0; i < models.length; i++) {
+    const cov = packCovariance(models[i]!.solution);
+    if (cov === null) continue;
+    out.beginRow();
+    out.int8(modelIds[i]!, 'model_id');
+    out.int8(runId, 'run_id');
+    out.int4Array(cov.termIndex, 'term_index');
+    out.textArray(cov.terms);
+    const packed = cov.packed;
+    out.float8Array(packed.length, (j) => packed[j]!);
   }
-  if (rows.length === 0) return;
-  // Arrays travel as text, one per row: unnest() would flatten a two-dimensional array.
-  await sql`insert into ${sql.id(schema, 'covariances')} (model_id, run_id, term_index, terms, packed)
-    select m.model_id, m.run_id, u.term_index::integer[], u.terms::text[], u.packed::float8[]
-      from unnest(${rows.map((r) => r.segmentKey)}::text[],
-                  ${rows.map((r) => `{${r.cov.termIndex.join(',')}}`)}::text[],
-                  ${rows.map((r) => textArray(r.cov.terms))}::text[],
-                  ${rows.map((r) => float8ArrayText(r.cov.packed))}::text[])
-        as u(segment_key, term_index, terms, packed)
-      join ${sql.id(schema, 'models')} m on m.run_id = ${runId}::bigint and m.segment_key = u.segment_key`.execute(trx);
-}
-
-/** `{"a","b\"c"}`: a text[] literal with every element quoted. */
-function textArray(values: readonly string[]): string {
-  return `{${values.map((v) => `"${v.replace(/\\/g, '\\\\').replace(/"/g, '\\"')}"`).join(',')}}`;
+  if (out.rows === 0) return;
+  await copyRows(trx, schema, 'covariances', ['model_id', 'run_id', 'term_index', 'terms', 'packed'], out.finish());
 }

@@ -1,45 +1,42 @@
 import { sql } from 'kysely';
 import type { Kysely } from 'kysely';
 import type { CoefficientResult } from '../fit/fit-solution.js';
+import { CopyRows, copyRows } from './copy-rows.js';
 import type { ModelRecord } from './model-record.js';
-import { float8Text, integerText } from './sql-array-values.js';
 import type { StoreDatabase } from './store-database.js';
-import { unnestInsert } from './unnest-insert.js';
-import type { UnnestColumn } from './unnest-insert.js';
 
-const f8 = (name: string, get: (m: ModelRecord) => number | null): UnnestColumn<ModelRecord> => ({
-  name,
-  kind: 'float8',
-  value: (m) => float8Text(get(m)),
-});
+/** How one column of the models table is written from a model: into the COPY row, in its binary form. */
+interface ModelColumn {
+  readonly name: string;
+  readonly write: (out: CopyRows, m: ModelRecord) => void;
+}
 
-/** A float8[] column from one field of every coefficient, as an array literal. */
-function f8s(name: string, get: (c: CoefficientResult) => number | null): UnnestColumn<ModelRecord> {
+const f8 = (name: string, get: (m: ModelRecord) => number | null): ModelColumn => ({ name, write: (out, m) => out.float8(get(m)) });
+
+/** A float8[] column from one field of every coefficient. */
+function f8s(name: string, get: (c: CoefficientResult) => number | null): ModelColumn {
   return {
     name,
-    kind: 'float8[]',
-    value: (m) => {
-      let text = '{';
+    write: (out, m) => {
       const cs = m.solution.coefficients;
-      for (let i = 0; i < cs.length; i++) text += (i === 0 ? '' : ',') + (float8Text(get(cs[i]!)) ?? 'NULL');
-      return text + '}';
+      out.float8Array(cs.length, (i) => get(cs[i]!));
     },
   };
 }
 
-const MODEL_COLUMNS: readonly UnnestColumn<ModelRecord>[] = [
-  { name: 'segment', kind: 'jsonb', value: (m) => (m.segment === null ? null : JSON.stringify(m.segment)) },
-  { name: 'segment_key', kind: 'text', value: (m) => m.segmentKey },
-  { name: 'status', kind: 'text', value: (m) => m.solution.status },
-  { name: 'notes', kind: 'text[]', value: (m) => JSON.stringify(m.solution.notes) },
-  { name: 'method', kind: 'text', value: (m) => m.method },
+const MODEL_COLUMNS: readonly ModelColumn[] = [
+  { name: 'segment', write: (out, m) => out.jsonb(m.segment === null ? null : JSON.stringify(m.segment)) },
+  { name: 'segment_key', write: (out, m) => out.text(m.segmentKey) },
+  { name: 'status', write: (out, m) => out.text(m.solution.status) },
+  { name: 'notes', write: (out, m) => out.textArray(m.solution.notes) },
+  { name: 'method', write: (out, m) => out.text(m.method) },
   f8('confidence', (m) => m.solution.confidence),
-  { name: 'intercept', kind: 'bool', value: (m) => m.solution.intercept },
-  { name: 'rows', kind: 'int8', value: (m) => integerText(m.solution.rows, 'rows') },
-  { name: 'zero_weight_rows', kind: 'int8', value: (m) => integerText(m.solution.zeroWeightRows, 'zeroWeightRows') },
+  { name: 'intercept', write: (out, m) => out.bool(m.solution.intercept) },
+  { name: 'rows', write: (out, m) => out.int8(m.solution.rows, 'rows') },
+  { name: 'zero_weight_rows', write: (out, m) => out.int8(m.solution.zeroWeightRows, 'zeroWeightRows') },
   f8('sum_weights', (m) => m.solution.sumWeights),
-  { name: 'rank', kind: 'int4', value: (m) => integerText(m.solution.rank, 'rank') },
-  { name: 'df_residual', kind: 'int8', value: (m) => integerText(m.solution.dfResidual, 'dfResidual') },
+  { name: 'rank', write: (out, m) => out.int4(m.solution.rank, 'rank') },
+  { name: 'df_residual', write: (out, m) => out.int8(m.solution.dfResidual, 'dfResidual') },
   f8('rss', (m) => m.solution.rss),
   f8('sigma', (m) => m.solution.sigma),
   f8('r2', (m) => m.solution.r2),
@@ -53,14 +50,20 @@ const MODEL_COLUMNS: readonly UnnestColumn<ModelRecord>[] = [
   f8('bic', (m) => m.solution.bic),
   f8('condition_number', (m) => m.solution.condition),
   f8('rank_tolerance', (m) => m.solution.rankTolerance),
-  { name: 'aliased_terms', kind: 'text[]', value: (m) => JSON.stringify(m.solution.aliased) },
-  { name: 'accuracy', kind: 'text', value: (m) => m.solution.accuracy },
-  { name: 'passes', kind: 'int4', value: (m) => integerText(m.passes ?? 1, 'passes') },
+  { name: 'aliased_terms', write: (out, m) => out.textArray(m.solution.aliased) },
+  { name: 'accuracy', write: (out, m) => out.text(m.solution.accuracy) },
+  { name: 'passes', write: (out, m) => out.int4(m.passes ?? 1, 'passes') },
   f8('estimated_digits', (m) => m.solution.estimatedDigits),
-  { name: 'refinement_steps', kind: 'int4', value: (m) => integerText(m.solution.refinementSteps, 'refinementSteps') },
+  { name: 'refinement_steps', write: (out, m) => out.int4(m.solution.refinementSteps, 'refinementSteps') },
   // The coefficients, one array per column (the coefficients view shows them one row per term).
-  { name: 'terms', kind: 'text[]', value: (m) => JSON.stringify(m.solution.coefficients.map((c) => c.term)) },
-  { name: 'term_aliased', kind: 'bool[]', value: (m) => `{${m.solution.coefficients.map((c) => (c.aliased ? 't' : 'f')).join(',')}}` },
+  { name: 'terms', write: (out, m) => out.textArray(m.solution.coefficients.map((c) => c.term)) },
+  {
+    name: 'term_aliased',
+    write: (out, m) => {
+      const cs = m.solution.coefficients;
+      out.boolArray(cs.length, (i) => cs[i]!.aliased);
+    },
+  },
   f8s('estimates', (c) => c.estimate),
   f8s('std_errors', (c) => c.stdError),
   f8s('t_values', (c) => c.t),
@@ -71,8 +74,24 @@ const MODEL_COLUMNS: readonly UnnestColumn<ModelRecord>[] = [
 ];
 
 /**
- * Inserts one batch of models of a run, with their coefficients as arrays, in a single
- * statement.
+ * Takes `n` ids of the models table's identity (its sequence, as an INSERT would): the rows
+ * copied with them are the models, and the covariances copied beside them name their model by
+ * them, with no lookup by segment key in the server.
+ */
+async function takeModelIds(trx: Kysely<StoreDatabase>, schema: string, n: number): Promise<number[]> {
+  const table = `"${schema.replace(/"/g, '""')}".models`;
+  const r = await sql<{ id: string }>`select nextval(pg_get_serial_sequence(${table}, 'model_id'))::text as id
+    from generate_series(1, ${n}::integer)`.execute(trx);
+  return r.rows.map((row) => {
+    const id = Number(row.id);
+    if (!Number.isSafeInteger(id)) throw new RangeError(`model id ${row.id} is beyond the whole numbers a double holds`);
+    return id;
+  });
+}
+
+/**
+ * Inserts one batch of models of a run, with their coefficients as arrays, as one binary COPY
+ * in the caller's transaction; resolves to the models' ids, in the order of `models`.
  */
 export async function insertModels(
   trx: Kysely<StoreDatabase>,
@@ -80,17 +99,18 @@ export async function insertModels(
   runId: number,
   fitName: string,
   models: readonly ModelRecord[],
-): Promise<void> {
-  if (models.length === 0) return;
-  const insert = unnestInsert(
-    schema,
-    'models',
-    [
-      { name: 'run_id', value: sql`${runId}::bigint` },
-      { name: 'fit_name', value: sql`${fitName}::text` },
-    ],
-    MODEL_COLUMNS,
-    models,
-  );
-  await insert.execute(trx);
+): Promise<number[]> {
+  if (models.length === 0) return [];
+  const ids = await takeModelIds(trx, schema, models.length);
+  const out = new CopyRows(3 + MODEL_COLUMNS.length, models.length * 700);
+  for (let i = 0; i < models.length; i++) {
+    const m = models[i]!;
+    out.beginRow();
+    out.int8(ids[i]!, 'model_id');
+    out.int8(runId, 'run_id');
+    out.text(fitName);
+    for (const c of MODEL_COLUMNS) c.write(out, m);
+  }
+  await copyRows(trx, schema, 'models', ['model_id', 'run_id', 'fit_name', ...MODEL_COLUMNS.map((c) => c.name)], out.finish());
+  return ids;
 }

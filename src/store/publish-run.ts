@@ -32,7 +32,7 @@ export interface RunResult {
 
 /** Options of {@link publishRun}. */
 export interface PublishOptions {
-  /** Models per INSERT statement (each with its coefficients as arrays). Default 5000. */
+  /** Models per batch (one COPY of models with their coefficients as arrays, one of covariances). Default 5000. */
   readonly batchSize?: number;
 }
 
@@ -40,8 +40,8 @@ const DEFAULT_BATCH_SIZE = 5000;
 
 
 /**
- * Publishes a run in one transaction: all its models, coefficients and covariances (set-based inserts, one
- * statement per batch) and the run marked succeeded with its counts. A reader sees all of it
+ * Publishes a run in one transaction: all its models, coefficients and covariances (binary COPY in the
+ * transaction, one per table and batch) and the run marked succeeded with its counts. A reader sees all of it
  * or none; if anything fails nothing is written and the run stays `running` for the caller to
  * {@link failRun}.
  *
@@ -93,27 +93,49 @@ export async function writeRunResult(
     throw new Error(`run ${runId} has already ${run.status}; only a running run can be published`);
   }
 
-  // Batch by batch: a batch of models is written (and let go) before the next is taken.
+  // Batch by batch: while the server takes one batch, the next is taken (solved, when the
+  // caller solves as it yields); a batch is written before the one after it is sent, so no
+  // more than two batches are held.
   let segmentCount = 0;
   let batch: ModelRecord[] = [];
-  const flush = async () => {
-    if (batch.length === 0) return;
+  let writing: Promise<void> | null = null;
+  const write = async (models: ModelRecord[]) => {
+    let ids: number[];
     try {
-      await insertModels(trx, schema, runId, run.fit_name, batch);
+      ids = await insertModels(trx, schema, runId, run.fit_name, models);
       // The batch's covariances beside its models, before the batch is let go.
-      await insertCovariances(trx, schema, runId, batch);
+      await insertCovariances(trx, schema, runId, models, ids);
     } catch (error) {
-      throw explainInsertFailure(error, runId, batch);
+      throw explainInsertFailure(error, runId, models);
     }
-    if (result.published !== undefined) result.published(await loadModelIds(trx, schema, runId, batch));
-    segmentCount += batch.length;
+    // In the order the batches were taken: each is written before the next is sent.
+    result.published?.(ids);
+    segmentCount += models.length;
+  };
+  const flush = async () => {
+    if (writing !== null) {
+      const w = writing;
+      writing = null;
+      await w;
+    }
+    if (batch.length === 0) return;
+    writing = write(batch);
+    // Awaited at the next flush; marked handled now so that a failure while the next batch is
+    // taken is not reported as unhandled.
+    writing.catch(() => undefined);
     batch = [];
   };
-  for await (const model of result.models) {
-    batch.push(model);
-    if (batch.length >= batchSize) await flush();
+  try {
+    for await (const model of result.models) {
+      batch.push(model);
+      if (batch.length >= batchSize) await flush();
+    }
+    await flush();
+    await flush();
+  } finally {
+    // A failure while taking models: the batch in flight settles before the transaction ends.
+    if (writing !== null) await (writing as Promise<void>).catch(() => undefined);
   }
-  await flush();
   const seconds = typeof result.seconds === 'function' ? result.seconds() : result.seconds;
   if (!(Number.isFinite(seconds) && seconds >= 0)) throw new RangeError(`seconds must be a finite number ≥ 0, got ${seconds}`);
 
@@ -133,22 +155,6 @@ export async function writeRunResult(
     .execute();
 }
 
-/** The `model_id`s of a written batch, in the batch's order (segment keys are unique within a run). */
-async function loadModelIds(trx: Kysely<StoreDatabase>, schema: string, runId: number, batch: readonly ModelRecord[]): Promise<number[]> {
-  const rows = await trx
-    .withSchema(schema)
-    .selectFrom('models')
-    .select(['segment_key', 'model_id'])
-    .where('run_id', '=', runIdText(runId))
-    .where('segment_key', '=', sql<string>`any(${batch.map((m) => m.segmentKey)}::text[])`)
-    .execute();
-  const ids = new Map(rows.map((r) => [r.segment_key, Number(r.model_id)]));
-  return batch.map((m) => {
-    const id = ids.get(m.segmentKey);
-    if (id === undefined) throw new Error(`run ${runId}: the model of segment ${JSON.stringify(m.segmentKey)} was not found after its insert`);
-    return id;
-  });
-}
 
 function checkResult(result: RunResult): void {
   for (const key of ['rowsRead', 'rowsUsed'] as const) {

@@ -1,3 +1,7 @@
+/**
+ * Drives `COPY … FROM STDIN` on a node-postgres client the caller already holds (it opens no
+ * connection): shared by the sessions of source/ and the result store of store/.
+ */
 import { Buffer } from 'node:buffer';
 
 import type pg from 'pg';
@@ -59,9 +63,14 @@ class CopyInWriter {
     this.rowCount = n === null ? 0 : Number(n[1]);
   }
 
-  /** pg: an ErrorResponse, or a broken connection. */
+  /**
+   * pg: an ErrorResponse, or a broken connection. pg lets go of the query at an error (its
+   * ReadyForQuery then reaches no query), so the statement is settled here, as pg's own queries
+   * are; CopyData still on its way is dropped by the server.
+   */
   handleError(error: unknown): void {
     this.error = error;
+    this.settle?.({ error });
   }
 
   /** pg: ReadyForQuery — the statement is over. */
