@@ -5,10 +5,13 @@
 // the same model must give the same figures (to rounding).
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { fit } from '../../src/index.js';
+import { ROBUST_SECTION_QUERY } from '../../src/report/render-robust-section.js';
 import { mergeSplitRun } from '../../src/run/split-merge.js';
 import { foldPartition } from '../../src/run/split-partition.js';
 import { startSplitFit } from '../../src/run/split-start.js';
 import { resolveConnection } from '../../src/source/connection-target.js';
+import { openDatabase } from '../../src/source/open-database.js';
+import { createStoreDb, loadResidualReport } from '../../src/store/index.js';
 import { expectClose } from '../support/close.js';
 import { createTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
@@ -140,5 +143,52 @@ describe('the residual pass in incremental, window, split and unpublished runs (
     }
     const tests = await tdb.query<{ n: number }>(`select count(*)::int as n from rowfold.residual_tests where run_id = $1 and test = 'cluster_robust'`, [start.runId]);
     expect(tests.rows[0]!.n).toBe(3);
+  }, 180_000);
+});
+
+describe('the report of a residual pass over many segments (issue 16: bounded)', () => {
+  it('aggregates across 4,000 segments in the database and loads only the chosen segment\'s rows: the same figures as summed from every row', async () => {
+    await tdb.exec(`create table rr_many as
+      select 'S' || lpad((g % 4000)::text, 4, '0') as feeder, (g % 89)::float8 as temp_c, (g % 31)::float8 as humidity,
+             100 + (g % 89) * 2 + (g % 31) * 0.5 + ((g * 7919) % 101)::float8 / 101 * (1 + (g % 89) / 20.0) as load_kw
+        from generate_series(1, 60000) g`);
+    const spec = { name: 'rr_many', source: 'rr_many', response: 'load_kw', terms: ['temp_c', 'humidity'], segment_by: 'feeder', residual_pass: { robust: ['hc3'] } };
+    expect((await runCli(['fit', writeSpec(spec), '--db', tdb.url])).code).toBe(0);
+    const run = (await tdb.query<{ run_id: string }>(`select run_id::text from rowfold.runs where fit_name = 'rr_many'`)).rows[0]!.run_id;
+    const database = await openDatabase({ db: tdb.url, env: {}, sessions: 1 });
+    const db = createStoreDb(database.dialect());
+    const chosen = (await tdb.query<{ model_id: string }>(`select model_id::text from rowfold.models where run_id = $1 and segment_key = '["S0007"]'`, [run])).rows[0]!.model_id;
+    let report;
+    try {
+      report = (await loadResidualReport(db, 'rowfold', run, chosen, ROBUST_SECTION_QUERY))!;
+    } finally {
+      await db.destroy();
+      await database.close();
+    }
+    // The same figures from every stored row, gathered here.
+    const all = (await tdb.query<{ model_id: string; term: string; method: string; std_error: number | null }>(
+      `select model_id::text, term, method, std_error from rowfold.coefficient_errors where run_id = $1`, [run])).rows;
+    const classical = new Map(all.filter((e) => e.method === 'classical').map((e) => [`${e.model_id}/${e.term}`, e.std_error!]));
+    const byTerm = new Map<string, number[]>();
+    for (const e of all.filter((x) => x.method === 'hc3' && x.std_error !== null)) {
+      const c = classical.get(`${e.model_id}/${e.term}`)!;
+      if (c > 0) byTerm.set(e.term, [...(byTerm.get(e.term) ?? []), e.std_error! / c]);
+    }
+    expect(report.models).toBe(4000);
+    expect(report.robustMethod).toBe('hc3');
+    expect(report.ratios.map((r) => r.term)).toEqual([...byTerm.keys()].sort());
+    for (const r of report.ratios) {
+      const list = byTerm.get(r.term)!.sort((a, b) => a - b);
+      const h = Math.floor(list.length / 2);
+      const median = list.length % 2 === 1 ? list[h]! : (list[h - 1]! + list[h]!) / 2;
+      expect(r.segments).toBe(list.length);
+      expectClose(r.median, median, 1e-12, `median ratio ${r.term}`);
+      expectClose(r.max, list[list.length - 1]!, 1e-12, `largest ratio ${r.term}`);
+    }
+    const bp = (await tdb.query<{ p: number }>(`select p from rowfold.residual_tests where run_id = $1 and test = 'breusch_pagan'`, [run])).rows;
+    expect(report.breuschPagan).toEqual({ flagged: bp.filter((t) => t.p < 0.05).length, of: bp.length });
+    // Only the chosen segment's rows: its three terms under classical and hc3.
+    expect(report.chosen!.errors).toHaveLength(3 * 2);
+    expect(report.chosen!.errors.every((e) => all.some((x) => x.model_id === chosen && x.term === e.term && x.method === e.method && x.std_error === e.stdError))).toBe(true);
   }, 180_000);
 });
