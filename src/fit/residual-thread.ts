@@ -88,13 +88,16 @@ export function residualThreadScript(): URL | null {
 }
 
 /**
- * Whether a residual pass should take its rows on a thread of its own: when its largest model
- * has 64 coefficients or more (its leverages and meats then cost 2·k² flops a row, several times
- * receiving and decoding the row, as for the fold threads; see autoFoldThreads), there is a
- * second core, the thread is built, and the caller did not ask for no threads (`threads: 0`).
+ * Whether a residual pass should take its rows on a thread of its own. When the caller leaves it
+ * to us (`threads` unset): when its largest model has 64 coefficients or more (its leverages and
+ * meats then cost 2·k² flops a row, several times receiving and decoding the row, as for the
+ * fold threads; see autoFoldThreads) and there is a second core. `threads: 0` keeps the pass on
+ * the reading thread; `threads` of 1 or more gives it a thread whatever the size of the models.
+ * Never when the thread is not built.
  */
 export function residualThreadWanted(largestK: number, threads: number | undefined): boolean {
-  return threads !== 0 && largestK >= 64 && availableParallelism() >= 2 && residualThreadScript() !== null;
+  if (threads === 0 || residualThreadScript() === null) return false;
+  return threads !== undefined || (largestK >= 64 && availableParallelism() >= 2);
 }
 
 /**
