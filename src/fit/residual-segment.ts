@@ -327,7 +327,7 @@ export class ResidualSegment {
         for (let r = 0; r < m; r++) st[o + r] = scale[r]! * raw[o + r]!;
       }
       if (wasm === null) gramUpdate(k, g, st, m, ld);
-      else wasm.gram(k, g, st, m, ld);
+      else wasm.meatGram(k, g, st, m, ld);
     }
     this.staged = 0;
   }

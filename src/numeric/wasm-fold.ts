@@ -14,6 +14,7 @@ export class WasmFold {
   private readonly run: (n: number, r: number, b: number, m: number, ld: number) => void;
   private readonly runGram: (n: number, g: number, b: number, m: number, ld: number) => void;
   private readonly runLeverages: (k: number, l: number, x: number, h: number, m: number, ld: number) => void;
+  private readonly runMeatGram: (n: number, g: number, b: number, m: number, ld: number) => void;
   /** The bread factor last copied into the kernel's memory, and where (see leverages). */
   private heldFactor: Float64Array | null = null;
   private heldFactorAt = -1;
@@ -25,6 +26,7 @@ export class WasmFold {
     this.run = instance.exports['fold'] as (n: number, r: number, b: number, m: number, ld: number) => void;
     this.runGram = instance.exports['gram'] as (n: number, g: number, b: number, m: number, ld: number) => void;
     this.runLeverages = instance.exports['leverages'] as WasmFold['runLeverages'];
+    this.runMeatGram = instance.exports['meatGram'] as WasmFold['runMeatGram'];
   }
 
   /**
@@ -52,6 +54,14 @@ export class WasmFold {
    */
   gram(n: number, g: Float64Array, staged: Float64Array, m: number, ld: number): void {
     this.onFactor(this.runGram, n, g, staged, m, ld);
+  }
+
+  /**
+   * {@link gram} blocked two rows of g by four columns (the residual pass's meats: more products
+   * per load than gram's 2×2 blocks; the same sums, to rounding, as gram-update.ts).
+   */
+  meatGram(n: number, g: Float64Array, staged: Float64Array, m: number, ld: number): void {
+    this.onFactor(this.runMeatGram, n, g, staged, m, ld);
   }
 
   /**

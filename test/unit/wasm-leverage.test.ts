@@ -1,5 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { wasmFold } from '../../src/fit/wasm-kernel.js';
+import { gramUpdate } from '../../src/numeric/gram-update.js';
 import { leveragesBlock } from '../../src/numeric/leverage.js';
 import { packedLength } from '../../src/numeric/packed.js';
 import { choleskyLower } from '../../src/numeric/sandwich.js';
@@ -97,6 +98,32 @@ describe.skipIf(kernel === null && !required)(
       const wasm = allLeverages(k, n, x, ld, (b, h, m) => kernel!.leverages(k, l, b, h, m, ld));
       ts.forEach((v, i) => expect(Math.abs(v - wasm[i]!) / Math.max(Math.abs(v), 1e-300)).toBeLessThan(1e-12));
       expect(Math.abs(wasm.reduce((a, b) => a + b, 0) - k)).toBeLessThan(1e-9 * k);
+    });
+
+    it.each([
+      [1, 1],
+      [2, 31],
+      [3, 32],
+      [6, 17],
+      [7, 128],
+      [8, 127],
+      [21, 32],
+      [201, 128],
+      [202, 5],
+    ])('the meats\' Gram update (two rows by four columns), order %i, %i rows: the same sums as gram-update.ts to 1e-12 relative', (n, m) => {
+      const ld = m + (m % 2);
+      const u = rng(n * 7 + m);
+      const gTs = new Float64Array(packedLength(n));
+      const gWasm = new Float64Array(packedLength(n));
+      for (let t = 0; t < 3; t++) {
+        const block = Float64Array.from({ length: n * ld }, () => u() - 0.5);
+        const staged = kernel!.staging(n, n * ld);
+        staged.set(block);
+        kernel!.meatGram(n, gWasm, staged, m, ld);
+        gramUpdate(n, gTs, block, m, ld);
+      }
+      const scale = Math.max(...gTs.map(Math.abs));
+      gTs.forEach((v, i) => expect(Math.abs(v - gWasm[i]!) / scale).toBeLessThan(1e-12));
     });
 
     it('two segments\' factors in turn, with the fold and Gram kernels using the memory between calls: each block against its own factor', () => {
