@@ -29,7 +29,7 @@ export function fitCommand(y: Argv): Argv {
         .option('parallel', { type: 'number', default: 1, describe: 'read N disjoint partitions over N connections' })
         .option('threads', {
           type: 'number',
-          describe: 'threads folding rows beside the reading thread (0: none; default: 1 when the model has 63 or more columns with the intercept, on a multi-core machine)',
+          describe: 'threads folding rows beside the reading thread (0: none; default: 1 when the model has 63 or more columns with the intercept, on a multi-core machine); a residual pass takes one by the same rule',
         })
         .option('read', { choices: ['copy', 'rows'] as const, describe: 'override the spec: binary COPY or row stream' })
         .option('accuracy', {

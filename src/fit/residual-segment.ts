@@ -1,5 +1,6 @@
 import { gramUpdate } from '../numeric/gram-update.js';
 import { packedLength, unpackUpper } from '../numeric/packed.js';
+import { leveragesBlock } from '../numeric/leverage.js';
 import { addOuterUpper, choleskyLower, lowerTransposedTimes, symmetricFromUpper } from '../numeric/sandwich.js';
 import { wasmFold } from './wasm-kernel.js';
 
@@ -47,10 +48,15 @@ export interface InfluentialRow {
 type MeatKind = 'hc0' | 'hc2' | 'hc3';
 
 /**
- * Rows staged per meat before one rank-B update of its packed upper triangle (the Gram kernel,
- * in WebAssembly SIMD where built): the rows are written scaled by √ω, so BᵀB adds Σ ω·x̃x̃ᵀ.
+ * Rows staged before their leverages are taken as one block and each meat gets one rank-B
+ * update of its packed upper triangle (the leverage and Gram kernels, in WebAssembly SIMD
+ * where built): the rows are written scaled by √ω, so BᵀB adds Σ ω·x̃x̃ᵀ. From
+ * {@link STAGE_MORE_FROM} coefficients on, {@link STAGED_ROWS_LARGE} rows (longer blocks keep
+ * the SIMD kernels busy; the staging, k·128 doubles, is then smaller than the bread's k² anyway).
  */
-const STAGED_ROWS = 32;
+export const STAGED_ROWS = 32;
+export const STAGED_ROWS_LARGE = 128;
+export const STAGE_MORE_FROM = 128;
 
 /**
  * Below this many coefficients a row is added to the meats at once (a few flops; staging
@@ -84,8 +90,10 @@ export class ResidualSegment {
   fullLeverageRows = 0;
   /** Packed upper-triangle meats Σ ω·x̃x̃ᵀ with ω = ẽ² (hc0/hc1), ẽ²/(1−h) (hc2), ẽ²/(1−h)² (hc3). */
   private readonly meats: Partial<Record<MeatKind, Float64Array>> = {};
-  /** Rows staged column-major (k × STAGED_ROWS) with their residuals and ids (k ≥ STAGE_FROM). */
+  /** Rows staged column-major (k × ld) with their residuals and ids (k ≥ STAGE_FROM). */
   private readonly raw: Float64Array | null;
+  /** Rows a block of staged rows holds (the leading dimension of `raw`). */
+  readonly ld: number;
   private readonly zs: Float64Array | null;
   private readonly scaled: Float64Array | null;
   private readonly stagedE: Float64Array;
@@ -144,11 +152,14 @@ export class ResidualSegment {
     if (this.breadFactor !== null && hc.has('hc3')) kinds.push('hc3');
     for (const kind of kinds) this.meats[kind] = new Float64Array(packedLength(k));
     const staging = k >= STAGE_FROM;
-    this.raw = staging ? new Float64Array(k * STAGED_ROWS) : null;
-    this.zs = staging && this.breadFactor !== null ? new Float64Array(k * STAGED_ROWS) : null;
-    this.scaled = staging ? new Float64Array(k * STAGED_ROWS) : null;
+    this.ld = k >= STAGE_MORE_FROM ? STAGED_ROWS_LARGE : STAGED_ROWS;
+    // With the WebAssembly kernels, z and the scaled rows live in the kernel's memory.
+    const inTs = wasmFold() === null;
+    this.raw = staging ? new Float64Array(k * this.ld) : null;
+    this.zs = staging && inTs && this.breadFactor !== null ? new Float64Array(k * this.ld) : null;
+    this.scaled = staging && inTs ? new Float64Array(k * this.ld) : null;
     // Small models (the millions-of-segments case) keep no staging arrays at all.
-    const rows = staging ? STAGED_ROWS : 0;
+    const rows = staging ? this.ld : 0;
     this.stagedE = new Float64Array(rows);
     this.stagedId = new Float64Array(rows);
     this.stagedH = new Float64Array(rows);
@@ -192,10 +203,11 @@ export class ResidualSegment {
       // Leverages, the meats and influence wait for a block of rows (see flush).
       const r = this.staged;
       const raw = this.raw!;
-      for (let j = 0; j < k; j++) raw[j * STAGED_ROWS + r] = x[j]!;
+      const ld = this.ld;
+      for (let j = 0; j < k; j++) raw[j * ld + r] = x[j]!;
       this.stagedE[r] = e;
       this.stagedId[r] = id;
-      if (++this.staged === STAGED_ROWS) this.flush();
+      if (++this.staged === ld) this.flush();
     } else {
       let h = Number.NaN;
       if (this.breadFactor !== null) {
@@ -282,9 +294,9 @@ export class ResidualSegment {
   }
 
   /**
-   * The staged rows' leverages, as one block: Z = Lᵀ·X̃ column by column (each entry of L read
-   * once per block rather than once per row), hᵣ = ‖zᵣ‖²; then their influence, and each meat's
-   * rows scaled by √ω added by one rank-`staged` update (the Gram kernel).
+   * The staged rows' leverages, as one block: hᵣ = ‖Lᵀx̃ᵣ‖² blocked over rows (each entry of L
+   * read once per eight rows; the WebAssembly SIMD kernel, or numeric/leverage.ts); then their
+   * influence, and each meat's rows scaled by √ω added by one rank-`staged` update (the Gram kernel).
    */
   private flush(): void {
     const m = this.staged;
@@ -293,27 +305,12 @@ export class ResidualSegment {
     const raw = this.raw!;
     const h = this.stagedH;
     const l = this.breadFactor;
-    if (l === null) h.fill(Number.NaN);
-    else {
-      const z = this.zs!;
-      z.fill(0);
-      for (let j = 0; j < k; j++) {
-        const xo = j * STAGED_ROWS;
-        for (let i = 0; i <= j; i++) {
-          const a = l[j * k + i]!;
-          if (a === 0) continue;
-          const zo = i * STAGED_ROWS;
-          for (let r = 0; r < m; r++) z[zo + r] = z[zo + r]! + a * raw[xo + r]!;
-        }
-      }
-      h.fill(0);
-      for (let i = 0; i < k; i++) {
-        const zo = i * STAGED_ROWS;
-        for (let r = 0; r < m; r++) h[r] = h[r]! + z[zo + r]! * z[zo + r]!;
-      }
-    }
-    const scale = this.stagedScale;
     const wasm = wasmFold();
+    const ld = this.ld;
+    if (l === null) h.fill(Number.NaN);
+    else if (wasm === null) leveragesBlock(k, l, raw, h, m, ld, this.zs!);
+    else wasm.leverages(k, l, raw, h, m, ld);
+    const scale = this.stagedScale;
     for (let r = 0; r < m; r++) this.stagedFull[r] = this.leverageTaken(this.stagedE[r]!, h[r]!, this.stagedId[r]!) ? 1 : 0;
     for (const kind of ['hc0', 'hc2', 'hc3'] as const) {
       const g = this.meats[kind];
@@ -324,13 +321,13 @@ export class ResidualSegment {
         scale[r] = kind === 'hc0' ? ae : this.stagedFull[r] === 1 ? 0 : kind === 'hc2' ? ae / Math.sqrt(oneMinusH) : ae / oneMinusH;
       }
       // The kernel reads its rows from its own memory; the view lasts until the next staging().
-      const st = wasm === null ? this.scaled! : wasm.staging(k, k * STAGED_ROWS);
+      const st = wasm === null ? this.scaled! : wasm.staging(k, k * ld);
       for (let j = 0; j < k; j++) {
-        const o = j * STAGED_ROWS;
+        const o = j * ld;
         for (let r = 0; r < m; r++) st[o + r] = scale[r]! * raw[o + r]!;
       }
-      if (wasm === null) gramUpdate(k, g, st, m, STAGED_ROWS);
-      else wasm.gram(k, g, st, m, STAGED_ROWS);
+      if (wasm === null) gramUpdate(k, g, st, m, ld);
+      else wasm.meatGram(k, g, st, m, ld);
     }
     this.staged = 0;
   }

@@ -15,7 +15,7 @@ import type { ReportModel, ReportRun } from './report-run.js';
 import { REPORT_CSS } from './report-styles.js';
 import { renderDistributionSection } from './many-segments.js';
 import { renderRobustSection } from './render-robust-section.js';
-import type { StoredResiduals } from '../store/index.js';
+import type { ResidualReport } from '../store/index.js';
 
 /** Everything one report shows. */
 export interface ReportContent {
@@ -27,7 +27,7 @@ export interface ReportContent {
   /** The fit's newest scoring (null: never scored, or not loaded). */
   readonly scoring?: StoredScoring | null;
   /** The residual pass's results by model id (empty or absent without one). */
-  readonly robust?: ReadonlyMap<string, StoredResiduals>;
+  readonly robust?: ResidualReport | null;
 }
 
 const SECTIONS: readonly [string, string][] = [
@@ -63,7 +63,7 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     ...(many !== null ? [across, models] : [models, across]),
     await renderResidualSection(content.residualModel, content.residuals),
     await renderScoringSection(content.scoring ?? null, content.residualModel, (key) => labels.get(key) ?? key),
-    renderRobustSection(run.models, content.robust ?? new Map(), content.residualModel) ?? '',
+    renderRobustSection(content.robust ?? null, content.residualModel) ?? '',
     await renderConditioningSection(run.models, run.segmentColumns, many),
     renderCautionsSection(many === null ? pValuesOf(run.models) : many.pValues, run.modelCount),
   ];
@@ -83,7 +83,7 @@ export async function renderReportHtml(content: ReportContent): Promise<string> 
     `<h1>Fit ${escapeHtml(run.fitName)}</h1>`,
     `<p>Run ${escapeHtml(run.runId)} · ${formatCount(count)} model${count === 1 ? '' : 's'} · ended ${escapeHtml(run.endedAt.toISOString().slice(0, 10))}</p>`,
     '</header>',
-    `<nav class="contents">${SECTIONS.filter(([id]) => id !== 'robust' || (content.robust?.size ?? 0) > 0)
+    `<nav class="contents">${SECTIONS.filter(([id]) => id !== 'robust' || (content.robust ?? null) !== null)
       .map(([id, name]) => `<a href="#${id}">${name}</a>`)
       .join('')}</nav>`,
     '<main>',

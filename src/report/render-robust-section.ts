@@ -1,4 +1,4 @@
-import type { StoredResiduals } from '../store/index.js';
+import type { ResidualReport } from '../store/index.js';
 import { escapeHtml } from './escape-html.js';
 import { formatCount, formatNumber, formatP } from './format-number.js';
 import type { ReportModel } from './report-run.js';
@@ -15,23 +15,22 @@ const METHOD_TITLE: Record<string, string> = {
   newey_west: 'Newey–West',
 };
 /** Durbin–Watson below this is flagged in the summary (a rule of thumb: common practice). */
-const DW_LOW = 1.5;
+export const DW_LOW = 1.5;
+/** The robust method compared with the classical errors across segments: the first of these the run has. */
+export const RATIO_METHOD_PREFERENCE = ['newey_west', 'cluster', 'hc3', 'hc1', 'hc0', 'hc2'] as const;
 
-function median(xs: readonly number[]): number | null {
-  if (xs.length === 0) return null;
-  const s = [...xs].sort((a, b) => a - b);
-  const m = Math.floor(s.length / 2);
-  return s.length % 2 === 1 ? s[m]! : (s[m - 1]! + s[m]!) / 2;
-}
+/** What the loader of a {@link ResidualReport} needs from this section (see loadResidualReport). */
+export const ROBUST_SECTION_QUERY = { methodPreference: RATIO_METHOD_PREFERENCE, durbinWatsonBelow: DW_LOW };
 
 /**
  * The residual pass's section (spec key residual_pass): across segments, how many fail
- * Breusch–Pagan or show autocorrelation and how much wider the robust errors are; for the
+ * Breusch–Pagan or show autocorrelation and how much wider the robust errors are (aggregates
+ * the database computed, so the section costs the same for ten segments or a million); for the
  * chosen segment, its standard errors by method, its tests, its most influential rows and its
  * hold-out error. Null when the run took no residual pass.
  */
-export function renderRobustSection(models: readonly ReportModel[], results: ReadonlyMap<string, StoredResiduals>, chosen: ReportModel): string | null {
-  if (results.size === 0) return null;
+export function renderRobustSection(report: ResidualReport | null, chosen: ReportModel): string | null {
+  if (report === null) return null;
   const out: string[] = ['<section id="robust">', '<h2>Robust errors and residual tests</h2>'];
   out.push(
     '<p class="lead">A second pass over the rows took each residual against the solved coefficients. ' +
@@ -39,40 +38,26 @@ export function renderRobustSection(models: readonly ReportModel[], results: Rea
       'Newey–West errors when they are correlated along the order column. They change the standard errors, intervals and p-values, never the estimates. ' +
       'Where they are much wider than the classical ones, trust them rather than the classical figures, and read neither as evidence that a term causes the response.</p>',
   );
-  const tested = models.map((m) => ({ m, r: results.get(m.modelId) })).filter((x): x is { m: ReportModel; r: StoredResiduals } => x.r !== undefined);
-  const bp = tested.map((x) => x.r.tests.find((t) => t.test === 'breusch_pagan')?.p).filter((p): p is number => p !== null && p !== undefined);
-  const dw = tested.map((x) => x.r.tests.find((t) => t.test === 'durbin_watson')?.statistic).filter((v): v is number => v !== null && v !== undefined);
-  const summary = [`${formatCount(tested.length)} model${tested.length === 1 ? '' : 's'} with a residual pass`];
-  if (bp.length > 0) summary.push(`Breusch–Pagan p &lt; 0.05 in ${formatCount(bp.filter((p) => p < 0.05).length)} of ${formatCount(bp.length)} (non-constant error spread)`);
-  if (dw.length > 0) summary.push(`Durbin–Watson below ${DW_LOW} in ${formatCount(dw.filter((v) => v < DW_LOW).length)} of ${formatCount(dw.length)} (positive autocorrelation; ${DW_LOW} is a rule of thumb)`);
+  const { breuschPagan: bp, durbinWatson: dw } = report;
+  const summary = [`${formatCount(report.models)} model${report.models === 1 ? '' : 's'} with a residual pass`];
+  if (bp.of > 0) summary.push(`Breusch–Pagan p &lt; 0.05 in ${formatCount(bp.flagged)} of ${formatCount(bp.of)} (non-constant error spread)`);
+  if (dw.of > 0) summary.push(`Durbin–Watson below ${DW_LOW} in ${formatCount(dw.flagged)} of ${formatCount(dw.of)} (positive autocorrelation; ${DW_LOW} is a rule of thumb)`);
   out.push(`<p>${summary.join(' · ')}.</p>`);
-  const robustMethod = ['newey_west', 'cluster', 'hc3', 'hc1', 'hc0', 'hc2'].find((m) => tested.some((x) => x.r.errors.some((e) => e.method === m)));
-  if (robustMethod !== undefined) {
-    const ratios = new Map<string, number[]>();
-    for (const { r } of tested) {
-      for (const e of r.errors) {
-        if (e.method !== robustMethod || e.stdError === null) continue;
-        const c = r.errors.find((x) => x.method === 'classical' && x.term === e.term)?.stdError;
-        if (c === null || c === undefined || !(c > 0)) continue;
-        const list = ratios.get(e.term) ?? [];
-        list.push(e.stdError / c);
-        ratios.set(e.term, list);
-      }
-    }
+  if (report.robustMethod !== null) {
     out.push(
-      `<h3>${escapeHtml(METHOD_TITLE[robustMethod]!)} against classical standard errors, across segments</h3>`,
+      `<h3>${escapeHtml(METHOD_TITLE[report.robustMethod] ?? report.robustMethod)} against classical standard errors, across segments</h3>`,
       '<table id="robust-ratios"><thead><tr><th>term</th><th class="num">median ratio</th><th class="num">largest ratio</th><th class="num">segments</th></tr></thead><tbody>',
     );
-    for (const [term, list] of ratios) {
+    for (const { term, median, max, segments } of report.ratios) {
       out.push(
-        `<tr><td><code>${escapeHtml(term)}</code></td><td class="num">${formatNumber(median(list), 3)}</td><td class="num">${formatNumber(Math.max(...list), 3)}</td><td class="num">${formatCount(list.length)}</td></tr>`,
+        `<tr><td><code>${escapeHtml(term)}</code></td><td class="num">${formatNumber(median, 3)}</td><td class="num">${formatNumber(max, 3)}</td><td class="num">${formatCount(segments)}</td></tr>`,
       );
     }
     out.push('</tbody></table>');
   }
-  const r = results.get(chosen.modelId);
+  const r = report.chosen;
   out.push(`<h3>Segment ${escapeHtml(chosen.label)}</h3>`);
-  if (r === undefined) {
+  if (r === null) {
     out.push('<p class="notice">No residual pass results for this segment.</p>', '</section>');
     return out.join('\n');
   }

@@ -31,8 +31,8 @@ export interface FitOptions {
   /** Result schema, in place of the spec's `schema` (default `rowfold`). */
   readonly schema?: string;
   /**
-   * False: fit and return the models without writing to the result tables (`run.run_id` is
-   * null). Default true. A fit with a watermark or a window always publishes: its next run
+   * False: fit and return the models (with their `residuals` when the spec has a
+   * `residual_pass`) without writing to the result tables (`run.run_id` is null). Default true. A fit with a watermark or a window always publishes: its next run
    * needs the state this one stores.
    */
   readonly publish?: boolean;

@@ -1,10 +1,11 @@
 import type { DesignShape } from '../fit/accumulator.js';
 import type { FitSolution } from '../fit/fit-solution.js';
 import { blockLayout, residualContext, residualModel } from '../fit/residual-model.js';
-import { residualFindings } from '../fit/residual-results.js';
-import type { CoefficientError, HoldoutError, ResidualTest } from '../fit/residual-results.js';
+import type { CoefficientError, HoldoutError, ResidualFindings, ResidualTest } from '../fit/residual-results.js';
 import { ResidualSegment } from '../fit/residual-segment.js';
-import type { InfluentialRow, ResidualPassOptions } from '../fit/residual-segment.js';
+import type { InfluentialRow, ResidualModel, ResidualPassOptions } from '../fit/residual-segment.js';
+import { feedResidualRows, ResidualThread, residualThreadWanted, segmentResult } from '../fit/residual-thread.js';
+import type { ResidualThreadResult } from '../fit/residual-thread.js';
 import type { DesignPlan } from '../plan/design-plan.js';
 import { HOLDOUT_VALUE } from '../plan/holdout-split.js';
 import { CLUSTER_KEY, ROW_ID_VALUE, influentialLookupQuery } from '../plan/residual-columns.js';
@@ -60,7 +61,7 @@ export async function residualPass(
   database: Database,
   spec: FitSpec,
   plan: DesignPlan,
-  req: Pick<RunFitRequest, 'read' | 'signal' | 'sites'>,
+  req: Pick<RunFitRequest, 'read' | 'signal' | 'sites' | 'threads'>,
   models: Iterable<ResidualPassModel>,
 ): Promise<Map<string, ModelResiduals>> {
   const rp = spec.residualPass;
@@ -75,89 +76,115 @@ export async function residualPass(
     influentialTop: rp.influential?.top ?? 0,
   };
   const layout = { ...blockLayout(shape), width: residual.valueNames.length };
-  const segments = new Map<string, { seg: ResidualSegment; solution: FitSolution }>();
+  // Segment i of the pass: its sums (on this thread, or on the residual thread) and solution.
+  const entries: { key: string; seg: ResidualSegment | null; solution: FitSolution; model: ResidualModel; label: string }[] = [];
+  const indexOf = new Map<string, number>();
   const skipped = new Map<string, string>();
+  let largestK = 0;
   for (const m of models) {
     const model = residualModel(m.solution, shape);
-    if (model === null) skipped.set(m.segmentKey, 'the model has no residual inference (no residual degrees of freedom or an exact fit)');
-    else segments.set(m.segmentKey, { seg: new ResidualSegment(model, options, layout, m.segmentKey === '' ? '(all rows)' : m.segmentKey), solution: m.solution });
+    if (model === null) {
+      skipped.set(m.segmentKey, 'the model has no residual inference (no residual degrees of freedom or an exact fit)');
+      continue;
+    }
+    indexOf.set(m.segmentKey, entries.length);
+    entries.push({ key: m.segmentKey, seg: null, solution: m.solution, model, label: m.segmentKey === '' ? '(all rows)' : m.segmentKey });
+    largestK = Math.max(largestK, model.estimates.length);
   }
+  const contextOf = (solution: FitSolution) => residualContext(solution, shape, { clusterBy: rp.clusterBy, orderBy: rp.orderBy, holdout: rp.holdout !== null });
   const segmentCount = spec.segmentBy.length;
   const clusterAt = residual.keyNames.indexOf(CLUSTER_KEY);
   const idAt = residual.valueNames.indexOf(ROW_ID_VALUE);
   const heldAt = residual.valueNames.indexOf(HOLDOUT_VALUE);
   const clusterIds = new Map<string | null, number>();
-  await Promise.all(
-    residual.queries.map((query, q) => {
-      // A foreign leaf is read on its shard over the first pass's connection (plan.sites);
-      // once: a broken read fails the run (the sums of a segment take rows from every leaf).
-      const site = residual.sites?.[q] ?? null;
-      if (site !== null && req.sites === undefined) throw new TypeError('a plan with shards needs the run\'s ReadSites');
-      const from = site === null ? database : req.sites!.database(site);
-      const read = from.withSession((session) => {
-        // Per key id of this reader: its segment's sums (null: not a model) and its cluster id.
-        const byId: ({ seg: ResidualSegment | null; cluster: number } | undefined)[] = [];
-        return session.readDesign(
-          {
-            query,
-            keyNames: residual.keyNames,
-            valueNames: residual.valueNames,
-            valueTypes: residual.valueTypes,
-            mode: req.read ?? spec.read,
-            nonFinite: spec.nonFinite === 'skip' ? 'skip' : 'pass',
-            signal: req.signal,
-          },
-          (block, keyTable) => {
-            const { values, width } = block;
-            for (let i = 0; i < block.rows; i++) {
-              const kid = block.keys[i]!;
-              let entry = byId[kid];
-              if (entry === undefined) {
-                const key = keyTable[kid]!;
-                const text = segmentCount === 0 ? '' : JSON.stringify(key.slice(0, segmentCount));
-                const c = clusterAt < 0 ? null : (key[clusterAt] ?? null);
-                let cluster = clusterIds.get(c);
-                if (cluster === undefined) clusterIds.set(c, (cluster = clusterIds.size));
-                entry = { seg: segments.get(text)?.seg ?? null, cluster };
-                byId[kid] = entry;
+  // Large models take their sums on a thread of their own while this one receives (see ResidualThread).
+  const thread = residualThreadWanted(largestK, req.threads)
+    ? new ResidualThread({ options, layout, idAt, heldAt, segments: entries.map((e) => ({ model: e.model, label: e.label, context: contextOf(e.solution) })) })
+    : null;
+  const local = thread === null ? entries.map((e) => (e.seg = new ResidualSegment(e.model, options, layout, e.label))) : [];
+  let threadResults: readonly ResidualThreadResult[] = [];
+  try {
+    await Promise.all(
+      residual.queries.map((query, q) => {
+        // A foreign leaf is read on its shard over the first pass's connection (plan.sites);
+        // once: a broken read fails the run (the sums of a segment take rows from every leaf).
+        const site = residual.sites?.[q] ?? null;
+        if (site !== null && req.sites === undefined) throw new TypeError('a plan with shards needs the run\'s ReadSites');
+        const from = site === null ? database : req.sites!.database(site);
+        const read = from.withSession((session) => {
+          // Per key id of this reader: its segment's index (−1: not a model) and its cluster id.
+          const segOf: number[] = [];
+          const clusterOf: number[] = [];
+          let segment = new Int32Array(0);
+          let cluster = new Int32Array(0);
+          return session.readDesign(
+            {
+              query,
+              keyNames: residual.keyNames,
+              valueNames: residual.valueNames,
+              valueTypes: residual.valueTypes,
+              mode: req.read ?? spec.read,
+              nonFinite: spec.nonFinite === 'skip' ? 'skip' : 'pass',
+              signal: req.signal,
+            },
+            (block, keyTable) => {
+              if (segment.length < block.rows) {
+                segment = new Int32Array(block.rows);
+                cluster = new Int32Array(block.rows);
               }
-              if (entry.seg === null) continue;
-              const o = i * width;
-              entry.seg.row(values, o, entry.cluster, idAt < 0 ? 0 : values[o + idAt]!, heldAt >= 0 && values[o + heldAt] === 1);
-            }
-          },
-        );
-      });
-      return site === null ? read : read.catch((e: unknown) => {
-        throw shardReadError(site, unplannedLevelError(e, spec, plan.levels) ?? e);
-      });
-    }),
-  ).catch((e: unknown) => {
-    throw unplannedLevelError(e, spec, plan.levels) ?? e;
-  });
+              for (let i = 0; i < block.rows; i++) {
+                const kid = block.keys[i]!;
+                let s = segOf[kid];
+                if (s === undefined) {
+                  const key = keyTable[kid]!;
+                  const text = segmentCount === 0 ? '' : JSON.stringify(key.slice(0, segmentCount));
+                  const c = clusterAt < 0 ? null : (key[clusterAt] ?? null);
+                  let id = clusterIds.get(c);
+                  if (id === undefined) clusterIds.set(c, (id = clusterIds.size));
+                  s = indexOf.get(text) ?? -1;
+                  segOf[kid] = s;
+                  clusterOf[kid] = id;
+                }
+                segment[i] = s;
+                cluster[i] = clusterOf[kid]!;
+              }
+              if (thread !== null) return thread.sink(block.values, block.width, block.rows, segment, cluster);
+              feedResidualRows(local, block.values, block.width, block.rows, segment, cluster, idAt, heldAt);
+              return undefined;
+            },
+          );
+        });
+        return site === null ? read : read.catch((e: unknown) => {
+          throw shardReadError(site, unplannedLevelError(e, spec, plan.levels) ?? e);
+        });
+      }),
+    ).catch((e: unknown) => {
+      throw unplannedLevelError(e, spec, plan.levels) ?? e;
+    });
+    if (thread !== null) threadResults = await thread.finish();
+  } finally {
+    await thread?.close();
+  }
 
   const out = new Map<string, ModelResiduals>();
   for (const [key, note] of skipped) out.set(key, { errors: [], tests: [], influential: [], holdout: null, notes: [note] });
   const wanted = new Map<string, Set<number>>();
-  const found = new Map<string, ReturnType<typeof residualFindings>>();
-  for (const [key, { seg, solution }] of segments) {
-    if (seg.rows !== seg.model.rows) {
-      out.set(key, {
+  const found = new Map<string, ResidualFindings>();
+  entries.forEach((e, i) => {
+    const { rows, findings: f } = thread === null ? segmentResult(e.seg!, contextOf(e.solution)) : threadResults[i]!;
+    if (f === null) {
+      out.set(e.key, {
         errors: [],
         tests: [],
         influential: [],
         holdout: null,
-        notes: [`the residual pass read ${seg.rows} row(s) with a positive weight where the model holds ${seg.model.rows}: no robust figures`],
+        notes: [`the residual pass read ${rows} row(s) with a positive weight where the model holds ${e.model.rows}: no robust figures`],
       });
-      continue;
+      return;
     }
-    const f = residualFindings(seg, residualContext(solution, shape, { clusterBy: rp.clusterBy, orderBy: rp.orderBy, holdout: rp.holdout !== null }));
-    found.set(key, f);
-    if (rp.influential !== null) {
-      const ids = new Set([...f.topCooks, ...f.topLeverage].map((r) => r.id));
-      wanted.set(key, ids);
-    }
-  }
+    found.set(e.key, f);
+    if (rp.influential !== null) wanted.set(e.key, new Set([...f.topCooks, ...f.topLeverage].map((r) => r.id)));
+  });
   const keysOf = rp.influential === null ? new Map<string, Record<string, string | null>>() : await lookUpRows(database, spec, rp.influential.keys, wanted);
   for (const [key, f] of found) {
     const rows = (list: readonly InfluentialRow[], rankedBy: ResolvedInfluentialRow['rankedBy']) =>

@@ -79,9 +79,10 @@ export interface RunFitRequest {
   readonly accuracy?: 'auto' | 'fast' | 'extended' | undefined;
   readonly dryRun?: boolean;
   /**
-   * False: read, fold and solve, but write nothing to the result tables (no run row, no
-   * models; the result's run id is null). Default true. A fit with a watermark or a window
-   * needs its stored state, so it always publishes.
+   * False: read, fold and solve (and take the residual pass, whose findings join each model),
+   * but write nothing to the result tables (no run row, no models; the result's run id is
+   * null). Default true. A fit with a watermark or a window needs its stored state, so it
+   * always publishes.
    */
   readonly publish?: boolean;
   /** With a watermark: read every row and replace the stored state (late rows are folded in). */
@@ -307,7 +308,10 @@ async function runFitOn(
   }
   if (req.publish === false && spec.watermark === null) {
     req.signal?.throwIfAborted();
-    const out = await readAndSolve(reads, spec, plan, { ...req, sites }, refit);
+    const solved = await readAndSolve(reads, spec, plan, { ...req, sites }, refit);
+    req.signal?.throwIfAborted();
+    // The residual pass runs as in a published run (its findings join the models); nothing is written.
+    const out = await withResiduals(reads, spec, plan, { ...req, sites }, solved);
     // Nothing is written: the models still stream (to onModel), and the first keepModels are kept.
     const kept: FittedModel[] = [];
     let seconds = 0;

@@ -8,14 +8,15 @@ import type { Database } from '../source/database.js';
 import { openServerDatabase } from '../source/server-database.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
 import type { FitSpec } from '../spec/fit-spec.js';
-import { createStoreDb, DEFAULT_STORE_SCHEMA, loadResidualResults } from '../store/index.js';
-import type { StoredResiduals } from '../store/index.js';
+import { createStoreDb, DEFAULT_STORE_SCHEMA, loadResidualReport } from '../store/index.js';
+import type { ResidualReport } from '../store/index.js';
 import { loadLatestScoring } from '../store/load-latest-scoring.js';
 import type { StoredScoring } from '../store/load-latest-scoring.js';
 import { chooseSegment } from '../report/choose-segment.js';
 import { loadReportRun } from '../report/load-report-run.js';
 import type { ResidualOutcome } from '../report/render-residual-section.js';
 import { renderReportHtml } from '../report/render-report-html.js';
+import { ROBUST_SECTION_QUERY } from '../report/render-robust-section.js';
 import type { ReportModel, ReportRun } from '../report/report-run.js';
 import { sampleResiduals } from './sample-residuals.js';
 import { withResultsDatabase } from './read-results.js';
@@ -64,13 +65,13 @@ export async function writeFitReport(database: Database, opts: WriteFitReportOpt
   let run: ReportRun;
   let scoring: StoredScoring | null;
   let model: ReportModel;
-  let robust: Map<string, StoredResiduals>;
+  let robust: ResidualReport | null;
   try {
     run = await loadReportRun(db, schema, opts.fit, (text) => tryParseSpec(text, opts.fit)?.segmentBy ?? [], opts.segment);
     // Many segments: the loader found the segment in the tables (run.models are the shown ones).
     model = run.many?.chosen ?? chooseSegment(run.models, opts.segment);
     scoring = await loadLatestScoring(db, schema, opts.fit, model.segmentKey);
-    robust = await loadResidualResults(db, schema, run.runId, run.many === null ? undefined : run.models.map((m) => m.modelId));
+    robust = await loadResidualReport(db, schema, run.runId, model.modelId, ROBUST_SECTION_QUERY);
   } finally {
     await db.destroy();
   }
