@@ -59,7 +59,7 @@ export function scoreCommand(y: Argv): Argv {
 }
 
 function viewJson(r: ScoreViewResult): unknown {
-  return { fit_name: r.fit, view: r.view, run_id: r.runId, database: r.connection, sql: r.sql };
+  return { fit_name: r.fit, view: r.view, run_id: r.runId, level: r.level, database: r.connection, sql: r.sql };
 }
 
 function scoreJson(r: ScoreResult): unknown {

@@ -205,3 +205,35 @@ describe('rowfold score: a design that changed between runs', () => {
     expect(await count('view_changing')).toBe(1000);
   });
 });
+
+describe('rowfold score --view: intervals after a refit (issue 15)', () => {
+  it('binds the t quantiles of the models at creation: a refit with other residual degrees of freedom shows NULL intervals until the view is made again', async () => {
+    await tdb.query(`create table readings_growing as select * from readings`);
+    await tdb.query(`create table readings_ids as select row_number() over () as id, * from readings`);
+    const spec = writeSpec({ name: 'score_growing', source: 'readings_growing', response: 'load_mw', terms: ['temp_c'], segment_by: ['feeder'] });
+    expect((await runCli(['fit', spec, '--db', tdb.url])).code).toBe(0);
+    const made = await runCli(['score', 'score_growing', '--source', 'readings_ids', '--view', 'view_growing', '--keys', 'id', '--level', '0.9', '--db', tdb.url, '--json']);
+    expect(made.code, made.stderr).toBe(0);
+    expect((JSON.parse(made.stdout) as { level: number }).level).toBe(0.9);
+    const nulls = async () => Number((await tdb.query<{ n: string }>(`select count(*) as n from view_growing where interval_low is null or interval_high is null`)).rows[0]!.n);
+    expect(await count('view_growing')).toBe(2000);
+    expect(await nulls()).toBe(0);
+    // Ten more rows for F01 only: its residual degrees of freedom change, F02's do not.
+    await tdb.query(`insert into readings_growing select feeder, region, temp_c, load_mw + 0.01 from readings where feeder = 'F01' limit 10`);
+    expect((await runCli(['fit', spec, '--db', tdb.url])).code).toBe(0);
+    const byFeeder = async () =>
+      (await tdb.query<{ segment_key: string; n: string }>(`select segment_key, count(*) filter (where interval_low is null) as n from view_growing group by 1 order by 1`)).rows.map((r) => [r.segment_key, Number(r.n)]);
+    expect(await byFeeder()).toEqual([['["F01"]', 1000], ['["F02"]', 0]]);
+    // Made again, the view has every interval and agrees with table scoring at the same level.
+    expect((await runCli(['score', 'score_growing', '--source', 'readings_ids', '--view', 'view_growing', '--keys', 'id', '--level', '0.9', '--db', tdb.url])).code).toBe(0);
+    expect(await nulls()).toBe(0);
+    const scored = await runCli(['score', 'score_growing', '--source', 'readings_ids', '--into', 'out_growing', '--keys', 'id', '--level', '0.9', '--db', tdb.url]);
+    expect(scored.code, scored.stderr).toBe(0);
+    const diff = (await tdb.query<{ worst: number; n: string }>(
+      `select count(*) as n, max(greatest(abs(o.interval_low - w.interval_low) / abs(o.interval_low), abs(o.interval_high - w.interval_high) / abs(o.interval_high))) as worst
+         from out_growing o join view_growing w using (id)`,
+    )).rows[0]!;
+    expect(Number(diff.n)).toBe(2000);
+    expect(diff.worst).toBeLessThan(1e-12);
+  });
+});
