@@ -75,7 +75,7 @@ export async function writeScoring(db: SqlRunner, schema: string, record: Scorin
 
 /** Segments written per statement, and sampled rows. */
 const SEGMENTS_PER_STATEMENT = 10_000;
-const SAMPLES_PER_STATEMENT = 50_000;
+const SAMPLES_PER_STATEMENT = 200_000;
 
 async function writeSegments(db: SqlRunner, s: string, id: string, seg: readonly ScoringSegmentRecord[]): Promise<void> {
   await db.query(
