@@ -17,10 +17,10 @@ export type { FitOptions, FitProgress, FitSpecObject } from './run/fit-api.js';
 export { fitRuns, latestResults } from './run/read-results.js';
 export type { ReadOptions } from './run/read-results.js';
 export { writeReport } from './run/write-fit-report.js';
-export { scoreRows as score } from './run/score-rows.js';
-export type { ScoreRequest, ScoreResult } from './run/score-rows.js';
-export { scoreView } from './run/score-view.js';
-export type { ScoreViewRequest, ScoreViewResult } from './run/score-view.js';
+export { score, scoreView } from './run/score-api.js';
+export type { ScoreRequest } from './run/score-rows.js';
+export type { ScoreViewRequest } from './run/score-view.js';
+export type { ScoreDocument, ScoreViewDocument, ScoringSegmentDocument } from './run/score-document.js';
 export type { WriteReportOptions } from './run/write-fit-report.js';
 
 export {

@@ -49,5 +49,5 @@ export function progressReporter(
 
 /** `rowfold: 1,200,000 rows · 400,000 rows/s · 24 segments · 3.0 s`. */
 export function readProgressText(p: { rowsRead: number; segments: number; seconds: number }): string {
-  return `rowfold: ${formatCount(p.rowsRead)} rows · ${formatCount(Math.round(p.rowsRead / Math.max(p.seconds, 1e-3)))} rows/s · ${formatCount(p.segments)} segments · ${p.seconds.toFixed(1)} s`;
+  return `rowfold: ${formatCount(p.rowsRead)} rows · ${formatCount(Math.round(p.rowsRead / Math.max(p.seconds, 1e-3)))} rows/s · ${formatCount(p.segments)} segment${p.segments === 1 ? '' : 's'} · ${p.seconds.toFixed(1)} s`;
 }

@@ -1,9 +1,9 @@
 import type { Argv } from 'yargs';
 import { formatCount } from '../report/format-number.js';
+import { scoreDocument, scoreViewDocument } from '../run/score-document.js';
 import { scoreRows } from '../run/score-rows.js';
 import type { ScoreResult } from '../run/score-rows.js';
 import { scoreView } from '../run/score-view.js';
-import type { ScoreViewResult } from '../run/score-view.js';
 import { CliError, ExitCode } from './exit-codes.js';
 
 /**
@@ -39,7 +39,7 @@ export function scoreCommand(y: Argv): Argv {
       if (args.view !== undefined) {
         if (args.append) throw new CliError('--append goes with --into, not --view', ExitCode.usage);
         const result = await scoreView({ fit: args.fit, source: args.source, view: args.view, keys, level: args.level, runId: args.run ?? null, schema: args.schema, db: args.db });
-        process.stdout.write(args.json ? JSON.stringify(viewJson(result)) + '\n' : `created view ${result.view} scoring ${args.source} with fit ${args.fit} (${result.connection})\n`);
+        process.stdout.write(args.json ? JSON.stringify(scoreViewDocument(result)) + '\n' : `created view ${result.view} scoring ${args.source} with fit ${args.fit} (${result.connection})\n`);
         return;
       }
       const result = await scoreRows({
@@ -53,43 +53,9 @@ export function scoreCommand(y: Argv): Argv {
         append: args.append,
         db: args.db,
       });
-      process.stdout.write(args.json ? JSON.stringify(scoreJson(result)) + '\n' : scoreText(result));
+      process.stdout.write(args.json ? JSON.stringify(scoreDocument(result)) + '\n' : scoreText(result));
     },
   );
-}
-
-function viewJson(r: ScoreViewResult): unknown {
-  return { fit_name: r.fit, view: r.view, run_id: r.runId, level: r.level, database: r.connection, sql: r.sql };
-}
-
-function scoreJson(r: ScoreResult): unknown {
-  // The names of the result tables (scorings, scoring_segments) and of fit --json.
-  return {
-    fit_name: r.fit,
-    database: r.connection,
-    scoring_id: r.scoringId,
-    run_id: r.runId,
-    design_run_id: r.designRunId,
-    target: r.target,
-    created: r.created,
-    level: r.level,
-    rows_read: r.rowsRead,
-    rows_scored: r.rowsScored,
-    rows_skipped: r.rowsSkipped,
-    seconds: r.seconds,
-    actual: r.actual,
-    segments: r.segments.map((g) => ({
-      segment: g.segment,
-      segment_key: g.segmentKey,
-      run_id: g.runId,
-      rows_scored: g.rowsScored,
-      rows_actual: g.rowsActual,
-      mean_error: g.meanError,
-      mae: g.mae,
-      rmse: g.rmse,
-      outside_interval: g.outsideInterval,
-    })),
-  };
 }
 
 function scoreText(r: ScoreResult): string {

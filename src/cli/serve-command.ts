@@ -7,12 +7,13 @@ import { serveFits } from '../schedule/serve-fits.js';
 import { resolveConnection } from '../source/connection-target.js';
 import { maskSecrets } from '../common/mask-secrets.js';
 import { EMBEDDED_PREFIX } from '../source/open-database.js';
+import { checkSchemaName } from '../store/index.js';
 import { CliError, ExitCode } from './exit-codes.js';
 
 /** Schedule file `serve` reads when given neither specs nor `--schedules`. */
 const DEFAULT_SCHEDULES = 'config/schedules.yaml';
 
-/** `rowfold serve [SPEC…] [--schedules FILE] [--db URL] [--concurrency N]`. */
+/** `rowfold serve [SPEC…] [--schedules FILE] [--db URL] [--schema NAME] [--concurrency N]`. */
 export function serveCommand(y: Argv): Argv {
   return y.command(
     'serve [specs..]',
@@ -22,6 +23,7 @@ export function serveCommand(y: Argv): Argv {
         .positional('specs', { type: 'string', array: true, describe: 'fit specs with schedule: (or schedule files)' })
         .option('schedules', { type: 'string', describe: `schedule file: a list of {spec, cron} (default ${DEFAULT_SCHEDULES} when no spec is named)` })
         .option('db', { type: 'string', describe: 'PostgreSQL URL (default: DATABASE_URL, then the PG* variables); not the embedded database' })
+        .option('schema', { type: 'string', describe: "result schema of every fit served, in place of each spec's schema" })
         .option('connections', { type: 'string', describe: 'connections file (YAML, name: URL) for shards and read_from (default: ROWFOLD_CONNECTIONS)' })
         .option('concurrency', { type: 'number', default: 1, describe: 'jobs (fits, partitions of split fits) this process works at once' })
         .option('job-timeout-seconds', {
@@ -70,7 +72,14 @@ export function serveCommand(y: Argv): Argv {
         }
         files.push(DEFAULT_SCHEDULES);
       }
-      const schedules = await loadFitSchedules(files);
+      if (args.schema !== undefined) {
+        try {
+          checkSchemaName(args.schema);
+        } catch (e) {
+          throw new CliError(`--schema: ${e instanceof Error ? e.message : String(e)}`, ExitCode.usage);
+        }
+      }
+      const schedules = await loadFitSchedules(files, { schema: args.schema });
       if (schedules.length === 0) throw new CliError(`no schedules in ${files.join(', ')}`, ExitCode.usage);
 
       const log = (line: string) => process.stderr.write(`${new Date().toISOString()} rowfold serve[${process.pid}]: ${maskSecrets(line)}\n`);
@@ -106,7 +115,7 @@ export function serveCommand(y: Argv): Argv {
           maintenanceSeconds: args.maintenanceSeconds,
           onReady: () =>
             log(`serving ${schedules.length} fit${schedules.length === 1 ? '' : 's'}, ${args.concurrency} at a time (queue schema ${JOBS_SCHEMA} on ${target.display})`),
-          runJob: fitJobRunner({ target, db: args.db, env: process.env, connections: args.connections }),
+          runJob: fitJobRunner({ target, db: args.db, env: process.env, connections: args.connections, schema: args.schema }),
         });
         log(`stopped: ${summary.succeeded} succeeded, ${summary.failed} failed, ${summary.skipped} skipped, ${summary.released} handed back`);
         // Dropped runs may still be working in this process: leave them behind, at once.

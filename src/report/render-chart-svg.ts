@@ -20,9 +20,12 @@ export const CHART_CONFIG: Config = {
  * The returned markup is meant to be inlined in HTML: the XML namespace declarations, which
  * an HTML parser does not need, are removed, so the page carries no URL at all.
  */
-export async function renderChartSvg(spec: TopLevelSpec, label: string): Promise<string> {
-  const vegaSpec = compile(spec, { config: CHART_CONFIG }).spec;
-  const view = new View(parse(vegaSpec), { renderer: 'none' });
+export async function renderChartSvg(spec: TopLevelSpec, label: string, warnings?: string[]): Promise<string> {
+  // vega-lite and vega print their warnings on the console by default, in the middle of a
+  // command's output; they go to `warnings` instead (the tests ask every chart for none).
+  const logger = collectingLogger(warnings);
+  const vegaSpec = compile(spec, { config: CHART_CONFIG, logger }).spec;
+  const view = new View(parse(vegaSpec), { renderer: 'none', logger });
   try {
     const svg = await view.toSVG();
     return svg
@@ -32,4 +35,25 @@ export async function renderChartSvg(spec: TopLevelSpec, label: string): Promise
   } finally {
     view.finalize();
   }
+}
+
+/** A vega/vega-lite logger that keeps warnings and errors in `sink` (or drops them) instead of printing. */
+function collectingLogger(sink: string[] | undefined) {
+  let level = 1;
+  const keep = (kind: string) => (...args: readonly unknown[]) => {
+    sink?.push(`${kind}: ${args.map(String).join(' ')}`);
+    return logger;
+  };
+  const logger = {
+    level(next?: number) {
+      if (next === undefined) return level as never;
+      level = next;
+      return logger as never;
+    },
+    error: keep('error'),
+    warn: keep('warn'),
+    info: () => logger,
+    debug: () => logger,
+  };
+  return logger;
 }

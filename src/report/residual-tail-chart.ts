@@ -10,7 +10,10 @@ const label = (v: number) => (v === -Infinity ? '−∞' : v === Infinity ? '∞
  */
 export function residualTailChartSpec(bins: readonly NormalBin[]): TopLevelSpec {
   const values = bins.map((b, i) => ({ order: i, interval: `${label(b.from)} to ${label(b.to)}`, observed: b.observed, expected: b.expected }));
-  const x = { field: 'interval', type: 'ordinal' as const, sort: { field: 'order' }, title: 'residual ÷ σ', axis: { labelAngle: -45 } };
+  // The intervals in the order of `values` (from −∞ up): with `sort: null` both layers keep the
+  // data's order and their domains union without a conflict (a sort by a field in each layer
+  // made vega-lite warn on stderr that it could not union them).
+  const x = { field: 'interval', type: 'ordinal' as const, sort: null, title: 'residual ÷ σ', axis: { labelAngle: -45 } };
   return {
     title: { text: 'Standardised residuals beside the normal', subtitle: 'bars: rows per half-σ interval; dots: what a normal distribution would give' },
     width: 420,

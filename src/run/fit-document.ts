@@ -39,6 +39,8 @@ export interface CoefficientDocument {
 
 /** One solved model (a fit on one segment): a row of `models`, with its coefficients. */
 export interface ModelDocument {
+  /** The model's row in `models` (and the key of its coefficients and covariance); null when nothing was published. */
+  readonly model_id: number | null;
   /** Segment column → value; null for a fit without segments. */
   readonly segment: Readonly<Record<string, string | null>> | null;
   /** Stable text form of the segment, unique within a run; '' without segments. */
@@ -153,7 +155,7 @@ export const RUN_ONLY_IN_DOCUMENT = {
 
 /** Keys of {@link ModelDocument} that are columns of `models` (and of `latest_models`). */
 export const MODEL_COLUMNS = [
-  'segment', 'segment_key', 'status', 'notes', 'method', 'confidence', 'intercept', 'rows', 'zero_weight_rows',
+  'model_id', 'segment', 'segment_key', 'status', 'notes', 'method', 'confidence', 'intercept', 'rows', 'zero_weight_rows',
   'sum_weights', 'rank', 'df_residual', 'rss', 'sigma', 'r2', 'r2_adjusted', 'f', 'f_df1', 'f_df2', 'f_p', 'loglik',
   'aic', 'bic', 'condition_number', 'rank_tolerance', 'aliased_terms', 'accuracy', 'passes', 'estimated_digits',
   'refinement_steps',
@@ -222,12 +224,15 @@ export interface SolvedModel {
   readonly passes: number;
   /** The residual pass's figures (only with `residual_pass` in the spec). */
   readonly residuals?: ResidualsView | undefined;
+  /** The model's `model_id` once published. */
+  readonly modelId?: number | undefined;
 }
 
 /** One model in the vocabulary (as `models` stores it, with its coefficients). */
 export function modelDocument(m: SolvedModel): ModelDocument {
   const s = m.solution;
   return {
+    model_id: m.modelId ?? null,
     segment: m.segment,
     segment_key: m.segmentKey,
     status: s.status,
@@ -402,7 +407,7 @@ export const RUN_ROW_COLUMNS = [
 
 /** Keys of {@link LatestModelDocument} beyond a model's: all are columns of `latest_models`. */
 export const LATEST_MODEL_COLUMNS = [
-  ...MODEL_COLUMNS, 'model_id', 'run_id', 'run_started_at', 'run_ended_at', 'response', 'weight', 'terms', 'categorical', 'segment_by',
+  ...MODEL_COLUMNS, 'run_id', 'run_started_at', 'run_ended_at', 'response', 'weight', 'terms', 'categorical', 'segment_by',
 ] as const satisfies readonly (keyof LatestModelDocument)[];
 
 /** Keys of a coefficient as `latest_coefficients` has them (the confidence level beside the bounds). */

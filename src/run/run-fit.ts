@@ -116,6 +116,8 @@ export interface FittedModel {
   readonly passes: number;
   /** What the residual pass found (spec key `residual_pass`); absent without one. */
   readonly residuals?: ModelResiduals | undefined;
+  /** The model's `model_id` once it is written; absent when nothing is published. */
+  readonly modelId?: number | undefined;
 }
 
 /** The outcome of a run (or of a dry run: the plan only). */
@@ -309,7 +311,7 @@ async function runFitOn(
     // Nothing is written: the models still stream (to onModel), and the first keepModels are kept.
     const kept: FittedModel[] = [];
     let seconds = 0;
-    const result = publishable(spec, out, req, kept, (t) => (seconds = t));
+    const result = publishable(spec, out, req, kept, (t) => (seconds = t), false);
     for await (const _ of result.models) void _;
     if (typeof result.seconds === 'function') result.seconds();
     const { rowsRead, rowsUsed, rowsSkipped, modelCount } = out;
@@ -399,15 +401,24 @@ export function publishable(
   req: Pick<RunFitRequest, 'keepModels' | 'onModel' | 'signal'>,
   kept: FittedModel[],
   onSeconds: (seconds: number) => void = () => undefined,
+  /** False when nothing is written (`publish: false`): the models have no model_id then. */
+  publishing = true,
 ): RunResult {
   const keep = req.keepModels ?? DEFAULT_KEEP_MODELS;
+  // Taken but not yet written: handed on (with their model_id) once their batch is written.
+  const pending: FittedModel[] = [];
+  const handOn = (m: FittedModel) => {
+    req.onModel?.(m);
+    if (kept.length < keep) kept.push(m);
+  };
+  const wanted = req.onModel !== undefined || keep > 0;
   function* records(): Generator<ModelRecord> {
     let n = 0;
     for (const m of out.models()) {
       if ((++n & 1023) === 0) req.signal?.throwIfAborted();
       if (n % MODELS_PER_COLLECTION === 0) collectGarbage();
-      req.onModel?.(m);
-      if (kept.length < keep) kept.push(m);
+      if (!publishing) handOn(m);
+      else if (wanted) pending.push(m);
       yield { segment: m.segment, segmentKey: m.segmentKey, method: spec.method, solution: m.solution, passes: m.passes };
     }
     req.signal?.throwIfAborted();
@@ -422,6 +433,17 @@ export function publishable(
       return s;
     },
     models: records(),
+    ...(publishing && wanted
+      ? {
+          published: (ids: readonly number[]) => {
+            for (const id of ids) {
+              const m = pending.shift();
+              if (m === undefined) throw new Error('a model id came back for a model that was not taken');
+              handOn({ ...m, modelId: id });
+            }
+          },
+        }
+      : {}),
   };
 }
 

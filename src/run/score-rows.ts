@@ -12,6 +12,7 @@ import { quoteIdent } from '../plan/sql-template.js';
 import { CopyBinaryWriter } from '../source/copy-binary-writer.js';
 import type { DbSession } from '../source/database.js';
 import { openDatabase } from '../source/open-database.js';
+import type { DatabaseOption } from '../source/open-database.js';
 import { describeQuery } from '../source/query-helpers.js';
 import { ScoreRowDecoder } from '../source/score-row-decoder.js';
 import type { FitSpec } from '../spec/fit-spec.js';
@@ -46,7 +47,8 @@ export interface ScoreRequest {
   readonly schema?: string;
   /** Add to the target's rows instead of replacing them. */
   readonly append?: boolean;
-  readonly db?: string | undefined;
+  /** The database: a URL, `embedded:FOLDER`, or a pg pool of the caller's (left open); default as `fit`. */
+  readonly db?: DatabaseOption;
   readonly env?: NodeJS.ProcessEnv;
   /** Bytes of output gathered before each COPY FROM (default 4 MiB). */
   readonly batchBytes?: number;

@@ -6,6 +6,7 @@ import type { CategoricalLevels } from '../plan/resolve-levels.js';
 import { scoreViewSql } from '../plan/score-view-sql.js';
 import { quoteIdent } from '../plan/sql-template.js';
 import { openDatabase } from '../source/open-database.js';
+import type { DatabaseOption } from '../source/open-database.js';
 import type { FitSpec } from '../spec/fit-spec.js';
 import { parseFitSource } from '../spec/parse-fit-source.js';
 import { parseFitSpec } from '../spec/parse-fit-spec.js';
@@ -26,7 +27,8 @@ export interface ScoreViewRequest {
   readonly level?: number;
   readonly runId?: number | null;
   readonly schema?: string;
-  readonly db?: string | undefined;
+  /** The database: a URL, `embedded:FOLDER`, or a pg pool of the caller's (left open); default as `fit`. */
+  readonly db?: DatabaseOption;
   readonly env?: NodeJS.ProcessEnv;
 }
 

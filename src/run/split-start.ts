@@ -11,7 +11,7 @@ import { createStoreDb, failRunsAndPartials, migrate, startSplitRun } from '../s
 import { planFit } from './plan-fit.js';
 import { withFitLock } from './run-fit-exclusive.js';
 import { ReadSites } from './read-sites.js';
-import { loadSpecFile, openSourceDatabase, readFromText, startFitRun } from './run-fit.js';
+import { openSourceDatabase, readFromText, requestSpec, startFitRun } from './run-fit.js';
 import { connectionNamed, loadConnections } from '../source/connections-file.js';
 import { splitLeaseSeconds } from './split-lease.js';
 
@@ -28,6 +28,8 @@ export interface SplitStart {
 /** What {@link startSplitFit} needs. */
 export interface SplitStartRequest {
   readonly specPath: string;
+  /** `--schema`: the result schema, in place of the spec's `schema`. */
+  readonly schema?: string | undefined;
   readonly target: ConnectionTarget;
   /** The connections file (`--connections`; otherwise ROWFOLD_CONNECTIONS in `env`). */
   readonly connections?: string | undefined;
@@ -56,7 +58,7 @@ export interface SplitStartRequest {
  * const start = await startSplitFit({ specPath, target, enqueue: (s) => sendPartitionJobs(s) });
  */
 export async function startSplitFit(req: SplitStartRequest): Promise<SplitStart> {
-  const spec = await loadSpecFile(req.specPath);
+  const spec = await requestSpec({ specPath: req.specPath, schema: req.schema });
   const split = spec.split;
   if (split === null) throw new TypeError(`fit ${spec.name} has no split: key; run it whole`);
   const connections = loadConnections({ file: req.connections, env: req.env ?? process.env });

@@ -17,6 +17,8 @@ export interface FitJobRunnerOptions {
   readonly env: NodeJS.ProcessEnv;
   /** `--connections FILE` (otherwise ROWFOLD_CONNECTIONS): shards and read_from connections. */
   readonly connections?: string | undefined;
+  /** `--schema`: the result schema of every fit served, in place of each spec's `schema`. */
+  readonly schema?: string | undefined;
 }
 
 /** The error a run gets when `serve` drops it on a second signal. */
@@ -50,11 +52,12 @@ export function fitJobRunner(opts: FitJobRunnerOptions): RunServedJob {
     const dropLock = (backendPid: number) => job.onDrop(() => breakFitLock(opts.target, backendPid, spec.schema, spec.name).then(() => undefined));
     if (job.kind === 'fit') {
       if (spec.split === null) {
-        const r = await runFitExclusive({ specPath, db: opts.db, env: opts.env, connections: opts.connections, onRunStarted: dropRun, signal }, { onLocked: dropLock });
+        const r = await runFitExclusive({ specPath, schema: opts.schema, db: opts.db, env: opts.env, connections: opts.connections, onRunStarted: dropRun, signal }, { onLocked: dropLock });
         return { run_id: r.runId, rows_read: r.rowsRead, rows_used: r.rowsUsed, segments: r.modelCount, seconds: r.seconds };
       }
       const started = await startSplitFit({
         specPath,
+        schema: opts.schema,
         target: opts.target,
         connections: opts.connections,
         env: opts.env,

@@ -11,6 +11,12 @@ export interface FitSchedule {
   readonly cron: string;
 }
 
+/** How {@link loadFitSchedules} reads the specs. */
+export interface LoadSchedulesOptions {
+  /** `serve --schema`: the result schema of every fit, in place of each spec's `schema`. */
+  readonly schema?: string | undefined;
+}
+
 /** A schedule that cannot be used: no cron for a spec, or two schedules for one fit. */
 export class ScheduleError extends Error {
   override readonly name = 'ScheduleError';
@@ -26,14 +32,15 @@ export class ScheduleError extends Error {
  * @example
  * const schedules = await loadFitSchedules(['config/schedules.yaml']);
  */
-export async function loadFitSchedules(paths: readonly string[]): Promise<FitSchedule[]> {
+export async function loadFitSchedules(paths: readonly string[], options: LoadSchedulesOptions = {}): Promise<FitSchedule[]> {
   const out: FitSchedule[] = [];
   for (const path of paths) {
     const text = await readText(path);
     const entries = isScheduleFileText(text) ? parseScheduleFile(text, path) : [{ spec: path, cron: null, text }];
     for (const entry of entries) {
       const specText = 'text' in entry ? entry.text : await readText(entry.spec);
-      const spec = parseFitSpec(specText, entry.spec);
+      const parsed = parseFitSpec(specText, entry.spec);
+      const spec = options.schema === undefined ? parsed : { ...parsed, schema: options.schema };
       const cron = entry.cron ?? spec.schedule;
       if (cron === null) {
         throw new ScheduleError(

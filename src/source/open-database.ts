@@ -45,6 +45,9 @@ export const DEFAULT_EMBEDDED_DIR = '.rowfold/db';
  * const database = await openDatabase({ db: argv.db, env: process.env, sessions: parallel + 1 });
  * console.error(`using ${database.kind} database ${database.display}`);
  */
+/** Embedded folders this process has already named in the no-server notice. */
+const NOTICED_DEFAULT_DIRS = new Set<string>();
+
 export async function openDatabase(opts: OpenDatabaseOptions): Promise<Database> {
   const { db, env } = opts;
   if (typeof db === 'object') return serverDatabaseOnPool(db);
@@ -54,8 +57,12 @@ export async function openDatabase(opts: OpenDatabaseOptions): Promise<Database>
   const target = resolveConnection({ db, env });
   if (target.from === 'defaults') {
     const dir = embeddedDir('', opts);
-    // Said every time: a forgotten --db must not pass unnoticed, and the next error names no server.
-    notice(`no server configured (--db, DATABASE_URL, PG* variables): using the embedded database in ${dir}`);
+    // Said once per folder and process (a command that opens it twice, like demo, says it once):
+    // a forgotten --db must not pass unnoticed, and the next error names no server.
+    if (!NOTICED_DEFAULT_DIRS.has(dir)) {
+      NOTICED_DEFAULT_DIRS.add(dir);
+      notice(`no server configured (--db, DATABASE_URL, PG* variables): using the embedded database in ${dir}`);
+    }
     return openEmbeddedDatabase(dir);
   }
   return openServerDatabase(target, Math.max(1, opts.sessions));

@@ -22,6 +22,12 @@ export interface RunResult {
    * solves as it yields never holds more than a batch of solved models.
    */
   readonly models: Iterable<ModelRecord> | AsyncIterable<ModelRecord>;
+  /**
+   * Told, batch by batch once a batch is written, the `model_id` each of its models got, in the
+   * order the models were taken (for `--json` and the library's documents). Without it the ids
+   * are not read back.
+   */
+  readonly published?: (modelIds: readonly number[]) => void;
 }
 
 /** Options of {@link publishRun}. */
@@ -99,6 +105,7 @@ export async function writeRunResult(
     } catch (error) {
       throw explainInsertFailure(error, runId, batch);
     }
+    if (result.published !== undefined) result.published(await loadModelIds(trx, schema, runId, batch));
     segmentCount += batch.length;
     batch = [];
   };
@@ -124,6 +131,23 @@ export async function writeRunResult(
     })
     .where('run_id', '=', runIdText(runId))
     .execute();
+}
+
+/** The `model_id`s of a written batch, in the batch's order (segment keys are unique within a run). */
+async function loadModelIds(trx: Kysely<StoreDatabase>, schema: string, runId: number, batch: readonly ModelRecord[]): Promise<number[]> {
+  const rows = await trx
+    .withSchema(schema)
+    .selectFrom('models')
+    .select(['segment_key', 'model_id'])
+    .where('run_id', '=', runIdText(runId))
+    .where('segment_key', '=', sql<string>`any(${batch.map((m) => m.segmentKey)}::text[])`)
+    .execute();
+  const ids = new Map(rows.map((r) => [r.segment_key, Number(r.model_id)]));
+  return batch.map((m) => {
+    const id = ids.get(m.segmentKey);
+    if (id === undefined) throw new Error(`run ${runId}: the model of segment ${JSON.stringify(m.segmentKey)} was not found after its insert`);
+    return id;
+  });
 }
 
 function checkResult(result: RunResult): void {

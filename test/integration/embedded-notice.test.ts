@@ -27,7 +27,7 @@ describe('the embedded database on its first run', () => {
 });
 
 describe('the embedded database chosen because nothing names a server (issue 14)', () => {
-  it('is named on stderr every time, so a forgotten --db does not pass unnoticed; --db embedded: says nothing more', async () => {
+  it('is named on stderr (once per process), so a forgotten --db does not pass unnoticed; --db embedded: says nothing more', async () => {
     const seen: string[] = [];
     setNoticeSink((m) => seen.push(m));
     const cwd = join(dir, 'unconfigured');
@@ -35,7 +35,11 @@ describe('the embedded database chosen because nothing names a server (issue 14)
     await database.close();
     const folder = join(cwd, '.rowfold', 'db');
     expect(seen).toContain(`no server configured (--db, DATABASE_URL, PG* variables): using the embedded database in ${folder}`);
+    // Opened again in the same process (as demo does: load, then fit): not said twice.
     seen.length = 0;
+    const again = await openDatabase({ env: {}, sessions: 1, cwd });
+    await again.close();
+    expect(seen).toEqual([]);
     const named = await openDatabase({ db: `embedded:${folder}`, env: {}, sessions: 1 });
     await named.close();
     expect(seen).toEqual([]);

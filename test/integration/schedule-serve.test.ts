@@ -84,6 +84,32 @@ describe.skipIf(ON_EMBEDDED)('rowfold serve, schedules and runs (needs a server:
     expect(await Promise.all([a.exited, b.exited])).toEqual([0, 0]);
   });
 
+  it('serve --schema publishes every fit it serves to that schema, not the spec\'s (issue 14)', { timeout: 180_000 }, async () => {
+    const moved = writeSpec({ ...fastSpec, name: 'sched_moved' });
+    const s = serve.start([moved, '--db', tdb.url, '--schema', 'serve_elsewhere']);
+    await serve.until('the server ready', () => /serving 1 fit/.test(s.log()), 120_000);
+    const queue = fitQueueName('serve_elsewhere', 'sched_moved');
+    const registered = await tdb.query(`select name from ${JOBS_SCHEMA}.schedule where name = $1`, [queue]);
+    expect(registered.rows).toEqual([{ name: queue }]);
+    await (await testBoss()).send(queue, { fit: 'sched_moved', schema: 'serve_elsewhere' });
+    const inMoved = async () =>
+      (await tdb.query(`select status from serve_elsewhere.runs where fit_name = 'sched_moved'`).catch(() => ({ rows: [] }))).rows as { status: string }[];
+    await serve.until('the run in the other schema', async () => (await inMoved()).some((r) => r.status === 'succeeded'), 30_000);
+    expect((await inMoved()).map((r) => r.status)).toEqual(['succeeded']);
+    const models = await tdb.query(`select count(*)::int as n from serve_elsewhere.latest_models where fit_name = 'sched_moved'`);
+    expect(models.rows[0].n).toBe(1);
+    // Nothing in the spec's own schema.
+    expect(await runsOf('sched_moved')).toEqual([]);
+    s.child.kill('SIGTERM');
+    expect(await s.exited).toBe(0);
+  });
+
+  it('serve --schema with an unusable name is a usage error naming the flag', async () => {
+    const res = await runCli(['serve', fastPath, '--db', tdb.url, '--schema', 'x'.repeat(70)]);
+    expect(res.code).toBe(2);
+    expect(res.stderr).toMatch(/--schema: the result schema name "x+" is 70 bytes long/);
+  });
+
   // pg-boss reads its schedules once a minute, so a real tick costs up to a minute of waiting:
   // opt in with ROWFOLD_REAL_TICK=1. The tests above fire the tick's job directly instead.
   it.runIf(process.env['ROWFOLD_REAL_TICK'] === '1')('a real tick of "* * * * *" runs once with two serve processes', { timeout: 240_000 }, async () => {

@@ -108,8 +108,16 @@ describe.skipIf(ON_EMBEDDED).each(MODES)('%s mode', (mode) => {
     const error = await outcome;
     expect(error).toBeInstanceOf(DesignReadError);
     const e = error as DesignReadError;
-    expect(e.code).toBe('57P01');
-    expect(e.message).toContain('terminating connection due to administrator command');
+    if (mode === 'rows' && e.code !== '57P01') {
+      // Rows mode asks for each batch: when the backend is gone before the next request, the
+      // write can fail on the closed socket before the server's FATAL message is read (seen on a
+      // loaded machine). Either way the read fails with the connection's own code.
+      expect(['EPIPE', 'ECONNRESET']).toContain(e.code);
+      expect(e.message).toMatch(/EPIPE|ECONNRESET/);
+    } else {
+      expect(e.code).toBe('57P01');
+      expect(e.message).toContain('terminating connection due to administrator command');
+    }
     expect(e.rowsRead).toBeGreaterThan(0);
     // withClient released the client with the error: the pool discarded it.
     expect(pool.totalCount).toBe(0);

@@ -1,5 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { fit, fitRuns, latestResults, score } from '../../src/index.js';
+import { fit, fitRuns, latestResults, score, scoreView } from '../../src/index.js';
 import {
   COEFFICIENT_COLUMNS,
   DRIFT_COLUMNS,
@@ -148,10 +148,21 @@ describe('one vocabulary for --json, the library and the result tables', () => {
     const lib = await score({ fit: 'vocabulary_fit', source: 'feeder_hours', into: 'scored_by_library', keys: ['feeder_id', 'temp_c'], db: tdb.url });
     const cli = await runCli(['score', 'vocabulary_fit', '--source', 'feeder_hours', '--into', 'scored_by_cli', '--keys', 'feeder_id,temp_c', '--db', tdb.url, '--json']);
     expect(cli.code, cli.stderr).toBe(0);
-    const printed = JSON.parse(cli.stdout) as { fit_name: string; rows_scored: number; rows_skipped: Record<string, number>; database: string };
-    expect(printed).toMatchObject({ fit_name: 'vocabulary_fit', rows_scored: lib.rowsScored, rows_skipped: lib.rowsSkipped });
+    const printed = JSON.parse(cli.stdout) as Record<string, unknown>;
+    // The library resolves to the document --json prints: the same keys, the same counts.
+    expect(Object.keys(lib).sort()).toEqual(Object.keys(printed).sort());
+    expect(printed).toMatchObject({ fit_name: 'vocabulary_fit', rows_scored: lib.rows_scored, rows_skipped: lib.rows_skipped, rows_read: lib.rows_read });
+    // Named as the scorings table's columns.
+    const columns = await tdb.query(`select column_name from information_schema.columns where table_schema = 'rowfold' and table_name = 'scorings'`);
+    const names = new Set(columns.rows.map((r: { column_name: string }) => r.column_name));
+    for (const key of ['scoring_id', 'fit_name', 'run_id', 'target', 'level', 'rows_read', 'rows_scored', 'rows_skipped', 'seconds']) {
+      expect(names.has(key), key).toBe(true);
+      expect(Object.keys(lib)).toContain(key);
+    }
+    const stored = await tdb.query(`select rows_read::int, rows_scored::int, rows_skipped from rowfold.scorings where scoring_id = $1`, [lib.scoring_id]);
+    expect(stored.rows[0]).toEqual({ rows_read: lib.rows_read, rows_scored: lib.rows_scored, rows_skipped: lib.rows_skipped });
     // The rows with a NULL temp_c are counted, not scored.
-    expect(lib.rowsSkipped['null:temp_c']).toBeGreaterThan(0);
+    expect(lib.rows_skipped['null:temp_c']).toBeGreaterThan(0);
     const diff = await tdb.query(
       `select count(*)::int as n from (
          (select feeder_id, temp_c, prediction, prediction_se from scored_by_library except all select feeder_id, temp_c, prediction, prediction_se from scored_by_cli)
@@ -160,13 +171,14 @@ describe('one vocabulary for --json, the library and the result tables', () => {
     );
     expect(diff.rows[0]).toEqual({ n: 0 });
     const n = await tdb.query(`select count(*)::int as n from scored_by_library`);
-    expect(n.rows[0]).toEqual({ n: lib.rowsScored });
+    expect(n.rows[0]).toEqual({ n: lib.rows_scored });
   });
 
   it('fits without publishing when asked: same models, no run row', async () => {
     const before = (await tdb.query(`select count(*)::int as n from rowfold.runs`)).rows[0].n as number;
     const dry = await fit({ ...SPEC, name: 'vocabulary_unpublished' }, { db: tdb.url, publish: false });
     expect(dry.run.run_id).toBeNull();
+    expect(dry.models.map((m) => m.model_id)).toEqual([null, null, null]);
     expect(dry.models.map((m) => m.coefficients.map((c) => c.estimate))).toEqual(doc.models.map((m) => m.coefficients.map((c) => c.estimate)));
     expect((await tdb.query(`select count(*)::int as n from rowfold.runs`)).rows[0].n).toBe(before);
   });
@@ -182,6 +194,9 @@ describe('one vocabulary for --json, the library and the result tables', () => {
     expect(streamed.map((m) => m.coefficients.map((c) => c.estimate))).toEqual(doc.models.map((m) => m.coefficients.map((c) => c.estimate)));
     const published = await tdb.query(`select count(*)::int as n from rowfold.models where run_id = $1`, [kept.run.run_id]);
     expect(published.rows[0].n).toBe(3);
+    // Each model handed on carries the model_id it was published under.
+    const ids = await tdb.query(`select segment_key, model_id::int from rowfold.models where run_id = $1 order by segment_key`, [kept.run.run_id]);
+    expect(streamed.map((m) => [m.segment_key, m.model_id])).toEqual(ids.rows.map((r: { segment_key: string; model_id: number }) => [r.segment_key, r.model_id]));
   });
 
   it.skipIf(ON_EMBEDDED)('takes a pg pool of the caller, uses it, and leaves it open', async () => {
@@ -190,6 +205,12 @@ describe('one vocabulary for --json, the library and the result tables', () => {
       const viaPool = await fit({ ...SPEC, name: 'vocabulary_pool' }, { db: pool });
       expect(viaPool.run.database).toMatch(/the caller's pool/);
       expect(viaPool.models.map((m) => m.coefficients.map((c) => c.estimate))).toEqual(doc.models.map((m) => m.coefficients.map((c) => c.estimate)));
+      // score and scoreView take the pool too.
+      const scored = await score({ fit: 'vocabulary_pool', source: 'feeder_hours', into: 'scored_by_pool', db: pool });
+      expect(scored.database).toMatch(/the caller's pool/);
+      expect((await pool.query('select count(*)::int as n from scored_by_pool')).rows[0].n).toBe(scored.rows_scored);
+      const view = await scoreView({ fit: 'vocabulary_pool', source: 'feeder_hours', view: 'scored_view_by_pool', db: pool });
+      expect(view.view).toMatch(/scored_view_by_pool/);
       const latest = await latestResults('vocabulary_pool', { db: pool });
       expect(latest.models.map((m) => m.run_id)).toEqual([viaPool.run.run_id, viaPool.run.run_id, viaPool.run.run_id]);
       // Still open: the caller's pool is the caller's to end.

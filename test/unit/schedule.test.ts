@@ -115,7 +115,7 @@ describe('rowfold schedule and serve (no database)', () => {
     const file = join(import.meta.dirname, '..', '..', 'config', 'schedules.yaml');
     const res = await runCli(['schedule', file, '--next', '1', '--json']);
     expect(res.code, res.stderr).toBe(0);
-    const doc = JSON.parse(res.stdout) as { schedules: { fit: string; cron: string }[] };
+    const doc = JSON.parse(res.stdout) as { schedules: { fit_name: string; cron: string }[] };
     expect(doc.schedules.map((s) => s.cron)).toEqual(['0 3 * * *', '30 * * * *']);
   });
 
@@ -123,15 +123,19 @@ describe('rowfold schedule and serve (no database)', () => {
     const spec = writeSpec(`${SPEC}schedule: "0 3 * * *"\n`);
     const res = await runCli(['schedule', spec, '--next', '2', '--json']);
     expect(res.code, res.stderr).toBe(0);
-    const doc = JSON.parse(res.stdout) as { schedules: { fit: string; cron: string; next: string[] }[] };
+    const doc = JSON.parse(res.stdout) as { schedules: { fit_name: string; schema: string; cron: string; next: string[] }[] };
     expect(doc.schedules).toHaveLength(1);
-    expect(doc.schedules[0]!.fit).toBe('load');
+    expect(doc.schedules[0]!.fit_name).toBe('load');
+    expect(doc.schedules[0]!.schema).toBe('rowfold');
     expect(doc.schedules[0]!.next).toHaveLength(2);
     const [a, b] = doc.schedules[0]!.next.map((t) => new Date(t).getTime());
     expect(b! - a!).toBe(86_400_000);
     expect(new Date(a!).getUTCHours()).toBe(3);
     const text = await runCli(['schedule', spec, '--next', '1']);
-    expect(text.stdout).toMatch(/^fit load \(.*\) · cron "0 3 \* \* \*" \(UTC\)\n  \d{4}-\d\d-\d\d 03:00 UTC\n$/);
+    expect(text.stdout).toMatch(/^fit load \(.*\) · cron "0 3 \* \* \*" \(UTC\) · results in schema rowfold\n  \d{4}-\d\d-\d\d 03:00 UTC\n$/);
+    // --schema puts every fit's results elsewhere, as serve --schema does (issue 14).
+    const moved = JSON.parse((await runCli(['schedule', spec, '--next', '1', '--schema', 'elsewhere', '--json'])).stdout) as { schedules: { schema: string }[] };
+    expect(moved.schedules[0]!.schema).toBe('elsewhere');
   });
 
   it('a spec without a schedule or a bad --next is a usage error', async () => {
