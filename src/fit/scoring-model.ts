@@ -45,12 +45,25 @@ export class ModelScorer {
   /** t quantile of the interval (NaN without inference). */
   readonly t: number;
   private readonly xk: Float64Array;
+  /** The packed covariance with its off-diagonal entries doubled (xᵀCx counts each twice). */
+  private readonly c2: Float64Array | null;
 
   constructor(model: ScoringModel, level: number) {
     if (!(level > 0 && level < 1)) throw new RangeError(`level must lie strictly between 0 and 1, got ${level}`);
     this.model = model;
     this.t = model.covariance !== null && model.sigma !== null && model.dfResidual > 0 ? tQuantile((1 + level) / 2, model.dfResidual) : NaN;
     this.xk = new Float64Array(model.kept.length);
+    const c = model.covariance;
+    if (c === null) this.c2 = null;
+    else {
+      const k = model.kept.length;
+      const c2 = Float64Array.from(c);
+      for (let i = 0, at = 0; i < k; i++) {
+        at++; // the diagonal, once
+        for (let j = i + 1; j < k; j++) c2[at++]! *= 2;
+      }
+      this.c2 = c2;
+    }
   }
 
   /**
@@ -69,21 +82,22 @@ export class ModelScorer {
       prediction += v * b[kept[i]!]!;
     }
     out.prediction = prediction;
-    const c = m.covariance;
+    const c = this.c2;
     if (c === null || m.sigma === null) {
       out.predictionSe = NaN;
       out.intervalLow = NaN;
       out.intervalHigh = NaN;
       return;
     }
-    // xᵀCx over the packed upper triangle: diagonal once, off-diagonal twice.
+    // xᵀCx over the packed upper triangle: diagonal once, off-diagonal twice (doubled in c2:
+    // 2·c·x rounds as c·x doubled, so the sum is the same to the bit).
     const k = kept.length;
     let q = 0;
     let at = 0;
     for (let i = 0; i < k; i++) {
       const xi = xk[i]!;
       let row = c[at++]! * xi;
-      for (let j = i + 1; j < k; j++) row += 2 * c[at++]! * xk[j]!;
+      for (let j = i + 1; j < k; j++) row += c[at++]! * xk[j]!;
       q += xi * row;
     }
     const variance = Math.max(q, 0);

@@ -13,6 +13,8 @@ interface SegmentScoring {
   /** Why the segment's rows are not scored when `scorer` is null. */
   readonly reason: string;
   readonly stats: SegmentErrorStats;
+  /** The segment key as UTF-8, encoded once for every row of the segment. */
+  readonly keyBytes: Uint8Array;
 }
 
 /**
@@ -34,6 +36,9 @@ export class RowScorer {
   private readonly levelReasons: string[];
   private readonly levelNullReasons: string[];
   private readonly terms: string;
+  private lastSegment: SegmentScoring | null | undefined = undefined;
+  private lastKey = '';
+  private readonly lastTexts: (string | null)[] = [];
 
   constructor(
     private readonly query: ScoreQuery,
@@ -65,11 +70,23 @@ export class RowScorer {
       if (row.isNull[v + c] === 1) return this.skip(this.levelNullReasons[c]!);
       if (values[v + c] === 0) return this.skip(this.levelReasons[c]!);
     }
-    const key = this.query.segmentColumns.length === 0 ? '' : JSON.stringify(row.texts);
-    let seg = this.segments.get(key);
-    if (seg === undefined) {
-      seg = this.segmentOf(key);
-      this.segments.set(key, seg);
+    // Rows of one segment often come together: the previous row's segment is tried first,
+    // without building its key.
+    let seg: SegmentScoring | null | undefined;
+    let key: string;
+    if (this.lastSegment !== undefined && sameTexts(row.texts, this.lastTexts)) {
+      seg = this.lastSegment;
+      key = this.lastKey;
+    } else {
+      key = this.query.segmentColumns.length === 0 ? '' : JSON.stringify(row.texts);
+      seg = this.segments.get(key);
+      if (seg === undefined) {
+        seg = this.segmentOf(key);
+        this.segments.set(key, seg);
+      }
+      this.lastSegment = seg;
+      this.lastKey = key;
+      for (let i = 0; i < row.texts.length; i++) this.lastTexts[i] = row.texts[i]!;
     }
     if (seg === null) return this.skip('no_model');
     if (seg.scorer === null) return this.skip(seg.reason);
@@ -80,7 +97,7 @@ export class RowScorer {
     const w = this.writer;
     w.beginRow();
     for (let f = 0; f < row.passStart.length; f++) w.raw(row.bytes, row.passStart[f]!, row.passLength[f]!);
-    w.text(key);
+    w.raw(seg.keyBytes, 0, seg.keyBytes.length);
     w.int8(seg.scorer.model.runId);
     w.float8OrNull(out.prediction);
     w.float8OrNull(out.predictionSe);
@@ -126,6 +143,12 @@ export class RowScorer {
       scorer: model.estimates === null || !sameDesign ? null : new ModelScorer(model, this.level),
       reason: sameDesign ? 'no_estimates' : 'other_design',
       stats: new SegmentErrorStats(seed),
+      keyBytes: new TextEncoder().encode(key),
     };
   }
+}
+
+function sameTexts(a: readonly (string | null)[], b: readonly (string | null)[]): boolean {
+  for (let i = 0; i < a.length; i++) if (a[i] !== b[i]) return false;
+  return true;
 }

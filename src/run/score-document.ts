@@ -54,6 +54,8 @@ export interface ScoreViewDocument {
   readonly view: string;
   /** The named run, else null: the view joins each segment's latest model at query time. */
   readonly run_id: number | null;
+  /** Level of the view's prediction intervals (as `level` of a table scoring). */
+  readonly level: number;
   readonly database: string;
   /** The statement that made the view. */
   readonly sql: string;
@@ -91,5 +93,5 @@ export function scoreDocument(r: ScoreResult): ScoreDocument {
 
 /** A scoring view's result in the vocabulary. */
 export function scoreViewDocument(r: ScoreViewResult): ScoreViewDocument {
-  return { fit_name: r.fit, view: r.view, run_id: r.runId, database: r.connection, sql: r.sql };
+  return { fit_name: r.fit, view: r.view, run_id: r.runId, level: r.level, database: r.connection, sql: r.sql };
 }

@@ -15,7 +15,9 @@ export class SegmentErrorStats {
   private sumAbs = 0;
   private sumSquares = 0;
   outsideInterval = 0;
-  private readonly sample = new Float64Array(4 * SAMPLE_ROWS);
+  // Grown as rows arrive (doubling up to SAMPLE_ROWS rows): 100,000 segments of a few rows each
+  // would otherwise hold 640 MB of empty samples.
+  private sample = new Float64Array(0);
   private seed: number;
 
   constructor(seed: number) {
@@ -35,7 +37,17 @@ export class SegmentErrorStats {
       slot = Math.floor(this.random() * this.rowsActual);
       if (slot >= SAMPLE_ROWS) return;
     }
-    this.sample.set([actual, predicted, low, high], 4 * slot);
+    if (4 * slot >= this.sample.length) {
+      const grown = new Float64Array(Math.min(4 * SAMPLE_ROWS, Math.max(16, 2 * this.sample.length)));
+      grown.set(this.sample);
+      this.sample = grown;
+    }
+    const at = 4 * slot;
+    const sample = this.sample;
+    sample[at] = actual;
+    sample[at + 1] = predicted;
+    sample[at + 2] = low;
+    sample[at + 3] = high;
   }
 
   /** The record of the segment. */

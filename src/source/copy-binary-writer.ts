@@ -45,7 +45,10 @@ export class CopyBinaryWriter {
     if (length < 0) return this.nullField();
     this.ensure(4 + length);
     this.buf.writeInt32BE(length, this.at);
-    this.buf.set(bytes.subarray(start, start + length), this.at + 4);
+    const to = this.at + 4;
+    // Short fields (a key, an id) byte by byte: a subarray per row and field is garbage per row.
+    if (length <= 32) for (let i = 0; i < length; i++) this.buf[to + i] = bytes[start + i]!;
+    else this.buf.set(bytes.subarray(start, start + length), to);
     this.at += 4 + length;
   }
 

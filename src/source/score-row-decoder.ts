@@ -122,35 +122,26 @@ export class ScoreRowDecoder {
         continue;
       }
       if (count !== fields) throw new Error(`a COPY row has ${count} fields, expected ${fields}`);
-      // Find the row's end before decoding anything of it.
+      // One pass over the row, each field checked to be whole before it is read; a row cut by
+      // the piece's end is left for the next piece (what was decoded of it is overwritten then).
       let p = at + 2;
-      let complete = true;
-      for (let f = 0; f < fields; f++) {
-        if (end - p < 4) {
-          complete = false;
-          break;
-        }
-        const len = view.getInt32(p);
-        p += 4 + (len > 0 ? len : 0);
-        if (p > end) {
-          complete = false;
-          break;
-        }
-      }
-      if (!complete) return at;
-      p = at + 2;
       for (let f = 0; f < passThrough; f++) {
+        if (end - p < 4) return at;
         const len = view.getInt32(p);
+        if (len > 0 && end - p - 4 < len) return at;
         row.passStart[f] = p + 4;
         row.passLength[f] = len;
         p += 4 + (len > 0 ? len : 0);
       }
       for (let f = 0; f < texts; f++) {
+        if (end - p < 4) return at;
         const len = view.getInt32(p);
+        if (len > 0 && end - p - 4 < len) return at;
         row.texts[f] = len < 0 ? null : buf.toString('utf8', p + 4, p + 4 + len);
         p += 4 + (len > 0 ? len : 0);
       }
       for (let f = 0; f < floats; f++) {
+        if (end - p < 4) return at;
         const len = view.getInt32(p);
         if (len < 0) {
           row.values[f] = NaN;
@@ -158,6 +149,7 @@ export class ScoreRowDecoder {
           p += 4;
         } else {
           if (len !== 8) throw new Error(`a float8 field has ${len} bytes`);
+          if (end - p < 12) return at;
           row.values[f] = view.getFloat64(p + 4);
           row.isNull[f] = 0;
           p += 12;

@@ -1,4 +1,3 @@
-import { float8ArrayText } from './float8-array.js';
 import { checkSchemaName } from './schema-name.js';
 import type { SqlRunner } from './sql-runner.js';
 import { quoteName } from './sql-runner.js';
@@ -58,8 +57,27 @@ export async function writeScoring(db: SqlRunner, schema: string, record: Scorin
     ],
   );
   const id = String(inserted.rows[0]![0]);
+  // A chunk of segments at a time (at most so many segments, and so many sampled rows): the
+  // parameters of 100,000 segments and their samples built at once held hundreds of MB of strings.
   const seg = record.segments;
-  if (seg.length === 0) return Number(id);
+  for (let from = 0; from < seg.length; ) {
+    let to = from;
+    let samples = 0;
+    while (to < seg.length && to - from < SEGMENTS_PER_STATEMENT && (to === from || samples + seg[to]!.sample.length / 4 <= SAMPLES_PER_STATEMENT)) {
+      samples += seg[to]!.sample.length / 4;
+      to++;
+    }
+    await writeSegments(db, s, id, seg.slice(from, to));
+    from = to;
+  }
+  return Number(id);
+}
+
+/** Segments written per statement, and sampled rows. */
+const SEGMENTS_PER_STATEMENT = 10_000;
+const SAMPLES_PER_STATEMENT = 200_000;
+
+async function writeSegments(db: SqlRunner, s: string, id: string, seg: readonly ScoringSegmentRecord[]): Promise<void> {
   await db.query(
     `insert into ${s}.scoring_segments (scoring_id, segment, segment_key, run_id, rows_scored, rows_actual, mean_error, mae, rmse, outside_interval)
      select $1::bigint, u.segment::jsonb, u.segment_key, u.run_id, u.rows_scored, u.rows_actual, u.mean_error, u.mae, u.rmse, u.outside_interval
@@ -78,16 +96,26 @@ export async function writeScoring(db: SqlRunner, schema: string, record: Scorin
       seg.map((g) => String(g.outsideInterval)),
     ],
   );
-  // Samples: one float8[] per segment (as text), unpacked by the server into rows.
-  const sampled = seg.filter((g) => g.sample.length > 0);
-  if (sampled.length > 0) {
+  // Samples: one row per sampled row, as five parallel arrays the server unnests (an array per
+  // segment unpacked by subscripts re-read each segment's array for every element: 44 s for
+  // 100,000 segments of six rows).
+  const keys: string[] = [];
+  const columns: string[][] = [[], [], [], []];
+  for (const g of seg) {
+    for (let i = 0; i + 3 < g.sample.length; i += 4) {
+      keys.push(g.segmentKey);
+      for (let c = 0; c < 4; c++) {
+        // NaN: an interval the model could not give (no inference), stored as NULL as in the scores.
+        const v = g.sample[i + c]!;
+        columns[c]!.push(Number.isNaN(v) ? 'NULL' : float8Text(v)!);
+      }
+    }
+  }
+  if (keys.length > 0) {
     await db.query(
       `insert into ${s}.scoring_samples (scoring_id, segment_key, actual, predicted, interval_low, interval_high)
-       select $1::bigint, u.segment_key, u.v[4 * i + 1], u.v[4 * i + 2], u.v[4 * i + 3], u.v[4 * i + 4]
-         from (select k as segment_key, v::float8[] as v from unnest($2::text[], $3::text[]) as x(k, v)) u,
-              generate_series(0, cardinality(u.v) / 4 - 1) i`,
-      [id, sampled.map((g) => g.segmentKey), sampled.map((g) => float8ArrayText(g.sample).replace(/NaN/g, 'NULL'))],
+       select $1::bigint, u.k, u.a, u.p, u.l, u.h from unnest($2::text[], $3::float8[], $4::float8[], $5::float8[], $6::float8[]) as u(k, a, p, l, h)`,
+      [id, keys, ...columns.map((c) => `{${c.join(',')}}`)],
     );
   }
-  return Number(id);
 }

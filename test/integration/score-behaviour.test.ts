@@ -205,3 +205,67 @@ describe('rowfold score: a design that changed between runs', () => {
     expect(await count('view_changing')).toBe(1000);
   });
 });
+
+describe('rowfold score --view: intervals after a refit (issue 15)', () => {
+  it('binds the t quantiles of the models at creation: a refit with other residual degrees of freedom shows NULL intervals until the view is made again', async () => {
+    await tdb.query(`create table readings_growing as select * from readings`);
+    await tdb.query(`create table readings_ids as select row_number() over () as id, * from readings`);
+    const spec = writeSpec({ name: 'score_growing', source: 'readings_growing', response: 'load_mw', terms: ['temp_c'], segment_by: ['feeder'] });
+    expect((await runCli(['fit', spec, '--db', tdb.url])).code).toBe(0);
+    const made = await runCli(['score', 'score_growing', '--source', 'readings_ids', '--view', 'view_growing', '--keys', 'id', '--level', '0.9', '--db', tdb.url, '--json']);
+    expect(made.code, made.stderr).toBe(0);
+    expect((JSON.parse(made.stdout) as { level: number }).level).toBe(0.9);
+    const nulls = async () => Number((await tdb.query<{ n: string }>(`select count(*) as n from view_growing where interval_low is null or interval_high is null`)).rows[0]!.n);
+    expect(await count('view_growing')).toBe(2000);
+    expect(await nulls()).toBe(0);
+    // Ten more rows for F01 only: its residual degrees of freedom change, F02's do not.
+    await tdb.query(`insert into readings_growing select feeder, region, temp_c, load_mw + 0.01 from readings where feeder = 'F01' limit 10`);
+    expect((await runCli(['fit', spec, '--db', tdb.url])).code).toBe(0);
+    const byFeeder = async () =>
+      (await tdb.query<{ segment_key: string; n: string }>(`select segment_key, count(*) filter (where interval_low is null) as n from view_growing group by 1 order by 1`)).rows.map((r) => [r.segment_key, Number(r.n)]);
+    expect(await byFeeder()).toEqual([['["F01"]', 1000], ['["F02"]', 0]]);
+    // Made again, the view has every interval and agrees with table scoring at the same level.
+    expect((await runCli(['score', 'score_growing', '--source', 'readings_ids', '--view', 'view_growing', '--keys', 'id', '--level', '0.9', '--db', tdb.url])).code).toBe(0);
+    expect(await nulls()).toBe(0);
+    const scored = await runCli(['score', 'score_growing', '--source', 'readings_ids', '--into', 'out_growing', '--keys', 'id', '--level', '0.9', '--db', tdb.url]);
+    expect(scored.code, scored.stderr).toBe(0);
+    const diff = (await tdb.query<{ worst: number; n: string }>(
+      `select count(*) as n, max(greatest(abs(o.interval_low - w.interval_low) / abs(o.interval_low), abs(o.interval_high - w.interval_high) / abs(o.interval_high))) as worst
+         from out_growing o join view_growing w using (id)`,
+    )).rows[0]!;
+    expect(Number(diff.n)).toBe(2000);
+    expect(diff.worst).toBeLessThan(1e-12);
+  });
+});
+
+describe('rowfold score: models whose coefficients are rows (runs before coefficient arrays)', () => {
+  it('scores the same from coefficient_rows as from the model arrays, in the table and the view', async () => {
+    await tdb.query(`create table readings_keyed as select row_number() over () as id, * from readings`);
+    const args = ['--source', 'readings_keyed', '--keys', 'id', '--level', '0.9'];
+    expect((await score(...args, '--into', 'out_arrays')).code).toBe(0);
+    expect((await score(...args, '--view', 'view_arrays')).code).toBe(0);
+    const cols = 'id, segment_key, run_id, prediction, prediction_se, interval_low, interval_high';
+    const arrays = (await tdb.query(`select ${cols} from out_arrays order by id`)).rows;
+    expect(arrays).toHaveLength(2000);
+    const viewed = (await tdb.query(`select ${cols} from view_arrays order by id`)).rows;
+    expect(viewed.map((r) => r.id)).toEqual(arrays.map((r) => r.id));
+    // The fit's latest models stored as a run of before migration 7 stored them: coefficient rows, no arrays.
+    await tdb.query(`
+      with m as (select model_id from rowfold.latest_models where fit_name = '${FIT}')
+      insert into rowfold.coefficient_rows (model_id, run_id, term_index, term, aliased, estimate, std_error, t, p, ci_low, ci_high, vif)
+        select c.model_id, c.run_id, c.term_index, c.term, c.aliased, c.estimate, c.std_error, c.t, c.p, c.ci_low, c.ci_high, c.vif
+          from rowfold.coefficients c join m using (model_id)`);
+    const moved = await tdb.query(`
+      update rowfold.models set terms = null, term_aliased = null, estimates = null, std_errors = null, t_values = null,
+             p_values = null, ci_lows = null, ci_highs = null, vifs = null
+       where model_id in (select model_id from rowfold.latest_models where fit_name = '${FIT}') returning model_id`);
+    expect(moved.rows).toHaveLength(2);
+    expect((await score(...args, '--into', 'out_rows')).code).toBe(0);
+    expect((await tdb.query(`select ${cols} from out_rows order by id`)).rows).toEqual(arrays);
+    // The view made before reads the rows at query time; one made now does too (the view's sums
+    // run in SQL, so it is compared with itself; with table scoring to 1e-12 in score-reference).
+    expect((await tdb.query(`select ${cols} from view_arrays order by id`)).rows).toEqual(viewed);
+    expect((await score(...args, '--view', 'view_rows')).code).toBe(0);
+    expect((await tdb.query(`select ${cols} from view_rows order by id`)).rows).toEqual(viewed);
+  });
+});

@@ -104,18 +104,23 @@ describe(`scoring against ${SOURCE}`, () => {
       });
 
       it('scores inside the database by a view that equals the table scoring to 1e-12', async () => {
-        const res = await runCli(['score', fit, '--source', 'tomorrow', '--view', `view_${c.name}`, '--keys', 'id', '--db', tdb.url]);
+        const res = await runCli(['score', fit, '--source', 'tomorrow', '--view', `view_${c.name}`, '--keys', 'id', '--level', String(c.level), '--db', tdb.url]);
         expect(res.stderr).toBe('');
         expect(res.code).toBe(0);
-        const table = (await tdb.query<Record<string, unknown>>(`select id, segment_key, run_id::int, prediction, prediction_se from out_${c.name} order by id`)).rows;
-        const view = (await tdb.query<Record<string, unknown>>(`select id, segment_key, run_id::int, prediction, prediction_se from view_${c.name} order by id`)).rows;
+        const cols = 'id, segment_key, run_id::int, prediction, prediction_se, interval_low, interval_high';
+        const table = (await tdb.query<Record<string, unknown>>(`select ${cols} from out_${c.name} order by id`)).rows;
+        const view = (await tdb.query<Record<string, unknown>>(`select ${cols} from view_${c.name} order by id`)).rows;
         expect(view.map((r) => r['id'])).toEqual(table.map((r) => r['id']));
         view.forEach((v, i) => {
           const t = table[i]!;
           expect(v['segment_key']).toBe(t['segment_key']);
           expect(v['run_id']).toBe(t['run_id']);
           expectClose(v['prediction'] as number, t['prediction'] as number, 1e-12, `view prediction row ${String(v['id'])}`);
-          expectClose(v['prediction_se'] as number, t['prediction_se'] as number, 1e-12, `view prediction_se row ${String(v['id'])}`);
+          for (const k of ['prediction_se', 'interval_low', 'interval_high']) {
+            // Both NULL where a model has no inference (no residual degrees of freedom).
+            if (t[k] === null) expect(v[k], `view ${k} row ${String(v['id'])}`).toBeNull();
+            else expectClose(v[k] as number, t[k] as number, 1e-12, `view ${k} row ${String(v['id'])}`);
+          }
         });
       });
     });

@@ -4,13 +4,11 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import pg from 'pg';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { fitJobRunner } from '../../src/schedule/fit-job-runner.js';
-import type { JobSender, ServedJob } from '../../src/schedule/serve-fits.js';
 import { resolveConnection } from '../../src/source/connection-target.js';
 import type { ConnectionTarget } from '../../src/source/connection-target.js';
-import { loadFitSpec } from '../../src/spec/load-fit-spec.js';
 import { expectClose } from '../support/close.js';
-import { createServerTestDatabase, ON_EMBEDDED, randomSuffix } from '../support/pg-database.js';
+import { driveSplit as driveSplitRun } from '../support/drive-split.js';
+import { createServerTestDatabase, ON_EMBEDDED } from '../support/pg-database.js';
 import type { TestDatabase } from '../support/pg-database.js';
 import { runCli, writeSpec } from '../support/run-cli.js';
 import { ThrowawayCluster } from '../support/throwaway-cluster.js';
@@ -107,43 +105,9 @@ function expectSameFit(got: Awaited<ReturnType<typeof results>>, want: Awaited<R
   });
 }
 
-/**
- * Works a split run's jobs as rowfold serve would, in this process: the fit job starts the run,
- * every partition job and the merge job are tried up to `retries` more times (pg-boss retries a
- * failed job; the last attempt is `final`). Returns the run id and every job error.
- */
-async function driveSplit(specPath: string, opts: { retries?: number; beforePartition?: (p: number) => Promise<void> | void; store?: TestDatabase } = {}) {
-  const spec = await loadFitSpec(specPath);
-  const schedule = { specPath, spec, cron: '0 0 * * *' };
-  const store = opts.store ?? tdb;
-  const runner = fitJobRunner({ target: resolveConnection({ db: store.url, env: {} }), db: store.url, env: { ...process.env, ROWFOLD_CONNECTIONS: connectionsFile } });
-  const queue: { kind: 'partition' | 'merge'; data: Record<string, unknown> }[] = [];
-  const send: JobSender = {
-    partitions: async (_s, runId, n) => {
-      for (let p = 0; p < n; p++) queue.push({ kind: 'partition', data: { fit: spec.name, schema: spec.schema, runId, partition: p, partitions: n } });
-    },
-    merge: async (_s, runId) => {
-      queue.push({ kind: 'merge', data: { fit: spec.name, schema: spec.schema, runId } });
-    },
-  };
-  const job = (kind: ServedJob['kind'], data: Record<string, unknown>, final: boolean): ServedJob =>
-    ({ kind, queue: kind, id: randomSuffix(), schedule, data, final, signal: new AbortController().signal, onDrop: () => undefined }) as unknown as ServedJob;
-  const started = (await runner(job('fit', { fit: spec.name, schema: spec.schema }, true), send)) as { run_id: number };
-  const errors: Error[] = [];
-  const retries = opts.retries ?? 2;
-  while (queue.length > 0) {
-    const next = queue.shift()!;
-    if (next.kind === 'partition') await opts.beforePartition?.(next.data['partition'] as number);
-    for (let attempt = 0; attempt <= retries; attempt++) {
-      try {
-        await runner(job(next.kind, next.data, attempt === retries), send);
-        break;
-      } catch (e) {
-        errors.push(e as Error);
-      }
-    }
-  }
-  return { runId: started.run_id, errors };
+/** A split run's jobs worked in this process (see test/support/drive-split.ts), published to `store` (default the coordinator). */
+function driveSplit(specPath: string, opts: { retries?: number; beforePartition?: (p: number) => Promise<void> | void; store?: TestDatabase } = {}) {
+  return driveSplitRun(specPath, { storeUrl: (opts.store ?? tdb).url, connectionsFile, retries: opts.retries, beforePartition: opts.beforePartition });
 }
 
 describe.skipIf(!available)('reading a sharded table where it lives (issue 17; server only: shards are servers)', () => {

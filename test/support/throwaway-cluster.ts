@@ -55,6 +55,24 @@ export class ThrowawayCluster {
     return cluster;
   }
 
+  /**
+   * A hot standby of `primary` at `port`: `pg_basebackup -R` (streaming the WAL it needs, and
+   * writing the standby signal and the primary's connection), then started; it serves read-only
+   * queries and replays what the primary writes. initdb's trust rules let local replication in.
+   */
+  static async standbyOf(primary: ThrowawayCluster, port: number): Promise<ThrowawayCluster> {
+    const bin = (await run('pg_config', ['--bindir'])).stdout.trim();
+    const asPostgres = userInfo().uid === 0;
+    const root = mkdtempSync(join(tmpdir(), `rowfold-cluster-${port}-`));
+    chmodSync(root, 0o755);
+    const dir = join(root, 'data');
+    const cluster = new ThrowawayCluster(port, dir, bin, asPostgres);
+    if (asPostgres) chownSync(root, ...(await postgresIds()));
+    await cluster.#ctl('pg_basebackup', ['-h', '127.0.0.1', '-p', String(primary.port), '-U', 'postgres', '-D', dir, '-R', '-X', 'stream', '--no-sync', '-c', 'fast']);
+    await cluster.start();
+    return cluster;
+  }
+
   /** A connection URL to `database` as the superuser `postgres`. */
   url(database = 'postgres', user = 'postgres'): string {
     return `postgres://${encodeURIComponent(user)}@127.0.0.1:${this.port}/${encodeURIComponent(database)}`;
