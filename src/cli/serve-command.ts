@@ -123,6 +123,12 @@ export function serveCommand(y: Argv): Argv {
       } finally {
         process.off('SIGTERM', onSignal);
         process.off('SIGINT', onSignal);
+        // A signal while the process winds down (pools closing) is a second signal too: stop now,
+        // with the code of a stop now, rather than dying of the signal (a signal listener does not
+        // keep the process alive, so an exit without one is unchanged).
+        const late = () => process.exit(ExitCode.failed);
+        process.once('SIGTERM', late);
+        process.once('SIGINT', late);
       }
     },
   );
