@@ -34,6 +34,27 @@ export function stageRows(
   const icpt = layout.intercept ? 1 : 0;
   const c = shift ?? zeroShift(p);
   const yCol = (n - 1) * m;
+  if (!weighted && p < 64) {
+    // Every row staged, so a column at a time: each inner loop a plain strided copy. The same
+    // values in the same places, flushed in the same runs, as the row-at-a-time loop below.
+    // Measured through the accumulator (fold included): 10.2 → 8.4 ns per value at 20 terms,
+    // no gain at 200 (rows of 1.6 kB), where the row loop stays.
+    for (let at = from; at < to; ) {
+      const rows = Math.min(m, to - at);
+      if (icpt === 1) buf.fill(1, 0, rows);
+      for (let j = 0; j <= p; j++) {
+        const cj = c[j]!;
+        const col = j < p ? (j + icpt) * m : yCol;
+        let idx = at * width + j;
+        for (let i = 0; i < rows; i++, idx += width) buf[col + i] = v[idx]! - cj;
+      }
+      counts.rows += rows;
+      counts.sumWeights += rows;
+      at += rows;
+      flush(rows);
+    }
+    return;
+  }
   let fill = 0;
   for (let row = from; row < to; row++) {
     const base = row * width;

@@ -166,6 +166,11 @@ export class CopyBinaryDecoder {
   readonly #pair = dd();
   readonly #keys: Int32Array;
   #blockFill = 0;
+  /**
+   * No key columns and every value float8: a tuple is then always 2 + 12·V bytes unless it
+   * holds a NULL, and {@link #consumePlainTuples} reads it in one pass.
+   */
+  readonly #plain: boolean;
 
   /** Key ids by a 32-bit hash of the key's raw bytes; collisions are told apart by the bytes. */
   /**
@@ -220,6 +225,7 @@ export class CopyBinaryDecoder {
     if (types.length !== 0 && types.length !== v) throw new RangeError(`valueTypes has ${types.length} types for ${v} value columns`);
     this.#numeric = Array.from({ length: v }, (_, j) => types[j] === 'numeric');
     this.#stride = this.#numeric.some(Boolean) ? 2 : 1;
+    this.#plain = k === 0 && this.#stride === 1;
     this.#values = new Float64Array(blockRows * v * this.#stride);
     this.#keys = new Int32Array(blockRows);
     this.#nullCounts = new Array<number>(v).fill(0);
@@ -421,6 +427,13 @@ export class CopyBinaryDecoder {
             break;
           }
           while (pos < end && this.#phase === Phase.Tuples) {
+            if (this.#plain) {
+              // Whole tuples of the common layout in one pass; the first one it cannot take
+              // (cut by the chunk's end, a NULL, the trailer, a malformed one) is the general
+              // path's below.
+              pos = this.#consumePlainTuples(view, pos, end, onBlock);
+              if (pos >= end) break;
+            }
             const tupleEnd = this.#scanTuple(view, pos, end);
             if (tupleEnd > end) {
               // Only the straddling tail (a prefix of one tuple) is copied.
@@ -582,6 +595,45 @@ export class CopyBinaryDecoder {
     return field < this.#keyCount
       ? (this.#keyNames[field] ?? `key ${field + 1}`)
       : (this.#valueNames[field - this.#keyCount] ?? `value ${field - this.#keyCount + 1}`);
+  }
+
+  /**
+   * The fast path of a plain layout (see {@link #plain}): reads whole tuples from `pos` in one
+   * pass — field count, length words and values together — for as long as each lies wholly
+   * before `end` with V fields of 8 bytes, and returns where it stopped. A tuple it stops at
+   * (cut by `end`, holding a NULL or another length, or the trailer) is left to the general
+   * path, which validates, counts and reports it; values this pass wrote into that row's block
+   * slot are overwritten there or ignored. Counts, skips and blocks are the general path's.
+   */
+  #consumePlainTuples(view: DataView, pos: number, end: number, onBlock: (block: DecodedBlock) => void): number {
+    const v = this.#valueCount;
+    const size = 2 + v * (4 + FLOAT8_BYTES);
+    const values = this.#values;
+    while (pos + size <= end) {
+      if (view.getInt16(pos) !== v) return pos;
+      const base = this.#blockFill * v;
+      let p = pos + 2;
+      // x − x is NaN exactly when x is NaN or ±Infinity, so the sum stays 0 only for finite rows.
+      let check = 0;
+      for (let j = 0; j < v; j++) {
+        if (view.getInt32(p) !== FLOAT8_BYTES) return pos;
+        const x = view.getFloat64(p + 4);
+        values[base + j] = x;
+        check += x - x;
+        p += 4 + FLOAT8_BYTES;
+      }
+      this.#rowsRead++;
+      pos = p;
+      if (check !== 0 && this.#skipNonFinite) {
+        for (let j = 0; j < v; j++) if (!Number.isFinite(values[base + j]!)) this.#nonFiniteCounts[j]!++;
+        this.#rowsSkippedNonFinite++;
+        continue;
+      }
+      this.#keys[this.#blockFill] = 0;
+      this.#blockFill++;
+      if (this.#blockFill === this.#blockRows) this.#emit(onBlock);
+    }
+    return pos;
   }
 
   /** Decodes one complete, already validated tuple (or the trailer) at `pos`. */

@@ -133,13 +133,23 @@ class CopyOutReader {
     let count = 0;
     while (pos < end) {
       if (this.headerFill < 5) {
-        const take = Math.min(5 - this.headerFill, end - pos);
-        chunk.copy(this.header, this.headerFill, pos, pos + take);
-        this.headerFill += take;
-        pos += take;
-        if (this.headerFill < 5) break;
+        if (this.headerFill === 0 && end - pos >= 5) {
+          // The common case, a header wholly in this read: read where it lies (binary COPY
+          // sends a message per row, and a Buffer copy per header cost more than the rest of
+          // this loop; measured on 10,000,000 rows × 21 float8).
+          const type = chunk[pos]!;
+          this.header[0] = type;
+          this.remaining = ((chunk[pos + 1]! << 24) | (chunk[pos + 2]! << 16) | (chunk[pos + 3]! << 8) | chunk[pos + 4]!) - 4;
+          // The whole header is kept only for the messages passed on to pg.
+          if (type !== COPY_DATA) for (let i = 1; i < 5; i++) this.header[i] = chunk[pos + i]!;
+          this.headerFill = 5;
+          pos += 5;
+        } else {
+          while (this.headerFill < 5 && pos < end) this.header[this.headerFill++] = chunk[pos++]!;
+          if (this.headerFill < 5) break;
+          this.remaining = this.header.readInt32BE(1) - 4;
+        }
         const type = this.header[0]!;
-        this.remaining = this.header.readInt32BE(1) - 4;
         if (type === ERROR_RESPONSE || type === COPY_DONE) {
           // The rest of the conversation is pg's: the error (with its header) or
           // CommandComplete and ReadyForQuery after CopyDone.
