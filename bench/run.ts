@@ -56,7 +56,7 @@ console.log('\nend to end from PostgreSQL (medians of 3; floors measured in the 
 console.log('workload              rows        terms  conns  psql COPY  receive  fit     fit/COPY (target)  fit/receive  peak RSS  fit CPU  server CPU  GFLOP/s');
 // ROWFOLD_BENCH_ONLY: comma-separated parts of workload names to run (all when unset). A comma
 // between digits belongs to a number ("100,000 segments" is one part, not "100" and "000 segments").
-const only = process.env['ROWFOLD_BENCH_ONLY']?.split(/,(?!\d{3}\b)/).map((x) => x.trim()).filter((x) => x.length > 0);
+const only = process.env['ROWFOLD_BENCH_ONLY']?.split(/(?<!\d),|,(?!\d{3}(?!\d))/).map((x) => x.trim()).filter((x) => x.length > 0);
 const selected = (name: string) => only === undefined || only.some((o) => name.includes(o));
 for (const w of WORKLOADS.filter((x) => selected(x.name))) {
   try {
