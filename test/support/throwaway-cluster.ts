@@ -43,14 +43,8 @@ export class ThrowawayCluster {
 
   /** initdb (trust authentication for local connections) and start, at `port`. */
   static async create(port: number): Promise<ThrowawayCluster> {
-    const bin = (await run('pg_config', ['--bindir'])).stdout.trim();
-    const asPostgres = userInfo().uid === 0;
-    const root = mkdtempSync(join(tmpdir(), `rowfold-cluster-${port}-`));
-    chmodSync(root, 0o755);
-    const dir = join(root, 'data');
-    const cluster = new ThrowawayCluster(port, dir, bin, asPostgres);
-    if (asPostgres) chownSync(root, ...(await postgresIds()));
-    await cluster.#ctl('initdb', ['-D', dir, '-U', 'postgres', '--auth=trust', '--no-sync', '-E', 'UTF8', '--locale=C']);
+    const cluster = await ThrowawayCluster.#inNewFolder(port);
+    await cluster.#ctl('initdb', ['-D', cluster.dir, '-U', 'postgres', '--auth=trust', '--no-sync', '-E', 'UTF8', '--locale=C']);
     await cluster.start();
     return cluster;
   }
@@ -61,16 +55,20 @@ export class ThrowawayCluster {
    * queries and replays what the primary writes. initdb's trust rules let local replication in.
    */
   static async standbyOf(primary: ThrowawayCluster, port: number): Promise<ThrowawayCluster> {
+    const cluster = await ThrowawayCluster.#inNewFolder(port);
+    await cluster.#ctl('pg_basebackup', ['-h', '127.0.0.1', '-p', String(primary.port), '-U', 'postgres', '-D', cluster.dir, '-R', '-X', 'stream', '--no-sync', '-c', 'fast']);
+    await cluster.start();
+    return cluster;
+  }
+
+  /** A cluster at `port` whose data folder is to be made in a fresh temporary folder (owned by postgres when run as root). */
+  static async #inNewFolder(port: number): Promise<ThrowawayCluster> {
     const bin = (await run('pg_config', ['--bindir'])).stdout.trim();
     const asPostgres = userInfo().uid === 0;
     const root = mkdtempSync(join(tmpdir(), `rowfold-cluster-${port}-`));
     chmodSync(root, 0o755);
-    const dir = join(root, 'data');
-    const cluster = new ThrowawayCluster(port, dir, bin, asPostgres);
     if (asPostgres) chownSync(root, ...(await postgresIds()));
-    await cluster.#ctl('pg_basebackup', ['-h', '127.0.0.1', '-p', String(primary.port), '-U', 'postgres', '-D', dir, '-R', '-X', 'stream', '--no-sync', '-c', 'fast']);
-    await cluster.start();
-    return cluster;
+    return new ThrowawayCluster(port, join(root, 'data'), bin, asPostgres);
   }
 
   /** A connection URL to `database` as the superuser `postgres`. */
